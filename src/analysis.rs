@@ -1,0 +1,632 @@
+//! Settings → [`Comparison`]: the one place the statistics are put together. Every number
+//! the window, the command line and the record show comes from a `Comparison`.
+
+use nalgebra::{DMatrix, DVector, Matrix2};
+use serde::{Deserialize, Serialize};
+
+use crate::stats::hotelling::{self, Pooled, CONDITION_WARN};
+use crate::stats::moments::{column_summary, ColumnSummary, LotMoments};
+use crate::stats::{discriminant, ellipse, quote_list, EngineError};
+
+/// What to compute and at which level.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Settings {
+    /// Significance level of the test and `1 −` the confidence of every interval.
+    pub alpha: f64,
+    /// Compute the leave-one-out misclassification rate (needs unit data).
+    pub leave_one_out: bool,
+}
+
+impl Default for Settings {
+    fn default() -> Self {
+        Settings {
+            alpha: 0.05,
+            leave_one_out: true,
+        }
+    }
+}
+
+/// Progress and cancellation for a long run; the worker thread's handle implements it.
+pub trait Progress: Sync {
+    /// The run reached `fraction` (0 to 1) of `stage`.
+    fn report(&self, stage: &str, fraction: f64);
+    /// True when the run should stop as soon as it can.
+    fn cancelled(&self) -> bool;
+}
+
+/// A progress hook that ignores reports and never cancels.
+pub struct Silent;
+
+impl Progress for Silent {
+    fn report(&self, _stage: &str, _fraction: f64) {}
+    fn cancelled(&self) -> bool {
+        false
+    }
+}
+
+/// One lot's unit data for [`compare`].
+#[derive(Debug, Clone, Copy)]
+pub struct LotData<'a> {
+    /// Display name of the lot.
+    pub name: &'a str,
+    /// `n × p` unit data, one row per unit, columns in the order of the characteristics.
+    pub data: &'a DMatrix<f64>,
+}
+
+/// One lot's published summary statistics for [`compare_summaries`].
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SummaryLot {
+    /// Display name of the lot.
+    pub name: String,
+    /// Number of units.
+    pub n: usize,
+    /// Mean vector.
+    pub mean: Vec<f64>,
+    /// Unbiased covariance matrix (divisor `n − 1`), row by row.
+    pub covariance: Vec<Vec<f64>>,
+}
+
+/// Hotelling's two-sample test (record key `hotelling`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct HotellingResult {
+    /// Hotelling's T².
+    pub t2: f64,
+    /// F form of T².
+    pub f: f64,
+    /// Numerator df, `p`.
+    pub df1: f64,
+    /// Denominator df, `n1 + n2 − p − 1`.
+    pub df2: f64,
+    /// `P(F > f)`.
+    pub p_value: f64,
+    /// Critical T² at alpha.
+    pub critical_t2: f64,
+    /// Critical F at alpha.
+    pub critical_f: f64,
+    /// Mahalanobis distance squared between the lot means, on the pooled covariance.
+    pub mahalanobis_d2: f64,
+    /// `p_value < alpha`.
+    pub differ: bool,
+}
+
+/// Follow-up intervals for one characteristic (record key `intervals`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Interval {
+    /// Characteristic name.
+    pub characteristic: String,
+    /// Mean difference, first lot minus second.
+    pub difference: f64,
+    /// Standard error of the difference on the pooled variance.
+    pub standard_error: f64,
+    /// T²-based simultaneous interval.
+    pub simultaneous: [f64; 2],
+    /// Bonferroni interval.
+    pub bonferroni: [f64; 2],
+    /// One-at-a-time t interval.
+    pub one_at_a_time: [f64; 2],
+    /// Whether each of the three excludes zero, in the order above.
+    pub excludes_zero: [bool; 3],
+}
+
+/// Fisher's discriminant direction (record key `discriminant`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Discriminant {
+    /// Raw coefficients `a = Sp⁻¹ d`.
+    pub coefficients: Vec<f64>,
+    /// Standardized coefficients `a_k · sqrt(Sp_kk)`.
+    pub standardized: Vec<f64>,
+    /// Pooled within-lot correlation of each characteristic with the discriminant score.
+    pub structure: Vec<f64>,
+    /// Allocation cut-off `aᵀ(x̄1 + x̄2)/2` on the raw score `aᵀx`.
+    pub cutoff: f64,
+    /// Units misclassified when each is allocated by the rule fitted to all units
+    /// `[of lot 1, of lot 2]`; absent for summary-only input.
+    pub apparent_misclassified: Option<[usize; 2]>,
+    /// Same, with each unit held out of the fit (Lachenbruch's holdout).
+    pub leave_one_out_misclassified: Option<[usize; 2]>,
+    /// Leave-one-out misclassification rate over all units.
+    pub leave_one_out_rate: Option<f64>,
+    /// Each unit's score `aᵀ(x − midpoint)`, per lot (not written to the record).
+    #[serde(skip)]
+    pub scores: Option<[Vec<f64>; 2]>,
+}
+
+/// How much one characteristic drives the shift (record key `ranking`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Contribution {
+    /// Characteristic name.
+    pub characteristic: String,
+    /// Drop in T² when this characteristic is left out (its unique contribution).
+    pub t2_drop: f64,
+    /// Standardized discriminant coefficient.
+    pub standardized_coefficient: f64,
+}
+
+/// Per-characteristic summaries and univariate tests (record key `per_characteristic`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct CharacteristicResult {
+    /// Characteristic name.
+    pub characteristic: String,
+    /// Unit of measure, when the header gave one.
+    pub unit: Option<String>,
+    /// Summary in each lot (absent for summary-only input except n, mean and sd).
+    pub lots: [ColumnSummary; 2],
+    /// Mean difference, first lot minus second.
+    pub difference: f64,
+    /// Pooled standard deviation.
+    pub pooled_sd: f64,
+    /// Difference divided by the pooled standard deviation.
+    pub standardized_difference: f64,
+    /// Pooled-variance t statistic.
+    pub pooled_t: f64,
+    /// Its df.
+    pub pooled_df: f64,
+    /// Its two-sided p-value.
+    pub pooled_p: f64,
+    /// Welch's t statistic.
+    pub welch_t: f64,
+    /// Welch–Satterthwaite df.
+    pub welch_df: f64,
+    /// Its two-sided p-value.
+    pub welch_p: f64,
+}
+
+/// One lot's statistics in the comparison.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LotResult {
+    /// Display name.
+    pub name: String,
+    /// Units used.
+    pub n: usize,
+    /// Mean vector.
+    pub mean: Vec<f64>,
+    /// Unbiased covariance matrix, row by row.
+    pub covariance: Vec<Vec<f64>>,
+}
+
+/// Everything the tool reports about two lots.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Comparison {
+    /// Significance level used.
+    pub alpha: f64,
+    /// Characteristic names, in column order.
+    pub characteristics: Vec<String>,
+    /// Units of measure.
+    pub units: Vec<Option<String>>,
+    /// The two lots: first is the reference, the difference is first minus second.
+    pub lots: [LotResult; 2],
+    /// Pooled covariance matrix, row by row.
+    pub pooled_covariance: Vec<Vec<f64>>,
+    /// Condition number of the pooled correlation matrix.
+    pub condition_number: f64,
+    /// Hotelling's two-sample test.
+    pub hotelling: HotellingResult,
+    /// Follow-up intervals, one per characteristic.
+    pub intervals: Vec<Interval>,
+    /// Discriminant direction.
+    pub discriminant: Discriminant,
+    /// Characteristics ordered by how much each drives the shift (largest T² drop first).
+    pub ranking: Vec<Contribution>,
+    /// Summaries and univariate tests, one per characteristic.
+    pub per_characteristic: Vec<CharacteristicResult>,
+    /// The result in plain words.
+    pub verdict: String,
+    /// Cautions about this result (conditioning, small lots...).
+    pub warnings: Vec<String>,
+}
+
+fn rows_of(m: &DMatrix<f64>) -> Vec<Vec<f64>> {
+    (0..m.nrows())
+        .map(|i| m.row(i).iter().copied().collect())
+        .collect()
+}
+
+fn check_common(names: &[String], p1: usize, p2: usize, alpha: f64) -> Result<(), EngineError> {
+    if !(alpha > 0.0 && alpha < 1.0) {
+        return Err(EngineError::BadAlpha(alpha));
+    }
+    if p1 != p2 {
+        return Err(EngineError::DimensionMismatch(p1, p2));
+    }
+    if p1 == 0 || names.len() != p1 {
+        return Err(EngineError::NoCharacteristics);
+    }
+    Ok(())
+}
+
+/// Compares two lots from their unit data.
+///
+/// # Errors
+/// Too few units for the number of characteristics, a constant characteristic, collinear
+/// characteristics, mismatched shapes, a bad alpha, or cancellation.
+pub fn compare(
+    characteristics: &[String],
+    units: &[Option<String>],
+    lots: [LotData<'_>; 2],
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Comparison, EngineError> {
+    let p = lots[0].data.ncols();
+    check_common(characteristics, p, lots[1].data.ncols(), settings.alpha)?;
+    for lot in &lots {
+        if lot.data.nrows() == 0 {
+            return Err(EngineError::EmptyLot(lot.name.to_string()));
+        }
+    }
+    progress.report("moments", 0.0);
+    // Common origin: the first unit of the first lot.
+    let origin: DVector<f64> = lots[0].data.row(0).transpose();
+    let (m1, c1) = LotMoments::from_data_centred(lots[0].data, &origin);
+    if progress.cancelled() {
+        return Err(EngineError::Cancelled);
+    }
+    let (m2, c2) = LotMoments::from_data_centred(lots[1].data, &origin);
+    if progress.cancelled() {
+        return Err(EngineError::Cancelled);
+    }
+    progress.report("summaries", 0.2);
+    let summaries: Vec<[ColumnSummary; 2]> = (0..p)
+        .map(|k| {
+            let mean1 = m1.origin[k] + m1.offset[k];
+            let mean2 = m2.origin[k] + m2.offset[k];
+            [
+                column_summary(lots[0].data.column(k).as_slice(), mean1, m1.ssp[(k, k)]),
+                column_summary(lots[1].data.column(k).as_slice(), mean2, m2.ssp[(k, k)]),
+            ]
+        })
+        .collect();
+    progress.report("test", 0.4);
+    let mut out = finish(
+        characteristics,
+        units,
+        [lots[0].name, lots[1].name],
+        &m1,
+        &m2,
+        Some(summaries),
+        settings,
+    )?;
+    // Unit-level results: scores, apparent and holdout errors.
+    let pooled = Pooled::new(&m1, &m2, characteristics)?;
+    let a = DVector::from_vec(out.discriminant.coefficients.clone());
+    let d = &m1.offset - &m2.offset;
+    let half = &d * 0.5;
+    let s1 = discriminant::scores(&c1, &a, &half);
+    let s2 = discriminant::scores(&c2, &a, &(-&half));
+    let apparent = [
+        s1.iter().filter(|&&s| s < 0.0).count(),
+        s2.iter().filter(|&&s| s >= 0.0).count(),
+    ];
+    out.discriminant.apparent_misclassified = Some(apparent);
+    out.discriminant.scores = Some([s1, s2]);
+    if settings.leave_one_out {
+        progress.report("leave-one-out", 0.5);
+        let loo = discriminant::leave_one_out([&c1, &c2], &d, &pooled, |f| {
+            progress.report("leave-one-out", 0.5 + 0.5 * f);
+            !progress.cancelled()
+        });
+        if progress.cancelled() {
+            return Err(EngineError::Cancelled);
+        }
+        if let Some(wrong) = loo {
+            out.discriminant.leave_one_out_misclassified = Some(wrong);
+            out.discriminant.leave_one_out_rate =
+                Some((wrong[0] + wrong[1]) as f64 / (m1.n + m2.n) as f64);
+        }
+    }
+    progress.report("done", 1.0);
+    Ok(out)
+}
+
+/// Compares two lots from published summary statistics only (n, mean vector, covariance).
+///
+/// # Errors
+/// As [`compare`], plus malformed matrices.
+pub fn compare_summaries(
+    characteristics: &[String],
+    units: &[Option<String>],
+    lots: [&SummaryLot; 2],
+    settings: &Settings,
+) -> Result<Comparison, EngineError> {
+    let p = lots[0].mean.len();
+    check_common(characteristics, p, lots[1].mean.len(), settings.alpha)?;
+    let mut moments = Vec::with_capacity(2);
+    let origin = DVector::from_vec(lots[0].mean.clone());
+    for lot in &lots {
+        if lot.covariance.len() != p || lot.covariance.iter().any(|r| r.len() != p) {
+            return Err(EngineError::DimensionMismatch(p, lot.covariance.len()));
+        }
+        if lot.n == 0 {
+            return Err(EngineError::EmptyLot(lot.name.clone()));
+        }
+        let cov = DMatrix::from_fn(p, p, |i, j| 0.5 * (lot.covariance[i][j] + lot.covariance[j][i]));
+        let mean = DVector::from_vec(lot.mean.clone());
+        moments.push(LotMoments::from_summary(lot.n, &mean, &cov, &origin));
+    }
+    let summaries: Vec<[ColumnSummary; 2]> = (0..p)
+        .map(|k| {
+            let one = |m: &LotMoments, lot: &SummaryLot| ColumnSummary {
+                n: m.n,
+                mean: lot.mean[k],
+                sd: lot.covariance[k][k].sqrt(),
+                min: f64::NAN,
+                median: f64::NAN,
+                max: f64::NAN,
+            };
+            [one(&moments[0], lots[0]), one(&moments[1], lots[1])]
+        })
+        .collect();
+    finish(
+        characteristics,
+        units,
+        [&lots[0].name, &lots[1].name],
+        &moments[0],
+        &moments[1],
+        Some(summaries),
+        settings,
+    )
+}
+
+fn finish(
+    characteristics: &[String],
+    units: &[Option<String>],
+    names: [&str; 2],
+    m1: &LotMoments,
+    m2: &LotMoments,
+    summaries: Option<Vec<[ColumnSummary; 2]>>,
+    settings: &Settings,
+) -> Result<Comparison, EngineError> {
+    let p = m1.dim();
+    let alpha = settings.alpha;
+    let pooled = Pooled::new(m1, m2, characteristics)?;
+    let test = hotelling::two_sample(m1, m2, &pooled, alpha);
+    let sets = hotelling::intervals(m1, m2, &pooled, &test, alpha);
+    let excludes = |iv: [f64; 2]| iv[0] > 0.0 || iv[1] < 0.0;
+    let intervals: Vec<Interval> = sets
+        .iter()
+        .enumerate()
+        .map(|(k, s)| Interval {
+            characteristic: characteristics[k].clone(),
+            difference: test.difference[k],
+            standard_error: s.standard_error,
+            simultaneous: s.simultaneous,
+            bonferroni: s.bonferroni,
+            one_at_a_time: s.one_at_a_time,
+            excludes_zero: [
+                excludes(s.simultaneous),
+                excludes(s.bonferroni),
+                excludes(s.one_at_a_time),
+            ],
+        })
+        .collect();
+    let summaries = summaries.unwrap_or_default();
+    let per_characteristic: Vec<CharacteristicResult> = (0..p)
+        .map(|k| {
+            let u = hotelling::univariate(m1, m2, &pooled, k);
+            CharacteristicResult {
+                characteristic: characteristics[k].clone(),
+                unit: units.get(k).cloned().flatten(),
+                lots: summaries[k],
+                difference: test.difference[k],
+                pooled_sd: pooled.sd[k],
+                standardized_difference: test.difference[k] / pooled.sd[k],
+                pooled_t: u.pooled_t,
+                pooled_df: u.pooled_df,
+                pooled_p: u.pooled_p,
+                welch_t: u.welch_t,
+                welch_df: u.welch_df,
+                welch_p: u.welch_p,
+            }
+        })
+        .collect();
+    let mut ranking: Vec<Contribution> = (0..p)
+        .map(|k| Contribution {
+            characteristic: characteristics[k].clone(),
+            t2_drop: test.t2_drop[k],
+            standardized_coefficient: test.standardized[k],
+        })
+        .collect();
+    ranking.sort_by(|a, b| b.t2_drop.total_cmp(&a.t2_drop));
+    let mean_total = |m: &LotMoments| -> f64 {
+        let mean = m.mean();
+        test.coefficients.dot(&mean)
+    };
+    let cutoff = 0.5 * (mean_total(m1) + mean_total(m2));
+    let differ = test.p_value < alpha;
+    let hot = HotellingResult {
+        t2: test.t2,
+        f: test.f,
+        df1: test.df1,
+        df2: test.df2,
+        p_value: test.p_value,
+        critical_t2: test.critical_t2,
+        critical_f: test.critical_f,
+        mahalanobis_d2: test.mahalanobis_d2,
+        differ,
+    };
+    let mut warnings = Vec::new();
+    if pooled.condition > CONDITION_WARN {
+        let involved: Vec<String> = pooled
+            .weakest
+            .iter()
+            .map(|&k| characteristics[k].clone())
+            .collect();
+        warnings.push(format!(
+            "the pooled covariance is ill-conditioned (condition number {:.2e}, about {:.0} of \
+             16 significant digits lost): {} are nearly collinear; consider leaving one out",
+            pooled.condition,
+            pooled.condition.log10(),
+            quote_list(&involved)
+        ));
+    }
+    let verdict = verdict_text(&hot, alpha, &ranking, &intervals);
+    Ok(Comparison {
+        alpha,
+        characteristics: characteristics.to_vec(),
+        units: units.to_vec(),
+        lots: [
+            LotResult {
+                name: names[0].to_string(),
+                n: m1.n,
+                mean: m1.mean().iter().copied().collect(),
+                covariance: rows_of(&m1.covariance()),
+            },
+            LotResult {
+                name: names[1].to_string(),
+                n: m2.n,
+                mean: m2.mean().iter().copied().collect(),
+                covariance: rows_of(&m2.covariance()),
+            },
+        ],
+        pooled_covariance: rows_of(&pooled.covariance),
+        condition_number: pooled.condition,
+        hotelling: hot,
+        intervals,
+        discriminant: Discriminant {
+            coefficients: test.coefficients.iter().copied().collect(),
+            standardized: test.standardized.iter().copied().collect(),
+            structure: test.structure.iter().copied().collect(),
+            cutoff,
+            apparent_misclassified: None,
+            leave_one_out_misclassified: None,
+            leave_one_out_rate: None,
+            scores: None,
+        },
+        ranking,
+        per_characteristic,
+        verdict,
+        warnings,
+    })
+}
+
+/// Formats a p-value for people: four significant digits, or a bound below 1e-16.
+pub fn format_p(p: f64) -> String {
+    if p < 1e-16 {
+        "< 1e-16".to_string()
+    } else if p < 1e-4 {
+        format!("{p:.3e}")
+    } else {
+        format!("{p:.4}")
+    }
+}
+
+/// Formats a number with `sig` significant digits, switching to exponent form when needed.
+pub fn format_sig(x: f64, sig: usize) -> String {
+    if !x.is_finite() {
+        return if x.is_nan() { "n/a".into() } else { format!("{x}") };
+    }
+    if x == 0.0 {
+        return "0".into();
+    }
+    let mag = x.abs().log10().floor() as i32;
+    if !(-4..=8).contains(&mag) {
+        return format!("{:.*e}", sig.saturating_sub(1), x);
+    }
+    let decimals = (sig as i32 - 1 - mag).max(0) as usize;
+    format!("{x:.decimals$}")
+}
+
+fn verdict_text(h: &HotellingResult, alpha: f64, ranking: &[Contribution], iv: &[Interval]) -> String {
+    let stats = format!(
+        "T² = {}, F({}, {}) = {}, p = {}",
+        format_sig(h.t2, 4),
+        h.df1,
+        h.df2,
+        format_sig(h.f, 4),
+        format_p(h.p_value)
+    );
+    if h.differ {
+        let leaders: Vec<String> = ranking
+            .iter()
+            .take(2)
+            .filter(|c| c.t2_drop > 0.0)
+            .map(|c| c.characteristic.clone())
+            .collect();
+        let flagged: Vec<String> = iv
+            .iter()
+            .filter(|i| i.excludes_zero[0])
+            .map(|i| i.characteristic.clone())
+            .collect();
+        let mut s = format!(
+            "The lots differ at alpha {alpha}: {stats}. The shift is driven most by {}.",
+            quote_list(&leaders)
+        );
+        if flagged.is_empty() {
+            s.push_str(
+                " No single characteristic's simultaneous interval excludes zero: the shift \
+                 lies in a combination of characteristics.",
+            );
+        } else {
+            s.push_str(&format!(
+                " Simultaneous intervals exclude zero for {}.",
+                quote_list(&flagged)
+            ));
+        }
+        s
+    } else {
+        format!(
+            "No difference between the lot means detected at alpha {alpha}: {stats}. This is \
+             not proof that the lots are the same; see the intervals for the size of \
+             difference the data can rule out."
+        )
+    }
+}
+
+/// Geometry for the pairwise view of characteristics `i` and `j`.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PairGeometry {
+    /// Each lot's mean confidence ellipse for this pair alone.
+    pub mean_regions: [Option<Vec<[f64; 2]>>; 2],
+    /// Each lot's normal-theory data ellipse at the chosen coverage.
+    pub data_ellipses: [Option<Vec<[f64; 2]>>; 2],
+    /// Mean-difference ellipse as the shadow of the p-dimensional T² region.
+    pub difference_shadow: Option<Vec<[f64; 2]>>,
+    /// Mean-difference ellipse for this pair alone.
+    pub difference_pair: Option<Vec<[f64; 2]>>,
+    /// The two lot means.
+    pub means: [[f64; 2]; 2],
+    /// The mean difference (first minus second).
+    pub difference: [f64; 2],
+}
+
+/// Ellipses for characteristics `i` and `j` from a finished comparison.
+pub fn pair_geometry(c: &Comparison, i: usize, j: usize, coverage: f64) -> PairGeometry {
+    let sub = |m: &Vec<Vec<f64>>| Matrix2::new(m[i][i], m[i][j], m[j][i], m[j][j]);
+    let alpha = c.alpha;
+    let segments = 120;
+    let means = [
+        [c.lots[0].mean[i], c.lots[0].mean[j]],
+        [c.lots[1].mean[i], c.lots[1].mean[j]],
+    ];
+    let per_lot = |k: usize, r2: f64| ellipse::outline(means[k], sub(&c.lots[k].covariance), r2, segments);
+    let n1 = c.lots[0].n;
+    let n2 = c.lots[1].n;
+    let scale = 1.0 / n1 as f64 + 1.0 / n2 as f64;
+    let sp = sub(&c.pooled_covariance) * scale;
+    let difference = [c.intervals[i].difference, c.intervals[j].difference];
+    let p = c.characteristics.len();
+    PairGeometry {
+        mean_regions: [
+            per_lot(0, ellipse::mean_region_r2(n1, alpha)),
+            per_lot(1, ellipse::mean_region_r2(n2, alpha)),
+        ],
+        data_ellipses: [
+            per_lot(0, ellipse::data_r2(coverage)),
+            per_lot(1, ellipse::data_r2(coverage)),
+        ],
+        difference_shadow: ellipse::outline(
+            difference,
+            sp,
+            ellipse::difference_r2(n1, n2, p, alpha),
+            segments,
+        ),
+        difference_pair: ellipse::outline(
+            difference,
+            sp,
+            ellipse::difference_r2(n1, n2, 2, alpha),
+            segments,
+        ),
+        means,
+        difference,
+    }
+}

@@ -1,0 +1,354 @@
+//! Lot files: CSV/TSV (delimiter and decimal-comma detection), spreadsheets, one file split
+//! by a lot column, column matching between two lots and listwise exclusion of missing cells.
+
+mod delimited;
+mod error;
+mod pair;
+mod sheet;
+mod split;
+
+pub use error::{LoadError, LoadErrorKind, PrepareError};
+pub use pair::{prepare, Prepared, PreparedLot, Selection, Unmatched};
+pub use split::{lot_values, split_lot};
+
+use std::path::Path;
+
+use sha2::{Digest as _, Sha256};
+
+/// How to read a file.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct LoadOptions {
+    /// Sheet to read from a spreadsheet (default: the first sheet with data).
+    pub sheet: Option<String>,
+    /// Columns to treat as labels even when their values look numeric (serial numbers...).
+    pub labels: Vec<String>,
+}
+
+/// Where a lot came from and what was read.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Provenance {
+    /// Path as given.
+    pub path: String,
+    /// File name without directories.
+    pub file_name: String,
+    /// SHA-256 of the file's bytes, lower-case hex.
+    pub sha256: String,
+    /// File size in bytes.
+    pub size_bytes: u64,
+    /// `csv`, `xlsx`, `xls`, `ods`...
+    pub format: String,
+    /// Field delimiter of a text file.
+    pub delimiter: Option<char>,
+    /// Whether a decimal comma was read.
+    pub decimal_comma: bool,
+    /// Text encoding of a text file.
+    pub encoding: Option<String>,
+    /// Sheet read from a spreadsheet.
+    pub sheet: Option<String>,
+    /// Lot column and value when the lot was split out of a file holding several.
+    pub split: Option<(String, String)>,
+    /// Data rows read.
+    pub rows_read: usize,
+    /// Things worth knowing about how the file was read.
+    pub notes: Vec<String>,
+}
+
+/// Compact storage for a text column: one buffer and the end offset of each cell.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct TextColumn {
+    buf: String,
+    ends: Vec<usize>,
+}
+
+impl TextColumn {
+    /// Appends a cell.
+    pub fn push(&mut self, s: &str) {
+        self.buf.push_str(s);
+        self.ends.push(self.buf.len());
+    }
+    /// The `i`-th cell.
+    pub fn get(&self, i: usize) -> &str {
+        let start = if i == 0 { 0 } else { self.ends[i - 1] };
+        &self.buf[start..self.ends[i]]
+    }
+    /// Number of cells.
+    pub fn len(&self) -> usize {
+        self.ends.len()
+    }
+    /// True when there are no cells.
+    pub fn is_empty(&self) -> bool {
+        self.ends.is_empty()
+    }
+    /// The cells at `rows`, in that order.
+    pub fn select(&self, rows: &[usize]) -> TextColumn {
+        let mut out = TextColumn::default();
+        for &r in rows {
+            out.push(self.get(r));
+        }
+        out
+    }
+}
+
+/// A column's values.
+#[derive(Debug, Clone, PartialEq)]
+pub enum ColumnData {
+    /// A measured characteristic; missing cells are NaN.
+    Numeric(Vec<f64>),
+    /// A label (serial number, timestamp, operator...).
+    Text(TextColumn),
+}
+
+/// One column of a lot.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Column {
+    /// Header cell as written.
+    pub header: String,
+    /// Name without the unit.
+    pub name: String,
+    /// Unit from `name (unit)` or `name [unit]`.
+    pub unit: Option<String>,
+    /// Position in the file, 0-based.
+    pub position: usize,
+    /// Values.
+    pub data: ColumnData,
+    /// Missing cells.
+    pub missing: usize,
+}
+
+impl Column {
+    /// Whether this column is a characteristic (numeric).
+    pub fn is_numeric(&self) -> bool {
+        matches!(self.data, ColumnData::Numeric(_))
+    }
+    /// The cell at `row` as text (numbers formatted, missing as empty).
+    pub fn text(&self, row: usize) -> String {
+        match &self.data {
+            ColumnData::Numeric(v) => {
+                if v[row].is_nan() {
+                    String::new()
+                } else {
+                    format!("{}", v[row])
+                }
+            }
+            ColumnData::Text(t) => t.get(row).to_string(),
+        }
+    }
+}
+
+/// One lot as read from a file: columns plus the spreadsheet row of each unit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Lot {
+    /// Display name (file stem, or the lot value for a split file).
+    pub name: String,
+    /// Where it came from.
+    pub provenance: Provenance,
+    /// Columns in file order.
+    pub columns: Vec<Column>,
+    /// Row number of each unit as a spreadsheet shows it (header is row 1).
+    pub rows: Vec<u32>,
+}
+
+impl Lot {
+    /// Number of units (data rows).
+    pub fn len(&self) -> usize {
+        self.rows.len()
+    }
+    /// True when the lot has no units.
+    pub fn is_empty(&self) -> bool {
+        self.rows.is_empty()
+    }
+    /// Finds a column by name, ignoring case, spaces and any unit.
+    pub fn column(&self, name: &str) -> Option<&Column> {
+        let key = match_key(name);
+        self.columns
+            .iter()
+            .find(|c| match_key(&c.name) == key || match_key(&c.header) == key)
+    }
+}
+
+/// Column-matching key: lower case, whitespace removed.
+pub fn match_key(name: &str) -> String {
+    name.chars()
+        .filter(|c| !c.is_whitespace())
+        .flat_map(char::to_lowercase)
+        .collect()
+}
+
+/// Splits `name (unit)` / `name [unit]` into name and unit.
+pub fn split_header(header: &str) -> (String, Option<String>) {
+    let h = header.trim();
+    for (open, close) in [('(', ')'), ('[', ']')] {
+        if let Some(stripped) = h.strip_suffix(close)
+            && let Some(pos) = stripped.rfind(open)
+        {
+            let name = stripped[..pos].trim();
+            let unit = stripped[pos + open.len_utf8()..].trim();
+            if !name.is_empty() && !unit.is_empty() {
+                return (name.to_string(), Some(unit.to_string()));
+            }
+        }
+    }
+    (h.to_string(), None)
+}
+
+/// Spreadsheet column letters for a 0-based position: A, B, ..., Z, AA, AB...
+pub fn column_letter(position: usize) -> String {
+    let mut n = position + 1;
+    let mut out = Vec::new();
+    while n > 0 {
+        let r = (n - 1) % 26;
+        out.push(b'A' + r as u8);
+        n = (n - 1) / 26;
+    }
+    out.reverse();
+    String::from_utf8(out).unwrap_or_default()
+}
+
+/// What a cell holds.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub(crate) enum Cell {
+    Missing,
+    Number(f64),
+    Infinite,
+    Text,
+}
+
+/// Missing-value tokens (case-insensitive), besides an empty cell.
+pub const MISSING_TOKENS: [&str; 7] = ["na", "n/a", "nan", "-", "#n/a", "null", "#na"];
+
+/// Classifies a cell's text, reading a decimal comma when `decimal_comma`.
+pub(crate) fn parse_cell(raw: &str, decimal_comma: bool) -> Cell {
+    let s = raw.trim();
+    if s.is_empty() {
+        return Cell::Missing;
+    }
+    if s.len() <= 4 && MISSING_TOKENS.iter().any(|t| t.eq_ignore_ascii_case(s)) {
+        return Cell::Missing;
+    }
+    let first = s.as_bytes()[0];
+    if !(first.is_ascii_digit() || matches!(first, b'-' | b'+' | b'.' | b',' | b'i' | b'I')) {
+        return Cell::Text;
+    }
+    let parsed = if decimal_comma && s.contains(',') {
+        if s.contains('.') || s.matches(',').count() > 1 {
+            return Cell::Text;
+        }
+        s.replace(',', ".").parse::<f64>()
+    } else {
+        s.parse::<f64>()
+    };
+    match parsed {
+        Ok(v) if v.is_nan() => Cell::Missing,
+        Ok(v) if v.is_infinite() => Cell::Infinite,
+        Ok(v) => Cell::Number(v),
+        Err(_) => Cell::Text,
+    }
+}
+
+/// Reads a lot file of any supported kind, named after its file stem.
+///
+/// # Errors
+/// A [`LoadError`] naming the file, and where it applies the row and column.
+pub fn load(path: &Path, options: &LoadOptions) -> Result<Lot, LoadError> {
+    let display = path.display().to_string();
+    let bytes = std::fs::read(path).map_err(|e| LoadError::new(&display, LoadErrorKind::Io(e.to_string())))?;
+    load_bytes(&display, &bytes, options)
+}
+
+/// Reads a lot from bytes already in memory (`path` names it in messages and provenance).
+///
+/// # Errors
+/// As [`load`].
+pub fn load_bytes(path: &str, bytes: &[u8], options: &LoadOptions) -> Result<Lot, LoadError> {
+    let file_name = Path::new(path)
+        .file_name()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| path.to_string());
+    let stem = Path::new(path)
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| file_name.clone());
+    let sha256 = hex(&Sha256::digest(bytes));
+    let provenance = Provenance {
+        path: path.to_string(),
+        file_name,
+        sha256,
+        size_bytes: bytes.len() as u64,
+        format: String::new(),
+        delimiter: None,
+        decimal_comma: false,
+        encoding: None,
+        sheet: None,
+        split: None,
+        rows_read: 0,
+        notes: Vec::new(),
+    };
+    let ext = Path::new(path)
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase())
+        .unwrap_or_default();
+    let is_zip = bytes.starts_with(b"PK\x03\x04");
+    let is_ole = bytes.starts_with(&[0xD0, 0xCF, 0x11, 0xE0]);
+    let mut lot = if matches!(ext.as_str(), "xlsx" | "xlsm" | "xlsb" | "xls" | "ods") || is_zip || is_ole {
+        sheet::read(path, bytes, &ext, options, provenance)?
+    } else {
+        delimited::read(path, bytes, options, provenance)?
+    };
+    lot.name = stem;
+    lot.provenance.rows_read = lot.rows.len();
+    Ok(lot)
+}
+
+/// Lower-case hex of bytes.
+pub fn hex(bytes: &[u8]) -> String {
+    use std::fmt::Write as _;
+    let mut s = String::with_capacity(bytes.len() * 2);
+    for b in bytes {
+        let _ = write!(s, "{b:02x}");
+    }
+    s
+}
+
+/// Decides which columns are characteristics from a sample of raw cells: numeric when more
+/// than half of the non-missing cells read as numbers (a forced label stays a label).
+pub(crate) fn classify(numeric: usize, text: usize, forced_label: bool) -> bool {
+    !forced_label && (numeric > 0 && text * 2 < numeric + text || numeric == 0 && text == 0)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn headers_carry_units() {
+        assert_eq!(split_header("Bore (mm)"), ("Bore".into(), Some("mm".into())));
+        assert_eq!(split_header(" mass [g] "), ("mass".into(), Some("g".into())));
+        assert_eq!(split_header("plain"), ("plain".into(), None));
+        assert_eq!(split_header("(mm)"), ("(mm)".into(), None));
+    }
+
+    #[test]
+    fn letters_like_a_spreadsheet() {
+        assert_eq!(column_letter(0), "A");
+        assert_eq!(column_letter(25), "Z");
+        assert_eq!(column_letter(26), "AA");
+        assert_eq!(column_letter(701), "ZZ");
+        assert_eq!(column_letter(702), "AAA");
+    }
+
+    #[test]
+    fn cells() {
+        assert_eq!(parse_cell(" 12.5 ", false), Cell::Number(12.5));
+        assert_eq!(parse_cell("12,5", true), Cell::Number(12.5));
+        assert_eq!(parse_cell("12,5", false), Cell::Text);
+        assert_eq!(parse_cell("1.234,5", true), Cell::Text);
+        assert_eq!(parse_cell("#N/A", false), Cell::Missing);
+        assert_eq!(parse_cell("NaN", false), Cell::Missing);
+        assert_eq!(parse_cell("-", false), Cell::Missing);
+        assert_eq!(parse_cell("-inf", false), Cell::Infinite);
+        assert_eq!(parse_cell("1e400", false), Cell::Infinite);
+        assert_eq!(parse_cell("+3e-2", false), Cell::Number(0.03));
+        assert_eq!(parse_cell("HB-001", false), Cell::Text);
+        assert_eq!(match_key(" Bore  Diameter"), "borediameter");
+    }
+}

@@ -1,0 +1,264 @@
+//! Putting two lots side by side: match columns by name, pick the characteristics, drop
+//! incomplete units (listwise) and build the unit matrices the engine works on.
+
+use nalgebra::DMatrix;
+
+use super::{match_key, ColumnData, Lot, PrepareError};
+
+/// Which characteristics to compare.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Selection {
+    /// Compare exactly these (by name); `None` means every numeric column in both lots.
+    pub only: Option<Vec<String>>,
+    /// Leave these out.
+    pub exclude: Vec<String>,
+}
+
+/// A column that is not compared, and why.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Unmatched {
+    /// Lot (0 or 1) the column is in.
+    pub lot: usize,
+    /// Column header.
+    pub column: String,
+    /// Why it is left out.
+    pub why: String,
+}
+
+/// One lot ready for the engine.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PreparedLot {
+    /// Display name.
+    pub name: String,
+    /// `n × p` complete units.
+    pub data: DMatrix<f64>,
+    /// Index of each kept unit in the lot as read.
+    pub kept: Vec<usize>,
+    /// Units read.
+    pub n_read: usize,
+    /// Units left out for a missing cell in a compared characteristic.
+    pub n_excluded: usize,
+    /// Missing cells per compared characteristic.
+    pub missing: Vec<usize>,
+}
+
+/// Two lots ready for the engine.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Prepared {
+    /// Compared characteristics, in the first lot's column order.
+    pub characteristics: Vec<String>,
+    /// Their units.
+    pub units: Vec<Option<String>>,
+    /// The two lots.
+    pub lots: [PreparedLot; 2],
+    /// Columns not compared, with the reason.
+    pub unmatched: Vec<Unmatched>,
+}
+
+/// Matches the lots' columns and builds the unit matrices.
+///
+/// # Errors
+/// No column in common, a requested characteristic that is not numeric in both lots,
+/// conflicting units, or nothing left after exclusions.
+pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, PrepareError> {
+    let lots = [a, b];
+    let mut unmatched = Vec::new();
+    // Pairs of column indices of numeric columns present in both lots.
+    let mut pairs: Vec<(usize, usize)> = Vec::new();
+    for (ia, ca) in a.columns.iter().enumerate() {
+        let key = match_key(&ca.name);
+        let found = b.columns.iter().position(|cb| match_key(&cb.name) == key);
+        match (found, ca.is_numeric()) {
+            (Some(ib), true) if b.columns[ib].is_numeric() => pairs.push((ia, ib)),
+            (Some(ib), true) => unmatched.push(Unmatched {
+                lot: 0,
+                column: ca.header.clone(),
+                why: format!("numeric here but text in \"{}\"", b.columns[ib].header),
+            }),
+            (None, true) => unmatched.push(Unmatched {
+                lot: 0,
+                column: ca.header.clone(),
+                why: "not in the other lot".into(),
+            }),
+            _ => {}
+        }
+    }
+    for cb in &b.columns {
+        let key = match_key(&cb.name);
+        let found = a.columns.iter().find(|ca| match_key(&ca.name) == key);
+        match found {
+            None if cb.is_numeric() => unmatched.push(Unmatched {
+                lot: 1,
+                column: cb.header.clone(),
+                why: "not in the other lot".into(),
+            }),
+            Some(ca) if cb.is_numeric() && !ca.is_numeric() => unmatched.push(Unmatched {
+                lot: 1,
+                column: cb.header.clone(),
+                why: format!("numeric here but text in \"{}\"", ca.header),
+            }),
+            _ => {}
+        }
+    }
+    if pairs.is_empty() {
+        return Err(PrepareError::NoCommonColumns(
+            a.provenance.file_name.clone(),
+            b.provenance.file_name.clone(),
+        ));
+    }
+    let describe = |name: &str| -> String {
+        let key = match_key(name);
+        let mut where_ = Vec::new();
+        for lot in lots {
+            match lot.columns.iter().find(|c| match_key(&c.name) == key || match_key(&c.header) == key) {
+                None => where_.push(format!("is not in \"{}\"", lot.provenance.file_name)),
+                Some(c) if !c.is_numeric() => {
+                    where_.push(format!("is text, not numeric, in \"{}\"", lot.provenance.file_name))
+                }
+                _ => {}
+            }
+        }
+        where_.join(" and ")
+    };
+    let is_named = |list: &[String], ia: usize| {
+        let ca = &a.columns[ia];
+        list.iter()
+            .any(|n| match_key(n) == match_key(&ca.name) || match_key(n) == match_key(&ca.header))
+    };
+    if let Some(only) = &selection.only {
+        for name in only {
+            let key = match_key(name);
+            let ok = pairs.iter().any(|&(ia, _)| {
+                match_key(&a.columns[ia].name) == key || match_key(&a.columns[ia].header) == key
+            });
+            if !ok {
+                return Err(PrepareError::UnknownCharacteristic {
+                    name: name.clone(),
+                    why: describe(name),
+                });
+            }
+        }
+        // Keep the order the user gave.
+        let mut ordered = Vec::new();
+        for name in only {
+            let key = match_key(name);
+            if let Some(&pair) = pairs.iter().find(|&&(ia, _)| {
+                match_key(&a.columns[ia].name) == key || match_key(&a.columns[ia].header) == key
+            }) && !ordered.contains(&pair)
+            {
+                ordered.push(pair);
+            }
+        }
+        for &(ia, _) in &pairs {
+            if !ordered.iter().any(|&(x, _)| x == ia) {
+                unmatched.push(Unmatched {
+                    lot: 0,
+                    column: a.columns[ia].header.clone(),
+                    why: "not selected".into(),
+                });
+            }
+        }
+        pairs = ordered;
+    }
+    for name in &selection.exclude {
+        let key = match_key(name);
+        let known = pairs.iter().any(|&(ia, _)| {
+            match_key(&a.columns[ia].name) == key || match_key(&a.columns[ia].header) == key
+        });
+        if !known {
+            return Err(PrepareError::UnknownCharacteristic {
+                name: name.clone(),
+                why: describe(name),
+            });
+        }
+    }
+    pairs.retain(|&(ia, _)| {
+        let out = is_named(&selection.exclude, ia);
+        if out {
+            unmatched.push(Unmatched {
+                lot: 0,
+                column: a.columns[ia].header.clone(),
+                why: "excluded".into(),
+            });
+        }
+        !out
+    });
+    // A column with no values in a lot cannot be compared.
+    pairs.retain(|&(ia, ib)| {
+        for (lot, idx) in [(0usize, ia), (1usize, ib)] {
+            let col = &lots[lot].columns[idx];
+            if col.missing == lots[lot].len() {
+                unmatched.push(Unmatched {
+                    lot,
+                    column: col.header.clone(),
+                    why: "every cell is missing".into(),
+                });
+                return false;
+            }
+        }
+        true
+    });
+    if pairs.is_empty() {
+        return Err(PrepareError::NothingSelected);
+    }
+    let mut units = Vec::with_capacity(pairs.len());
+    for &(ia, ib) in &pairs {
+        let (ua, ub) = (&a.columns[ia].unit, &b.columns[ib].unit);
+        if let (Some(x), Some(y)) = (ua, ub)
+            && normalize_unit(x) != normalize_unit(y)
+        {
+            return Err(PrepareError::UnitMismatch {
+                name: a.columns[ia].name.clone(),
+                unit_a: x.clone(),
+                unit_b: y.clone(),
+                file_a: a.provenance.file_name.clone(),
+                file_b: b.provenance.file_name.clone(),
+            });
+        }
+        units.push(ua.clone().or_else(|| ub.clone()));
+    }
+    let characteristics: Vec<String> = pairs.iter().map(|&(ia, _)| a.columns[ia].name.clone()).collect();
+    let build = |lot: &Lot, idx: Vec<usize>| -> PreparedLot {
+        let cols: Vec<&[f64]> = idx
+            .iter()
+            .map(|&i| match &lot.columns[i].data {
+                ColumnData::Numeric(v) => v.as_slice(),
+                ColumnData::Text(_) => &[],
+            })
+            .collect();
+        let n = lot.len();
+        let kept: Vec<usize> = (0..n).filter(|&r| cols.iter().all(|c| !c[r].is_nan())).collect();
+        let missing: Vec<usize> = idx.iter().map(|&i| lot.columns[i].missing).collect();
+        let mut data = DMatrix::zeros(kept.len(), cols.len());
+        for (k, c) in cols.iter().enumerate() {
+            let mut dst = data.column_mut(k);
+            for (d, &r) in dst.iter_mut().zip(&kept) {
+                *d = c[r];
+            }
+        }
+        PreparedLot {
+            name: lot.name.clone(),
+            n_read: n,
+            n_excluded: n - kept.len(),
+            kept,
+            data,
+            missing,
+        }
+    };
+    Ok(Prepared {
+        characteristics,
+        units,
+        lots: [
+            build(a, pairs.iter().map(|p| p.0).collect()),
+            build(b, pairs.iter().map(|p| p.1).collect()),
+        ],
+        unmatched,
+    })
+}
+
+fn normalize_unit(u: &str) -> String {
+    u.trim()
+        .to_lowercase()
+        .replace(['µ', 'μ'], "u")
+        .replace(' ', "")
+}

@@ -1,0 +1,9 @@
+//! lotshift: decide whether two production lots differ on several characteristics at once,
+//! and why (two-sample Hotelling T² with follow-up intervals and the discriminant direction).
+//!
+//! The engine ([`stats`], [`analysis`]) is pure; [`data`] reads lot files; [`report`] writes
+//! the comparison record; [`cli`] and [`gui`] are thin shells around them.
+
+pub mod analysis;
+pub mod data;
+pub mod stats;

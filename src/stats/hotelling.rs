@@ -1,0 +1,299 @@
+//! Two-sample Hotelling T², its F form, follow-up intervals and the discriminant direction
+//! (Hotelling 1931; Johnson & Wichern, Applied Multivariate Statistical Analysis, 6th ed.,
+//! §6.3 and §11.3).
+//!
+//! # Formula
+//! `Sp = ((n1−1)S1 + (n2−1)S2)/(N−2)`, `T² = n1 n2/N · dᵀ Sp⁻¹ d`,
+//! `F = (N−p−1)/((N−2)p) · T²` on `(p, N−p−1)` df, `d = x̄1 − x̄2`.
+//! Solves use the Cholesky factor of the pooled *correlation* matrix `R = D⁻¹ Sp D⁻¹`
+//! (`D` the pooled standard deviations), so characteristics in very different units do not
+//! spoil the conditioning; no inverse is formed.
+
+use nalgebra::{Cholesky, DMatrix, DVector, Dyn, SymmetricEigen};
+
+use super::dist;
+use super::moments::LotMoments;
+use super::EngineError;
+
+/// Condition number of the pooled correlation matrix above which results carry a warning
+/// (common practice: about log10(cond) of the 16 significant digits are lost).
+pub const CONDITION_WARN: f64 = 1e6;
+/// Condition number above which the pooled covariance counts as singular.
+pub const CONDITION_SINGULAR: f64 = 1e13;
+/// A pooled standard deviation below this fraction of the data's spread counts as zero.
+pub const CONSTANT_RELATIVE: f64 = 1e-10;
+
+/// The pooled covariance with its factorization and conditioning.
+#[derive(Debug, Clone)]
+pub struct Pooled {
+    /// Pooled covariance `Sp`.
+    pub covariance: DMatrix<f64>,
+    /// Pooled standard deviations `sqrt(Sp_kk)`.
+    pub sd: DVector<f64>,
+    /// Cholesky factor of the pooled correlation matrix.
+    chol: Cholesky<f64, Dyn>,
+    /// Condition number (ratio of extreme eigenvalues) of the pooled correlation matrix.
+    pub condition: f64,
+    /// Characteristics that load on the weakest direction (for warnings), most involved first.
+    pub weakest: Vec<usize>,
+}
+
+impl Pooled {
+    /// Pools two lots' cross-products and checks that the result can be solved with.
+    pub fn new(m1: &LotMoments, m2: &LotMoments, names: &[String]) -> Result<Self, EngineError> {
+        let p = m1.dim();
+        let n_total = m1.n + m2.n;
+        if n_total < p + 2 {
+            return Err(EngineError::TooFewUnits {
+                n1: m1.n,
+                n2: m2.n,
+                p,
+            });
+        }
+        let covariance = (&m1.ssp + &m2.ssp) / (n_total - 2) as f64;
+        let sd = DVector::from_iterator(p, (0..p).map(|k| covariance[(k, k)].max(0.0).sqrt()));
+        let constant: Vec<String> = (0..p)
+            .filter(|&k| {
+                let scale = m1.spread_scale[k].max(m2.spread_scale[k]);
+                !(sd[k] > CONSTANT_RELATIVE * scale) || sd[k] == 0.0
+            })
+            .map(|k| names[k].clone())
+            .collect();
+        if !constant.is_empty() {
+            return Err(EngineError::Constant { names: constant });
+        }
+        let mut corr = covariance.clone();
+        for i in 0..p {
+            for j in 0..p {
+                corr[(i, j)] /= sd[i] * sd[j];
+            }
+        }
+        let eig = SymmetricEigen::new(corr.clone());
+        let (mut imin, mut imax) = (0, 0);
+        for k in 0..p {
+            if eig.eigenvalues[k] < eig.eigenvalues[imin] {
+                imin = k;
+            }
+            if eig.eigenvalues[k] > eig.eigenvalues[imax] {
+                imax = k;
+            }
+        }
+        let lmin = eig.eigenvalues[imin];
+        let lmax = eig.eigenvalues[imax];
+        let condition = if lmin > 0.0 { lmax / lmin } else { f64::INFINITY };
+        let v = eig.eigenvectors.column(imin);
+        let vmax = v.amax();
+        let mut weakest: Vec<usize> = (0..p).filter(|&k| v[k].abs() >= 0.2 * vmax).collect();
+        weakest.sort_by(|&a, &b| v[b].abs().total_cmp(&v[a].abs()));
+        let chol = match Cholesky::new(corr) {
+            Some(c) if condition <= CONDITION_SINGULAR => c,
+            _ => {
+                return Err(EngineError::Collinear {
+                    names: weakest.iter().map(|&k| names[k].clone()).collect(),
+                    condition,
+                });
+            }
+        };
+        Ok(Pooled {
+            covariance,
+            sd,
+            chol,
+            condition,
+            weakest,
+        })
+    }
+
+    /// `R⁻¹ v` for the pooled correlation matrix.
+    pub fn solve_corr(&self, v: &DVector<f64>) -> DVector<f64> {
+        self.chol.solve(v)
+    }
+
+    /// `Sp⁻¹ v`.
+    pub fn solve(&self, v: &DVector<f64>) -> DVector<f64> {
+        let z = v.component_div(&self.sd);
+        self.chol.solve(&z).component_div(&self.sd)
+    }
+
+    /// Diagonal of `R⁻¹` (needed for each characteristic's unique contribution), from the
+    /// triangular factor: `(R⁻¹)_kk = ‖L⁻¹ e_k‖²`.
+    pub fn corr_inverse_diagonal(&self) -> DVector<f64> {
+        let p = self.sd.len();
+        let l = self.chol.l();
+        let mut out = DVector::zeros(p);
+        for k in 0..p {
+            let mut e = DVector::zeros(p);
+            e[k] = 1.0;
+            if let Some(w) = l.solve_lower_triangular(&e) {
+                out[k] = w.norm_squared();
+            }
+        }
+        out
+    }
+}
+
+/// The test and everything derived from the pooled solve.
+#[derive(Debug, Clone)]
+pub struct TwoSampleT2 {
+    /// `d = x̄1 − x̄2`.
+    pub difference: DVector<f64>,
+    /// Hotelling's T².
+    pub t2: f64,
+    /// F statistic.
+    pub f: f64,
+    /// Numerator df, `p`.
+    pub df1: f64,
+    /// Denominator df, `N − p − 1`.
+    pub df2: f64,
+    /// `P(F > f)`.
+    pub p_value: f64,
+    /// Critical F at alpha.
+    pub critical_f: f64,
+    /// Critical T² at alpha (`c²`).
+    pub critical_t2: f64,
+    /// Mahalanobis `D² = dᵀ Sp⁻¹ d`.
+    pub mahalanobis_d2: f64,
+    /// Raw discriminant coefficients `a = Sp⁻¹ d`.
+    pub coefficients: DVector<f64>,
+    /// Standardized coefficients `a_k sqrt(Sp_kk)`.
+    pub standardized: DVector<f64>,
+    /// Pooled within-lot structure correlations `d_k / (sqrt(Sp_kk) D)`.
+    pub structure: DVector<f64>,
+    /// Drop in T² when characteristic k is left out: `n1 n2/N · b_k² / (R⁻¹)_kk`.
+    pub t2_drop: DVector<f64>,
+}
+
+/// Runs the two-sample T² on pooled moments at level `alpha`.
+pub fn two_sample(m1: &LotMoments, m2: &LotMoments, pooled: &Pooled, alpha: f64) -> TwoSampleT2 {
+    let p = m1.dim();
+    let (n1, n2) = (m1.n as f64, m2.n as f64);
+    let n = n1 + n2;
+    let difference = &m1.offset - &m2.offset;
+    let z = difference.component_div(&pooled.sd);
+    let standardized = pooled.solve_corr(&z);
+    let coefficients = standardized.component_div(&pooled.sd);
+    let d2 = z.dot(&standardized).max(0.0);
+    let scale = n1 * n2 / n;
+    let t2 = scale * d2;
+    let df1 = p as f64;
+    let df2 = n - df1 - 1.0;
+    let f = (df2 / ((n - 2.0) * df1)) * t2;
+    let p_value = dist::f_sf(f, df1, df2);
+    let critical_f = dist::f_isf(alpha, df1, df2);
+    let critical_t2 = (n - 2.0) * df1 / df2 * critical_f;
+    let d = d2.sqrt();
+    let structure = if d > 0.0 {
+        z / d
+    } else {
+        DVector::zeros(p)
+    };
+    let rinv_diag = pooled.corr_inverse_diagonal();
+    let t2_drop = DVector::from_iterator(
+        p,
+        (0..p).map(|k| scale * standardized[k] * standardized[k] / rinv_diag[k]),
+    );
+    TwoSampleT2 {
+        difference,
+        t2,
+        f,
+        df1,
+        df2,
+        p_value,
+        critical_f,
+        critical_t2,
+        mahalanobis_d2: d2,
+        coefficients,
+        standardized,
+        structure,
+        t2_drop,
+    }
+}
+
+/// Follow-up intervals for one characteristic's mean difference.
+#[derive(Debug, Clone, Copy)]
+pub struct IntervalSet {
+    /// Standard error `sqrt((1/n1 + 1/n2) Sp_kk)`.
+    pub standard_error: f64,
+    /// T²-based simultaneous interval.
+    pub simultaneous: [f64; 2],
+    /// Bonferroni interval (`t_{N−2}(alpha/(2p))`).
+    pub bonferroni: [f64; 2],
+    /// One-at-a-time interval (`t_{N−2}(alpha/2)`).
+    pub one_at_a_time: [f64; 2],
+}
+
+/// Simultaneous, Bonferroni and one-at-a-time intervals for every characteristic.
+pub fn intervals(
+    m1: &LotMoments,
+    m2: &LotMoments,
+    pooled: &Pooled,
+    test: &TwoSampleT2,
+    alpha: f64,
+) -> Vec<IntervalSet> {
+    let p = m1.dim();
+    let (n1, n2) = (m1.n as f64, m2.n as f64);
+    let df = n1 + n2 - 2.0;
+    let c = test.critical_t2.sqrt();
+    let t_bonf = dist::t_isf2(alpha / p as f64, df);
+    let t_one = dist::t_isf2(alpha, df);
+    (0..p)
+        .map(|k| {
+            let se = ((1.0 / n1 + 1.0 / n2) * pooled.covariance[(k, k)]).sqrt();
+            let d = test.difference[k];
+            IntervalSet {
+                standard_error: se,
+                simultaneous: [d - c * se, d + c * se],
+                bonferroni: [d - t_bonf * se, d + t_bonf * se],
+                one_at_a_time: [d - t_one * se, d + t_one * se],
+            }
+        })
+        .collect()
+}
+
+/// Univariate two-sample t tests for one characteristic.
+#[derive(Debug, Clone, Copy)]
+pub struct UnivariateTests {
+    /// Pooled-variance t.
+    pub pooled_t: f64,
+    /// Its df, `N − 2`.
+    pub pooled_df: f64,
+    /// Two-sided p-value.
+    pub pooled_p: f64,
+    /// Welch's t.
+    pub welch_t: f64,
+    /// Welch–Satterthwaite df.
+    pub welch_df: f64,
+    /// Two-sided p-value.
+    pub welch_p: f64,
+}
+
+/// Pooled and Welch t tests of characteristic `k`.
+pub fn univariate(m1: &LotMoments, m2: &LotMoments, pooled: &Pooled, k: usize) -> UnivariateTests {
+    let (n1, n2) = (m1.n as f64, m2.n as f64);
+    let d = m1.offset[k] - m2.offset[k];
+    let pooled_df = n1 + n2 - 2.0;
+    let pooled_t = d / ((1.0 / n1 + 1.0 / n2) * pooled.covariance[(k, k)]).sqrt();
+    let v1 = if m1.n > 1 {
+        m1.ssp[(k, k)] / (n1 - 1.0) / n1
+    } else {
+        f64::NAN
+    };
+    let v2 = if m2.n > 1 {
+        m2.ssp[(k, k)] / (n2 - 1.0) / n2
+    } else {
+        f64::NAN
+    };
+    let welch_t = d / (v1 + v2).sqrt();
+    let welch_df = (v1 + v2).powi(2) / (v1 * v1 / (n1 - 1.0) + v2 * v2 / (n2 - 1.0));
+    UnivariateTests {
+        pooled_t,
+        pooled_df,
+        pooled_p: dist::t_sf2(pooled_t, pooled_df),
+        welch_t,
+        welch_df,
+        welch_p: if welch_t.is_finite() && welch_df.is_finite() {
+            dist::t_sf2(welch_t, welch_df)
+        } else {
+            f64::NAN
+        },
+    }
+}
