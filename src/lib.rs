@@ -5,5 +5,7 @@
 //! the comparison record; [`cli`] and [`gui`] are thin shells around them.
 
 pub mod analysis;
+pub mod cli;
 pub mod data;
+pub mod report;
 pub mod stats;

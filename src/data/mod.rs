@@ -352,3 +352,57 @@ mod tests {
         assert_eq!(match_key(" Bore  Diameter"), "borediameter");
     }
 }
+
+/// Loads the two lots of a comparison: two files, or one file split by a lot column.
+/// Two files are read in parallel.
+///
+/// # Errors
+/// Any file's [`LoadError`]; a wrong number of files for the split choice.
+pub fn load_two(
+    files: &[std::path::PathBuf],
+    split_by: Option<&str>,
+    lots: Option<[&str; 2]>,
+    options: &LoadOptions,
+) -> Result<[Lot; 2], LoadError> {
+    match (files, split_by) {
+        ([one], Some(column)) => {
+            let mut opts = options.clone();
+            opts.labels.push(column.to_string());
+            let lot = load(one, &opts)?;
+            split_lot(&lot, column, lots)
+        }
+        ([a, b], None) => {
+            let (ra, rb) = std::thread::scope(|s| {
+                let ha = s.spawn(|| load(a, options));
+                let rb = load(b, options);
+                let ra = ha.join().unwrap_or_else(|_| {
+                    Err(LoadError::new(
+                        &a.display().to_string(),
+                        LoadErrorKind::Io("the reader stopped unexpectedly".into()),
+                    ))
+                });
+                (ra, rb)
+            });
+            Ok([ra?, rb?])
+        }
+        ([one], None) => Err(LoadError::new(
+            &one.display().to_string(),
+            LoadErrorKind::LotValues {
+                why: "one file needs a lot column to split it into two lots (--split-by COLUMN)"
+                    .into(),
+                values: Vec::new(),
+            },
+        )),
+        ([a, _], Some(_)) => Err(LoadError::new(
+            &a.display().to_string(),
+            LoadErrorKind::LotValues {
+                why: "a lot column splits one file; with two files leave out --split-by".into(),
+                values: Vec::new(),
+            },
+        )),
+        _ => Err(LoadError::new(
+            "",
+            LoadErrorKind::Io("give two lot files, or one file and a lot column".into()),
+        )),
+    }
+}

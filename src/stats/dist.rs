@@ -29,9 +29,13 @@ fn stirling_correction(x: f64) -> f64 {
                     + r2 * (1.0 / 1188.0 + r2 * (-691.0 / 360_360.0 + r2 * (1.0 / 156.0)))))))
 }
 
-/// `ln[x^a y^b / B(a, b)]` where `y = 1 − x` is supplied separately to keep its digits.
-fn ln_beta_front(a: f64, b: f64, x: f64, y: f64) -> f64 {
+/// `ln[x^a (1−x)^b / B(a, b)]`, with `1 − x` and its logarithm taken from `x` itself so the
+/// prefactor and the continued fraction describe the same point.
+fn ln_beta_front(a: f64, b: f64, x: f64) -> f64 {
     let (small, large) = (a.min(b), a.max(b));
+    let y = 1.0 - x;
+    let ln_x = x.ln();
+    let ln_y = (-x).ln_1p();
     if small >= 10.0 {
         let s = a + b;
         a * ((x * b - y * a) / a).ln_1p() + b * ((y * a - x * b) / b).ln_1p()
@@ -48,15 +52,16 @@ fn ln_beta_front(a: f64, b: f64, x: f64, y: f64) -> f64 {
             + stirling_correction(large)
             - stirling_correction(s);
         let ln_b = ln_gamma(small) + diff;
-        a * x.ln() + b * y.ln() - ln_b
+        a * ln_x + b * ln_y - ln_b
     } else {
         let ln_b = ln_gamma(a) + ln_gamma(b) - ln_gamma(a + b);
-        a * x.ln() + b * y.ln() - ln_b
+        a * ln_x + b * ln_y - ln_b
     }
 }
 
-/// Continued fraction for the incomplete beta function (modified Lentz).
-fn beta_cf(a: f64, b: f64, x: f64) -> f64 {
+/// Continued fraction for the incomplete beta function (modified Lentz); `None` when it has
+/// not converged within its term budget.
+fn beta_cf(a: f64, b: f64, x: f64) -> Option<f64> {
     const TINY: f64 = 1e-300;
     const EPS: f64 = 1e-16;
     let qab = a + b;
@@ -98,10 +103,10 @@ fn beta_cf(a: f64, b: f64, x: f64) -> f64 {
         let del = d * c;
         h *= del;
         if (del - 1.0).abs() <= EPS {
-            break;
+            return Some(h);
         }
     }
-    h
+    None
 }
 
 /// Regularized incomplete beta function: returns `(I_x(a, b), 1 − I_x(a, b))`, each with
@@ -113,12 +118,39 @@ pub fn inc_beta(a: f64, b: f64, x: f64, y: f64) -> (f64, f64) {
     if y <= 0.0 {
         return (1.0, 0.0);
     }
-    if x < (a + 1.0) / (a + b + 2.0) {
-        let lower = (ln_beta_front(a, b, x, y).exp() * beta_cf(a, b, x) / a).min(1.0);
-        (lower, 1.0 - lower)
+    let lower_at = |x: f64| beta_cf(a, b, x).map(|cf| (ln_beta_front(a, b, x).exp() * cf / a).min(1.0));
+    let upper_at = |y: f64| beta_cf(b, a, y).map(|cf| (ln_beta_front(b, a, y).exp() * cf / b).min(1.0));
+    // The fraction converges fastest on the side of (a + 1)/(a + b + 2) where the variable
+    // lies, and gives the smaller tail with full relative precision. But a variable near 1
+    // has lost its low digits to rounding, and with large a or b the result is sensitive to
+    // them: then use the other side's (small, exact) variable when it lies close to the
+    // switch point (the fraction still converges well there) and its complement keeps three
+    // digits or more.
+    let natural_lower = x < (a + 1.0) / (a + b + 2.0);
+    if natural_lower {
+        if x > 0.5
+            && y < 2.0 * (b + 1.0) / (a + b + 2.0)
+            && let Some(upper) = upper_at(y)
+            && upper <= 0.999
+        {
+            return (1.0 - upper, upper);
+        }
+        match lower_at(x) {
+            Some(lower) => (lower, 1.0 - lower),
+            None => upper_at(y).map_or((f64::NAN, f64::NAN), |u| (1.0 - u, u)),
+        }
     } else {
-        let upper = (ln_beta_front(b, a, y, x).exp() * beta_cf(b, a, y) / b).min(1.0);
-        (1.0 - upper, upper)
+        if y > 0.5
+            && x < 2.0 * (a + 1.0) / (a + b + 2.0)
+            && let Some(lower) = lower_at(x)
+            && lower <= 0.999
+        {
+            return (lower, 1.0 - lower);
+        }
+        match upper_at(y) {
+            Some(upper) => (1.0 - upper, upper),
+            None => lower_at(x).map_or((f64::NAN, f64::NAN), |l| (l, 1.0 - l)),
+        }
     }
 }
 

@@ -1,0 +1,38 @@
+//! The comparison record (JSON, versioned), its readable text form, and safe writing.
+
+mod record;
+mod text;
+
+pub use record::{LotRecord, Record, Software, CAUTION, SCHEMA};
+pub use text::render_text;
+
+use std::io::Write as _;
+use std::path::Path;
+
+/// Writes `bytes` to `path` atomically: a temporary file in the same folder, flushed to disk,
+/// then renamed over the target. A failure leaves no partial file and the old file intact.
+///
+/// # Errors
+/// Any I/O error, with the path in the message.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
+        _ => std::path::PathBuf::from("."),
+    };
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_else(|| "output".into());
+    let tmp = dir.join(format!(".{name}.{}.tmp", std::process::id()));
+    let result = (|| {
+        let mut f = std::fs::File::create(&tmp)?;
+        f.write_all(bytes)?;
+        f.sync_all()?;
+        drop(f);
+        std::fs::rename(&tmp, path)
+    })();
+    if result.is_err() {
+        let _ = std::fs::remove_file(&tmp);
+    }
+    result.map_err(|e| std::io::Error::new(e.kind(), format!("{}: {e}", path.display())))
+}

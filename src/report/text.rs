@@ -1,0 +1,151 @@
+//! The readable text form of a comparison, for the terminal.
+
+use std::fmt::Write as _;
+
+use crate::analysis::{format_p, format_sig, Comparison};
+use crate::data::Prepared;
+
+use super::CAUTION;
+
+fn unit_suffix(u: &Option<String>) -> String {
+    u.as_ref().map(|u| format!(" ({u})")).unwrap_or_default()
+}
+
+/// Renders a comparison as plain text.
+pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]) -> String {
+    let mut s = String::new();
+    let h = &c.hotelling;
+    let _ = writeln!(s, "lotshift comparison (difference = first lot minus second lot)");
+    for (i, lot) in c.lots.iter().enumerate() {
+        let extra = prepared
+            .map(|p| {
+                let pl = &p.lots[i];
+                format!(", {} read, {} left out for missing cells", pl.n_read, pl.n_excluded)
+            })
+            .unwrap_or_default();
+        let _ = writeln!(
+            s,
+            "  lot {}: \"{}\" from {} — {} units used{}",
+            i + 1,
+            lot.name,
+            files[i],
+            lot.n,
+            extra
+        );
+    }
+    if let Some(p) = prepared {
+        for u in &p.unmatched {
+            let _ = writeln!(
+                s,
+                "  not compared: \"{}\" in lot {} ({})",
+                u.column,
+                u.lot + 1,
+                u.why
+            );
+        }
+    }
+    let _ = writeln!(s, "\nVerdict\n  {}", c.verdict);
+    for w in &c.warnings {
+        let _ = writeln!(s, "  warning: {w}");
+    }
+    let _ = writeln!(s, "\nHotelling's two-sample T² (alpha {})", c.alpha);
+    let _ = writeln!(s, "  T²            {}", format_sig(h.t2, 6));
+    let _ = writeln!(s, "  F             {}  on ({}, {}) df", format_sig(h.f, 6), h.df1, h.df2);
+    let _ = writeln!(s, "  p-value       {}", format_p(h.p_value));
+    let _ = writeln!(s, "  critical T²   {}", format_sig(h.critical_t2, 6));
+    let _ = writeln!(s, "  critical F    {}", format_sig(h.critical_f, 6));
+    let _ = writeln!(s, "  Mahalanobis D² {}", format_sig(h.mahalanobis_d2, 6));
+
+    let _ = writeln!(s, "\nPer characteristic");
+    let _ = writeln!(
+        s,
+        "  {:<22} {:>12} {:>12} {:>11} {:>10} {:>9} {:>9}",
+        "characteristic", "mean lot 1", "mean lot 2", "difference", "std diff", "t p", "Welch p"
+    );
+    for r in &c.per_characteristic {
+        let _ = writeln!(
+            s,
+            "  {:<22} {:>12} {:>12} {:>11} {:>10} {:>9} {:>9}",
+            format!("{}{}", r.characteristic, unit_suffix(&r.unit)),
+            format_sig(r.lots[0].mean, 6),
+            format_sig(r.lots[1].mean, 6),
+            format_sig(r.difference, 4),
+            format_sig(r.standardized_difference, 3),
+            format_p(r.pooled_p),
+            format_p(r.welch_p)
+        );
+    }
+    let _ = writeln!(
+        s,
+        "\nIntervals for the mean difference at {}% confidence (* excludes zero)",
+        format_sig(100.0 * (1.0 - c.alpha), 4)
+    );
+    let _ = writeln!(
+        s,
+        "  {:<22} {:>11} {:>25} {:>25} {:>25}",
+        "characteristic", "difference", "simultaneous (T²)", "Bonferroni", "one at a time"
+    );
+    let iv = |x: [f64; 2], flag: bool| {
+        format!(
+            "[{}, {}]{}",
+            format_sig(x[0], 4),
+            format_sig(x[1], 4),
+            if flag { "*" } else { " " }
+        )
+    };
+    for i in &c.intervals {
+        let _ = writeln!(
+            s,
+            "  {:<22} {:>11} {:>25} {:>25} {:>25}",
+            i.characteristic,
+            format_sig(i.difference, 4),
+            iv(i.simultaneous, i.excludes_zero[0]),
+            iv(i.bonferroni, i.excludes_zero[1]),
+            iv(i.one_at_a_time, i.excludes_zero[2])
+        );
+    }
+    let d = &c.discriminant;
+    let _ = writeln!(s, "\nWhat drives the shift (discriminant direction)");
+    let _ = writeln!(
+        s,
+        "  {:<22} {:>12} {:>13} {:>12} {:>14}",
+        "characteristic", "T² drop", "standardized", "structure", "raw coef"
+    );
+    for r in &c.ranking {
+        let k = c
+            .characteristics
+            .iter()
+            .position(|n| n == &r.characteristic)
+            .unwrap_or(0);
+        let _ = writeln!(
+            s,
+            "  {:<22} {:>12} {:>13} {:>12} {:>14}",
+            r.characteristic,
+            format_sig(r.t2_drop, 4),
+            format_sig(d.standardized[k], 4),
+            format_sig(d.structure[k], 3),
+            format_sig(d.coefficients[k], 4)
+        );
+    }
+    if let Some(a) = d.apparent_misclassified {
+        let n = (c.lots[0].n + c.lots[1].n) as f64;
+        let _ = writeln!(
+            s,
+            "  misclassified by the rule: {} of lot 1, {} of lot 2 (apparent rate {:.1}%)",
+            a[0],
+            a[1],
+            100.0 * (a[0] + a[1]) as f64 / n
+        );
+    }
+    if let (Some(l), Some(rate)) = (d.leave_one_out_misclassified, d.leave_one_out_rate) {
+        let _ = writeln!(
+            s,
+            "  misclassified with each unit held out: {} of lot 1, {} of lot 2 (rate {:.1}%)",
+            l[0],
+            l[1],
+            100.0 * rate
+        );
+    }
+    let _ = writeln!(s, "\n{CAUTION}");
+    s
+}
