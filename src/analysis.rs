@@ -510,6 +510,12 @@ pub fn format_p(p: f64) -> String {
     }
 }
 
+/// Confidence level `1 − alpha` as a percentage without trailing zeros ("95", "99.9").
+pub fn format_confidence(alpha: f64) -> String {
+    let v = ((1.0 - alpha) * 100.0 * 1e6).round() / 1e6;
+    format!("{v}")
+}
+
 /// Formats a number with `sig` significant digits, switching to exponent form when needed.
 pub fn format_sig(x: f64, sig: usize) -> String {
     if !x.is_finite() {

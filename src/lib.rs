@@ -7,5 +7,6 @@
 pub mod analysis;
 pub mod cli;
 pub mod data;
+pub mod gui;
 pub mod report;
 pub mod stats;

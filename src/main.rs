@@ -8,6 +8,6 @@ fn main() -> ExitCode {
     let cli = lotshift::cli::Cli::parse();
     match cli.command {
         Some(command) => lotshift::cli::run(command),
-        None => { let _ = (cli.files, cli.screenshot, cli.view); std::process::ExitCode::SUCCESS }
+        None => lotshift::gui::run(cli.files, cli.screenshot, cli.view),
     }
 }

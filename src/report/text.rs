@@ -2,7 +2,7 @@
 
 use std::fmt::Write as _;
 
-use crate::analysis::{format_p, format_sig, Comparison};
+use crate::analysis::{format_confidence, format_p, format_sig, Comparison};
 use crate::data::Prepared;
 
 use super::CAUTION;
@@ -78,7 +78,7 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
     let _ = writeln!(
         s,
         "\nIntervals for the mean difference at {}% confidence (* excludes zero)",
-        format_sig(100.0 * (1.0 - c.alpha), 4)
+        format_confidence(c.alpha)
     );
     let _ = writeln!(
         s,

@@ -1,0 +1,851 @@
+//! The window's state and layout: lot slots, characteristic list, settings, the view tabs,
+//! background work and messages.
+
+use std::collections::BTreeSet;
+use std::path::PathBuf;
+use std::sync::{Arc, Mutex};
+
+use egui::{Color32, Key, KeyboardShortcut, Modifiers, RichText};
+use serde::{Deserialize, Serialize};
+
+use crate::analysis::{format_p, format_sig, Settings};
+use crate::data::{self, match_key, ColumnData, Lot, Selection};
+
+use super::shown::Shown;
+use super::worker::{Outcome, Slot, Source, Worker};
+use super::{characteristics, direction, intervals, overview, pairs};
+
+/// The bundled sample lots (invented; see sample-lots/README.md).
+pub const SAMPLE_REFERENCE: (&str, &[u8]) = (
+    "sample-lots/reference-route-a.csv",
+    include_bytes!("../../sample-lots/reference-route-a.csv"),
+);
+/// The bundled candidate lot.
+pub const SAMPLE_CANDIDATE: (&str, &[u8]) = (
+    "sample-lots/candidate-route-b.csv",
+    include_bytes!("../../sample-lots/candidate-route-b.csv"),
+);
+
+/// Colour of the reference lot in every plot.
+pub const REFERENCE_COLOR: Color32 = Color32::from_rgb(46, 112, 196);
+/// Colour of the candidate lot in every plot.
+pub const CANDIDATE_COLOR: Color32 = Color32::from_rgb(214, 110, 32);
+
+/// Shortcut: open lot files.
+pub const OPEN: KeyboardShortcut = KeyboardShortcut::new(Modifiers::COMMAND, Key::O);
+/// Shortcut: swap reference and candidate.
+pub const SWAP: KeyboardShortcut = KeyboardShortcut::new(Modifiers::COMMAND, Key::R);
+/// Shortcut: export the record.
+pub const EXPORT: KeyboardShortcut = KeyboardShortcut::new(Modifiers::COMMAND, Key::E);
+
+/// The views, one per tab.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+pub enum View {
+    /// Verdict, test table, checks, caution.
+    #[default]
+    Overview,
+    /// Per-characteristic table.
+    Characteristics,
+    /// Interval chart.
+    Intervals,
+    /// Pairwise ellipses.
+    Pairs,
+    /// Discriminant direction.
+    Direction,
+}
+
+impl View {
+    /// All views in tab order.
+    pub const ALL: [View; 5] = [
+        View::Overview,
+        View::Characteristics,
+        View::Intervals,
+        View::Pairs,
+        View::Direction,
+    ];
+
+    /// Tab title.
+    pub fn title(self) -> &'static str {
+        match self {
+            View::Overview => "Verdict",
+            View::Characteristics => "Characteristics",
+            View::Intervals => "Intervals",
+            View::Pairs => "Pairs",
+            View::Direction => "Shift direction",
+        }
+    }
+
+    /// Parses a command-line view name.
+    pub fn from_name(name: &str) -> Option<View> {
+        match name.to_ascii_lowercase().as_str() {
+            "overview" | "verdict" => Some(View::Overview),
+            "characteristics" | "table" => Some(View::Characteristics),
+            "intervals" => Some(View::Intervals),
+            "pairs" | "ellipses" => Some(View::Pairs),
+            "direction" | "discriminant" => Some(View::Direction),
+            _ => None,
+        }
+    }
+}
+
+/// What persists between runs.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(default)]
+pub struct Saved {
+    /// Analysis settings.
+    pub settings: Settings,
+    /// Coverage of the data ellipses.
+    pub coverage: f64,
+    /// Open view.
+    pub view: View,
+    /// Recently opened files, newest first.
+    pub recent: Vec<String>,
+    /// Pair shown in the ellipse view (characteristic names).
+    pub pair: Option<[String; 2]>,
+    /// Show the grid of all pairs.
+    pub pair_grid: bool,
+    /// Draw the mean-difference ellipse as the shadow of the full T² region (else pair alone).
+    pub difference_shadow: bool,
+    /// Sort of the characteristics table: column and whether ascending.
+    pub table_sort: Option<(usize, bool)>,
+}
+
+impl Default for Saved {
+    fn default() -> Self {
+        Saved {
+            settings: Settings::default(),
+            coverage: 0.95,
+            view: View::Overview,
+            recent: Vec::new(),
+            pair: None,
+            pair_grid: true,
+            difference_shadow: true,
+            table_sort: None,
+        }
+    }
+}
+
+/// One file holding both lots, split by a lot column.
+pub struct Combined {
+    table: Arc<Lot>,
+    /// Text columns that can hold lots, with their distinct values.
+    candidates: Vec<(String, Vec<String>)>,
+    column: String,
+    values: [String; 2],
+}
+
+/// Request to render the window to a PNG and close.
+pub struct ScreenshotPlan {
+    path: PathBuf,
+    frames_ready: u32,
+    requested: bool,
+    started: std::time::Instant,
+    /// Outcome, set by the screenshot callback.
+    pub done: Arc<Mutex<Option<Result<(), String>>>>,
+}
+
+/// The application.
+pub struct LotshiftApp {
+    /// Persisted settings.
+    pub saved: Saved,
+    /// Reference and candidate lots as loaded.
+    pub slots: [Option<Arc<Lot>>; 2],
+    combined: Option<Combined>,
+    /// Match keys of characteristics the user unticked.
+    pub excluded: BTreeSet<String>,
+    /// Background worker.
+    pub worker: Worker,
+    /// The latest result.
+    pub shown: Option<Box<Shown>>,
+    /// The shown result matches the current lots, selection and settings.
+    pub shown_current: bool,
+    /// Why the latest run gave no result.
+    pub run_error: Option<String>,
+    /// Dismissible messages (file errors...).
+    pub messages: Vec<String>,
+    /// Short confirmations (export written...).
+    pub notice: Option<String>,
+    screenshot: Option<ScreenshotPlan>,
+}
+
+impl LotshiftApp {
+    /// A window with nothing loaded. `ctx` receives repaint requests from the worker.
+    pub fn new(ctx: Option<egui::Context>, saved: Saved) -> Self {
+        LotshiftApp {
+            saved,
+            slots: [None, None],
+            combined: None,
+            excluded: BTreeSet::new(),
+            worker: Worker::new(ctx),
+            shown: None,
+            shown_current: false,
+            run_error: None,
+            messages: Vec::new(),
+            notice: None,
+            screenshot: None,
+        }
+    }
+
+    /// Loads the bundled sample lots.
+    pub fn load_samples(&mut self) {
+        self.worker.load(
+            Slot::Both,
+            vec![
+                Source::Embedded(SAMPLE_REFERENCE.0, SAMPLE_REFERENCE.1),
+                Source::Embedded(SAMPLE_CANDIDATE.0, SAMPLE_CANDIDATE.1),
+            ],
+        );
+    }
+
+    /// Loads files into a slot.
+    pub fn load_paths(&mut self, slot: Slot, paths: Vec<PathBuf>) {
+        if paths.is_empty() {
+            return;
+        }
+        for p in paths.iter().rev() {
+            let s = p.display().to_string();
+            self.saved.recent.retain(|r| r != &s);
+            self.saved.recent.insert(0, s);
+        }
+        self.saved.recent.truncate(10);
+        self.worker.load(slot, paths.into_iter().map(Source::Path).collect());
+    }
+
+    /// Renders to `path` once the first result is drawn, then closes.
+    pub fn plan_screenshot(&mut self, path: PathBuf) {
+        self.screenshot = Some(ScreenshotPlan {
+            path,
+            frames_ready: 0,
+            requested: false,
+            started: std::time::Instant::now(),
+            done: Arc::new(Mutex::new(None)),
+        });
+    }
+
+    /// Outcome of the screenshot, once taken.
+    pub fn screenshot_result(&self) -> Option<Arc<Mutex<Option<Result<(), String>>>>> {
+        self.screenshot.as_ref().map(|s| s.done.clone())
+    }
+
+    fn selection(&self) -> Selection {
+        let Some(a) = &self.slots[0] else {
+            return Selection::default();
+        };
+        let exclude = a
+            .columns
+            .iter()
+            .filter(|c| c.is_numeric() && self.excluded.contains(&match_key(&c.name)))
+            .map(|c| c.name.clone())
+            .collect();
+        Selection { only: None, exclude }
+    }
+
+    /// Starts a new comparison of the current lots, selection and settings.
+    pub fn rerun(&mut self) {
+        if let [Some(a), Some(b)] = &self.slots {
+            let lots = [a.clone(), b.clone()];
+            let sel = self.selection();
+            self.shown_current = false;
+            self.worker.compare(lots, sel, self.saved.settings.clone());
+        }
+    }
+
+    fn resplit(&mut self) {
+        let Some(c) = &self.combined else { return };
+        match data::split_lot(&c.table, &c.column, Some([&c.values[0], &c.values[1]])) {
+            Ok([a, b]) => {
+                self.slots = [Some(Arc::new(a)), Some(Arc::new(b))];
+                self.rerun();
+            }
+            Err(e) => self.messages.push(e.to_string()),
+        }
+    }
+
+    /// Swaps reference and candidate.
+    pub fn swap(&mut self) {
+        if let Some(c) = &mut self.combined {
+            c.values.swap(0, 1);
+        }
+        self.slots.swap(0, 1);
+        self.rerun();
+    }
+
+    /// Applies finished background work.
+    pub fn absorb(&mut self, outcomes: Vec<Outcome>) {
+        for o in outcomes {
+            match o {
+                Outcome::Loaded { slot, result } => match result {
+                    Err(e) => self.messages.push(e),
+                    Ok(mut lots) => {
+                        match slot {
+                            Slot::Reference | Slot::Candidate => {
+                                let i = usize::from(slot == Slot::Candidate);
+                                self.combined = None;
+                                self.slots[i] = lots.pop().map(Arc::new);
+                            }
+                            Slot::Both => {
+                                self.combined = None;
+                                let b = lots.pop().map(Arc::new);
+                                let a = lots.pop().map(Arc::new);
+                                self.slots = [a, b];
+                            }
+                            Slot::Combined => {
+                                if let Some(table) = lots.pop() {
+                                    self.set_combined(table);
+                                }
+                                continue;
+                            }
+                        }
+                        self.rerun();
+                    }
+                },
+                Outcome::Compared { result, .. } => match result {
+                    Ok(s) => {
+                        self.shown = Some(s);
+                        self.shown_current = true;
+                        self.run_error = None;
+                    }
+                    Err(e) => {
+                        // Keep the previous result on screen, marked as not current.
+                        self.run_error = Some(e);
+                    }
+                },
+                Outcome::Picked { slot, paths } => self.load_paths(slot, paths),
+                Outcome::Exported(r) => match r {
+                    Ok(p) => self.notice = Some(format!("Record written to {}", p.display())),
+                    Err(e) => self.messages.push(e),
+                },
+            }
+        }
+    }
+
+    fn set_combined(&mut self, table: Lot) {
+        let mut candidates = Vec::new();
+        for c in &table.columns {
+            if let ColumnData::Text(t) = &c.data {
+                let mut values: Vec<String> = Vec::new();
+                for i in 0..t.len() {
+                    let v = t.get(i);
+                    if !v.is_empty() && !values.iter().any(|x| x == v) {
+                        values.push(v.to_string());
+                        if values.len() > 50 {
+                            break;
+                        }
+                    }
+                }
+                if (2..=50).contains(&values.len()) {
+                    candidates.push((c.header.clone(), values));
+                }
+            }
+        }
+        // Prefer a column whose name says it holds lots.
+        let hint = ["lot", "route", "batch", "group", "site", "line", "supplier"];
+        candidates.sort_by_key(|(name, _)| {
+            let n = name.to_lowercase();
+            !hint.iter().any(|h| n.contains(h))
+        });
+        let Some((column, values)) = candidates.first().cloned() else {
+            self.messages.push(format!(
+                "{}: no text column with between 2 and 50 distinct values to split the lots by; \
+                 the file is left unloaded",
+                table.provenance.path
+            ));
+            return;
+        };
+        self.combined = Some(Combined {
+            table: Arc::new(table),
+            candidates,
+            column,
+            values: [values[0].clone(), values[1].clone()],
+        });
+        self.resplit();
+    }
+
+    fn shortcuts(&mut self, ctx: &egui::Context) {
+        let (open, swap, export) = ctx.input_mut(|i| {
+            (
+                i.consume_shortcut(&OPEN),
+                i.consume_shortcut(&SWAP),
+                i.consume_shortcut(&EXPORT),
+            )
+        });
+        if open {
+            self.worker.pick(Slot::Both);
+        }
+        if swap {
+            self.swap();
+        }
+        if export {
+            self.export();
+        }
+        let dropped: Vec<PathBuf> = ctx.input(|i| {
+            i.raw
+                .dropped_files
+                .iter()
+                .map(|f| f.path().to_path_buf())
+                .collect()
+        });
+        match dropped.len() {
+            0 => {}
+            1 => {
+                let slot = if self.slots[0].is_none() {
+                    Slot::Reference
+                } else {
+                    Slot::Candidate
+                };
+                self.load_paths(slot, dropped);
+            }
+            _ => {
+                let mut d = dropped;
+                d.sort();
+                d.truncate(2);
+                self.load_paths(Slot::Both, d);
+            }
+        }
+    }
+
+    /// Opens the save dialog for the record.
+    pub fn export(&mut self) {
+        if let Some(s) = &self.shown {
+            let name = format!(
+                "comparison-{}-vs-{}.json",
+                sanitize(&s.comparison.lots[0].name),
+                sanitize(&s.comparison.lots[1].name)
+            );
+            self.worker.export(name, s.record.to_json());
+        }
+    }
+
+    /// The whole window inside `ui` (used by eframe and by the tests).
+    pub fn show(&mut self, ui: &mut egui::Ui) {
+        let ctx = ui.ctx().clone();
+        let outcomes = self.worker.poll();
+        self.absorb(outcomes);
+        self.shortcuts(&ctx);
+        egui::Panel::top("top").show(ui, |ui| self.top_ui(ui));
+        egui::Panel::left("lots")
+            .resizable(true)
+            .default_size(320.0)
+            .show(ui, |ui| {
+                egui::ScrollArea::vertical().show(ui, |ui| self.side_ui(ui));
+            });
+        egui::CentralPanel::default().show(ui, |ui| self.central_ui(ui));
+        if self.worker.busy() {
+            ctx.request_repaint_after(std::time::Duration::from_millis(50));
+        }
+        self.screenshot_step(&ctx);
+    }
+
+    fn top_ui(&mut self, ui: &mut egui::Ui) {
+        ui.horizontal_wrapped(|ui| {
+            ui.heading("lotshift");
+            ui.separator();
+            if ui
+                .button("Open lots…")
+                .on_hover_text(format!("Pick two lot files, reference first ({})", ui.ctx().format_shortcut(&OPEN)))
+                .clicked()
+            {
+                self.worker.pick(Slot::Both);
+            }
+            if ui
+                .button("Open one file with a lot column…")
+                .on_hover_text("Both lots in one file, told apart by a column such as lot or route")
+                .clicked()
+            {
+                self.worker.pick(Slot::Combined);
+            }
+            if ui
+                .add_enabled(self.slots.iter().all(Option::is_some), egui::Button::new("Swap lots"))
+                .on_hover_text(format!(
+                    "Make the candidate the reference and vice versa ({})",
+                    ui.ctx().format_shortcut(&SWAP)
+                ))
+                .clicked()
+            {
+                self.swap();
+            }
+            if ui
+                .add_enabled(self.shown.is_some(), egui::Button::new("Export record…"))
+                .on_hover_text(format!(
+                    "Save the comparison record as JSON ({})",
+                    ui.ctx().format_shortcut(&EXPORT)
+                ))
+                .clicked()
+            {
+                self.export();
+            }
+            if !self.saved.recent.is_empty() {
+                ui.menu_button("Recent", |ui| {
+                    let mut chosen = None;
+                    for r in &self.saved.recent {
+                        if ui.button(r).clicked() {
+                            chosen = Some(PathBuf::from(r));
+                        }
+                    }
+                    if let Some(p) = chosen {
+                        let slot = if self.slots[0].is_none() {
+                            Slot::Reference
+                        } else {
+                            Slot::Candidate
+                        };
+                        self.load_paths(slot, vec![p]);
+                    }
+                });
+            }
+            if ui.button("Sample lots").on_hover_text("Load the bundled, invented sample lots").clicked() {
+                self.load_samples();
+            }
+            ui.separator();
+            if let Some((stage, f)) = self.worker.progress() {
+                ui.add(
+                    egui::ProgressBar::new(f as f32)
+                        .desired_width(160.0)
+                        .text(format!("computing: {stage}")),
+                );
+                if ui.button("Cancel").clicked() {
+                    self.worker.cancel();
+                    self.run_error = Some("cancelled; the result shown is from the previous run".into());
+                }
+            } else if self.worker.busy() {
+                ui.spinner();
+                ui.label("reading files…");
+            }
+        });
+    }
+
+    fn lot_slot_ui(&mut self, ui: &mut egui::Ui, i: usize) {
+        let (title, color) = if i == 0 {
+            ("Reference lot", REFERENCE_COLOR)
+        } else {
+            ("Candidate lot", CANDIDATE_COLOR)
+        };
+        ui.horizontal(|ui| {
+            swatch(ui, color);
+            ui.strong(title);
+            if self.combined.is_none() && ui.small_button("Open…").clicked() {
+                self.worker.pick(if i == 0 { Slot::Reference } else { Slot::Candidate });
+            }
+        });
+        match &self.slots[i] {
+            None => {
+                ui.weak("no file: drop one here or use Open…");
+            }
+            Some(lot) => {
+                let p = &lot.provenance;
+                ui.label(format!("{} — \"{}\"", p.file_name, lot.name));
+                let used = self
+                    .shown
+                    .as_ref()
+                    .filter(|_| self.shown_current)
+                    .map(|s| &s.prepared.lots[i]);
+                match used {
+                    Some(pl) => {
+                        ui.label(format!("{} units used of {} read", pl.data.nrows(), pl.n_read));
+                        if pl.n_excluded > 0 {
+                            let why: Vec<String> = s_missing(self.shown.as_deref(), i);
+                            ui.label(format!("{} left out for missing cells ({})", pl.n_excluded, why.join(", ")))
+                                .on_hover_text("A unit with a missing cell in any compared characteristic is left out of the whole analysis (listwise).");
+                        }
+                    }
+                    None => {
+                        ui.label(format!("{} rows read", lot.len()));
+                    }
+                }
+                for n in &p.notes {
+                    ui.weak(n);
+                }
+            }
+        }
+    }
+
+    fn side_ui(&mut self, ui: &mut egui::Ui) {
+        self.lot_slot_ui(ui, 0);
+        ui.add_space(6.0);
+        self.lot_slot_ui(ui, 1);
+        let mut resplit = false;
+        if let Some(c) = &mut self.combined {
+            ui.add_space(6.0);
+            ui.strong(format!("Split {}", c.table.provenance.file_name));
+            let before = (c.column.clone(), c.values.clone());
+            egui::ComboBox::from_label("lot column")
+                .selected_text(c.column.clone())
+                .show_ui(ui, |ui| {
+                    for (name, _) in &c.candidates {
+                        ui.selectable_value(&mut c.column, name.clone(), name);
+                    }
+                });
+            let values = c
+                .candidates
+                .iter()
+                .find(|(n, _)| n == &c.column)
+                .map(|(_, v)| v.clone())
+                .unwrap_or_default();
+            if before.0 != c.column && values.len() >= 2 {
+                c.values = [values[0].clone(), values[1].clone()];
+            }
+            for (k, label) in ["reference value", "candidate value"].iter().enumerate() {
+                egui::ComboBox::from_label(*label)
+                    .selected_text(c.values[k].clone())
+                    .show_ui(ui, |ui| {
+                        for v in &values {
+                            ui.selectable_value(&mut c.values[k], v.clone(), v);
+                        }
+                    });
+            }
+            if (c.column.clone(), c.values.clone()) != before && c.values[0] != c.values[1] {
+                resplit = true;
+            }
+        }
+        if resplit {
+            self.resplit();
+        }
+        ui.separator();
+        self.characteristics_ui(ui);
+        ui.separator();
+        self.settings_ui(ui);
+    }
+
+    fn characteristics_ui(&mut self, ui: &mut egui::Ui) {
+        ui.strong("Characteristics");
+        let [Some(a), Some(b)] = &self.slots else {
+            ui.weak("load two lots to choose");
+            return;
+        };
+        let (a, b) = (a.clone(), b.clone());
+        let mut changed = false;
+        for c in a.columns.iter().filter(|c| c.is_numeric()) {
+            let key = match_key(&c.name);
+            let in_b = b
+                .columns
+                .iter()
+                .any(|x| x.is_numeric() && match_key(&x.name) == key);
+            if !in_b {
+                continue;
+            }
+            let mut on = !self.excluded.contains(&key);
+            let label = match &c.unit {
+                Some(u) => format!("{} ({u})", c.name),
+                None => c.name.clone(),
+            };
+            if ui.checkbox(&mut on, label).changed() {
+                if on {
+                    self.excluded.remove(&key);
+                } else {
+                    self.excluded.insert(key);
+                }
+                changed = true;
+            }
+        }
+        let labels: Vec<&str> = a
+            .columns
+            .iter()
+            .filter(|c| !c.is_numeric())
+            .map(|c| c.header.as_str())
+            .collect();
+        if !labels.is_empty() {
+            ui.weak(format!("labels: {}", labels.join(", ")));
+        }
+        for (g, lot) in [(&a, &b), (&b, &a)].iter().enumerate() {
+            for c in lot.0.columns.iter().filter(|c| c.is_numeric()) {
+                let key = match_key(&c.name);
+                if !lot.1.columns.iter().any(|x| x.is_numeric() && match_key(&x.name) == key) {
+                    ui.label(
+                        RichText::new(format!(
+                            "not compared: \"{}\" is only in the {} lot",
+                            c.header,
+                            if g == 0 { "reference" } else { "candidate" }
+                        ))
+                        .italics(),
+                    );
+                }
+            }
+        }
+        if changed {
+            self.rerun();
+        }
+    }
+
+    fn settings_ui(&mut self, ui: &mut egui::Ui) {
+        ui.strong("Settings");
+        let mut changed = false;
+        ui.horizontal(|ui| {
+            ui.label("alpha");
+            changed |= ui
+                .add(
+                    egui::DragValue::new(&mut self.saved.settings.alpha)
+                        .range(0.0001..=0.5)
+                        .speed(0.001)
+                        .max_decimals(4),
+                )
+                .on_hover_text("Significance level of the test; intervals are at 1 - alpha confidence")
+                .changed();
+        });
+        changed |= ui
+            .checkbox(&mut self.saved.settings.leave_one_out, "leave-one-out misclassification")
+            .changed();
+        ui.horizontal(|ui| {
+            ui.label("data ellipse coverage");
+            ui.add(
+                egui::DragValue::new(&mut self.saved.coverage)
+                    .range(0.5..=0.999)
+                    .speed(0.005)
+                    .max_decimals(3),
+            );
+        });
+        ui.weak(
+            "Not yet in this version: Box's M, Mardia's tests, outliers, the unequal-covariance \
+             test and the permutation p-value.",
+        );
+        if changed {
+            self.rerun();
+        }
+    }
+
+    fn central_ui(&mut self, ui: &mut egui::Ui) {
+        let mut dismiss = None;
+        for (k, m) in self.messages.iter().enumerate() {
+            egui::Frame::group(ui.style())
+                .fill(ui.visuals().error_fg_color.gamma_multiply(0.15))
+                .show(ui, |ui| {
+                    ui.horizontal_wrapped(|ui| {
+                        ui.label(RichText::new(m).color(ui.visuals().error_fg_color));
+                        if ui.button("Dismiss").clicked() {
+                            dismiss = Some(k);
+                        }
+                    });
+                });
+        }
+        if let Some(k) = dismiss {
+            self.messages.remove(k);
+        }
+        if let Some(n) = &self.notice {
+            let mut close = false;
+            ui.horizontal(|ui| {
+                ui.label(n);
+                close = ui.small_button("OK").clicked();
+            });
+            if close {
+                self.notice = None;
+            }
+        }
+        ui.horizontal(|ui| {
+            for v in View::ALL {
+                ui.selectable_value(&mut self.saved.view, v, v.title());
+            }
+            if self.shown.is_some() && !self.shown_current {
+                ui.separator();
+                ui.label(
+                    RichText::new(if self.worker.busy() {
+                        "updating — results shown are from the previous run"
+                    } else {
+                        "results shown are from a previous run"
+                    })
+                    .color(ui.visuals().warn_fg_color),
+                );
+            }
+        });
+        if let Some(e) = &self.run_error {
+            ui.label(RichText::new(format!("The comparison could not be made: {e}")).color(ui.visuals().error_fg_color));
+        }
+        ui.separator();
+        let Some(shown) = self.shown.as_deref_mut() else {
+            ui.label(if self.worker.busy() {
+                "Working…"
+            } else {
+                "Drop two lot files on this window, or use Open lots…"
+            });
+            return;
+        };
+        match self.saved.view {
+            View::Overview => overview::overview_ui(ui, shown),
+            View::Characteristics => characteristics::table_ui(ui, shown, &mut self.saved),
+            View::Intervals => intervals::intervals_ui(ui, shown),
+            View::Pairs => pairs::pairs_ui(ui, shown, &mut self.saved),
+            View::Direction => direction::direction_ui(ui, shown),
+        }
+    }
+
+    fn screenshot_step(&mut self, ctx: &egui::Context) {
+        let Some(plan) = &mut self.screenshot else { return };
+        if plan.started.elapsed() > std::time::Duration::from_secs(180) {
+            if let Ok(mut d) = plan.done.lock() {
+                *d = Some(Err("no result to show within 180 s".into()));
+            }
+            ctx.send_viewport_cmd(egui::ViewportCommand::Close);
+            return;
+        }
+        let finished = plan.done.lock().map(|d| d.is_some()).unwrap_or(true);
+        if finished {
+            ctx.send_viewport_cmd(egui::ViewportCommand::Close);
+            return;
+        }
+        let ready = (self.shown.is_some() || !self.messages.is_empty()) && !self.worker.busy();
+        if ready {
+            plan.frames_ready += 1;
+        }
+        if plan.frames_ready > 5 && !plan.requested {
+            plan.requested = true;
+            let path = plan.path.clone();
+            let done = plan.done.clone();
+            let repaint = ctx.clone();
+            ctx.request_screenshot(move |img| {
+                let [w, h] = img.size;
+                let result = image::save_buffer(&path, img.as_raw(), w as u32, h as u32, image::ExtendedColorType::Rgba8)
+                    .map_err(|e| format!("{}: {e}", path.display()));
+                if let Ok(mut d) = done.lock() {
+                    *d = Some(result);
+                }
+                repaint.request_repaint();
+            });
+        }
+        ctx.request_repaint();
+    }
+}
+
+/// A small filled square in `color`, as a legend key.
+pub fn swatch(ui: &mut egui::Ui, color: Color32) {
+    let (rect, _) = ui.allocate_exact_size(egui::vec2(12.0, 12.0), egui::Sense::hover());
+    ui.painter().rect_filled(rect, 2.0, color);
+}
+
+fn s_missing(shown: Option<&Shown>, lot: usize) -> Vec<String> {
+    let Some(s) = shown else { return Vec::new() };
+    s.prepared
+        .characteristics
+        .iter()
+        .zip(&s.prepared.lots[lot].missing)
+        .filter(|(_, m)| **m > 0)
+        .map(|(c, m)| format!("{m} in {c}"))
+        .collect()
+}
+
+fn sanitize(s: &str) -> String {
+    s.chars()
+        .map(|c| if c.is_alphanumeric() || c == '-' { c } else { '_' })
+        .collect()
+}
+
+/// p-value and statistic line used by several views.
+pub fn test_line(s: &Shown) -> String {
+    let h = &s.comparison.hotelling;
+    format!(
+        "T² = {}, F({}, {}) = {}, p = {}",
+        format_sig(h.t2, 5),
+        h.df1,
+        h.df2,
+        format_sig(h.f, 5),
+        format_p(h.p_value)
+    )
+}
+
+impl eframe::App for LotshiftApp {
+    fn ui(&mut self, ui: &mut egui::Ui, _frame: &mut eframe::Frame) {
+        self.show(ui);
+    }
+
+    fn save(&mut self, storage: &mut dyn eframe::Storage) {
+        if self.screenshot.is_none() {
+            eframe::set_value(storage, eframe::APP_KEY, &self.saved);
+        }
+    }
+}

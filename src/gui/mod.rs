@@ -1,0 +1,93 @@
+//! The desktop window (eframe/egui + egui_plot). It renders finished results; all statistics
+//! run in a background worker.
+
+pub mod app;
+pub mod characteristics;
+pub mod direction;
+pub mod intervals;
+pub mod overview;
+pub mod pairs;
+pub mod shown;
+pub mod worker;
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+pub use app::{LotshiftApp, Saved, View};
+
+/// Opens the window (with `files`, or the bundled sample lots), or renders it to `screenshot`
+/// and exits.
+pub fn run(files: Vec<PathBuf>, screenshot: Option<PathBuf>, view: Option<String>) -> ExitCode {
+    if !(files.is_empty() || files.len() == 2) {
+        eprintln!("lotshift: error: give two lot files (reference, then candidate), or none for the sample lots");
+        return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+    }
+    let start_view = match view.as_deref().map(View::from_name) {
+        None => None,
+        Some(Some(v)) => Some(v),
+        Some(None) => {
+            eprintln!("lotshift: error: unknown view; use overview, characteristics, intervals, pairs or direction");
+            return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+        }
+    };
+    let taking_screenshot = screenshot.is_some();
+    let options = eframe::NativeOptions {
+        viewport: egui::ViewportBuilder::default()
+            .with_title("lotshift — compare two lots")
+            .with_inner_size([1400.0, 900.0])
+            .with_min_inner_size([800.0, 500.0])
+            .with_drag_and_drop(true),
+        persist_window: !taking_screenshot,
+        ..Default::default()
+    };
+    let result_slot = std::sync::Arc::new(std::sync::Mutex::new(None));
+    let slot_for_app = result_slot.clone();
+    let run = eframe::run_native(
+        "lotshift",
+        options,
+        Box::new(move |cc| {
+            let saved = if taking_screenshot {
+                Saved::default()
+            } else {
+                cc.storage
+                    .and_then(|s| eframe::get_value::<Saved>(s, eframe::APP_KEY))
+                    .unwrap_or_default()
+            };
+            let mut app = LotshiftApp::new(Some(cc.egui_ctx.clone()), saved);
+            if let Some(v) = start_view {
+                app.saved.view = v;
+            }
+            if files.is_empty() {
+                app.load_samples();
+            } else {
+                app.load_paths(worker::Slot::Both, files);
+            }
+            if let Some(p) = screenshot {
+                app.plan_screenshot(p);
+                if let Ok(mut s) = slot_for_app.lock() {
+                    *s = app.screenshot_result();
+                }
+            }
+            Ok(Box::new(app))
+        }),
+    );
+    if let Err(e) = run {
+        eprintln!("lotshift: error: cannot open the window: {e}");
+        return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+    }
+    let outcome = result_slot.lock().ok().and_then(|s| s.clone());
+    if let Some(done) = outcome {
+        match done.lock().ok().and_then(|d| d.clone()) {
+            Some(Ok(())) => {}
+            Some(Err(e)) => {
+                eprintln!("lotshift: error: screenshot failed: {e}");
+                return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+            }
+            None => {
+                eprintln!("lotshift: error: the window closed before the screenshot was taken");
+                return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+            }
+        }
+    }
+    ExitCode::SUCCESS
+}

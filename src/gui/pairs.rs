@@ -1,0 +1,283 @@
+//! The pair view: any two characteristics with both lots' units, each lot's mean confidence
+//! ellipse and data ellipse, the mean-difference ellipse, and a grid of the pairs among the
+//! characteristics that drive the shift most.
+
+use egui::{Color32, RichText};
+use egui_plot::{Legend, Line, LineStyle, MarkerShape, Plot, PlotPoints, Points};
+
+use crate::analysis::{format_confidence, format_sig};
+
+use super::app::{Saved, CANDIDATE_COLOR, REFERENCE_COLOR};
+use super::shown::{Shown, SMALL_POINTS};
+
+/// Characteristics in the small-multiples grid (those driving the shift most).
+pub const GRID_CHARACTERISTICS: usize = 6;
+
+fn index_of(names: &[String], n: &str) -> Option<usize> {
+    names.iter().position(|x| x == n)
+}
+
+/// The pair to show: the saved one if it still exists, else the two leading drivers.
+pub fn current_pair(s: &Shown, saved: &Saved) -> Option<(usize, usize)> {
+    let names = &s.comparison.characteristics;
+    if names.len() < 2 {
+        return None;
+    }
+    if let Some([a, b]) = &saved.pair
+        && let (Some(i), Some(j)) = (index_of(names, a), index_of(names, b))
+        && i != j
+    {
+        return Some((i, j));
+    }
+    let r = &s.comparison.ranking;
+    let i = index_of(names, &r[0].characteristic)?;
+    let j = index_of(names, &r[1].characteristic)?;
+    Some((i, j))
+}
+
+fn label(s: &Shown, k: usize) -> String {
+    match s.comparison.units.get(k).cloned().flatten() {
+        Some(u) => format!("{} ({u})", s.comparison.characteristics[k]),
+        None => s.comparison.characteristics[k].clone(),
+    }
+}
+
+/// Draws the pair view.
+pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
+    let Some((mut i, mut j)) = current_pair(s, saved) else {
+        ui.label("Pairs need at least two characteristics.");
+        return;
+    };
+    let names = s.comparison.characteristics.clone();
+    ui.horizontal(|ui| {
+        ui.label("across");
+        egui::ComboBox::from_id_salt("pair-x")
+            .selected_text(names[i].clone())
+            .show_ui(ui, |ui| {
+                for (k, n) in names.iter().enumerate() {
+                    ui.selectable_value(&mut i, k, n);
+                }
+            });
+        ui.label("up");
+        egui::ComboBox::from_id_salt("pair-y")
+            .selected_text(names[j].clone())
+            .show_ui(ui, |ui| {
+                for (k, n) in names.iter().enumerate() {
+                    ui.selectable_value(&mut j, k, n);
+                }
+            });
+        ui.checkbox(&mut saved.pair_grid, "grid of leading pairs");
+    });
+    if i != j {
+        saved.pair = Some([names[i].clone(), names[j].clone()]);
+    }
+    let coverage = saved.coverage;
+    let view = s.pair(i, j, coverage);
+    let conf = format_confidence(s.comparison.alpha);
+    ui.label(
+        RichText::new(format!(
+            "Solid: each lot's {conf}% confidence ellipse for its mean (this pair alone). Dashed: \
+             data ellipses expected to hold {}% of a normal lot's units.",
+            format_sig(100.0 * coverage, 3)
+        ))
+        .small(),
+    );
+    let avail = ui.available_size();
+    let grid_w = if saved.pair_grid { (avail.x * 0.36).min(420.0) } else { 0.0 };
+    let main_w = (avail.x - grid_w - 12.0).max(200.0);
+    let mut clicked_pair = None;
+    ui.horizontal_top(|ui| {
+        ui.vertical(|ui| {
+            ui.set_width(main_w);
+            let lots = [
+                (0, REFERENCE_COLOR, format!("reference: {}", s.comparison.lots[0].name)),
+                (1, CANDIDATE_COLOR, format!("candidate: {}", s.comparison.lots[1].name)),
+            ];
+            let hover_names = [lots[0].2.clone(), lots[1].2.clone()];
+            let hover_text = s.unit_text.clone();
+            let sampled = s.sample[0].len() < s.prepared.lots[0].data.nrows()
+                || s.sample[1].len() < s.prepared.lots[1].data.nrows();
+            Plot::new(("pair", i, j))
+                .height((avail.y * 0.62).max(260.0))
+                .legend(Legend::default())
+                .x_axis_label(label(s, i))
+                .y_axis_label(label(s, j))
+                .label_formatter(move |h| match h {
+                    egui_plot::HoverPosition::NearDataPoint { plot_name, index, .. } => {
+                        let g = hover_names.iter().position(|n| n == plot_name)?;
+                        hover_text[g].get(*index).cloned()
+                    }
+                    egui_plot::HoverPosition::Elsewhere { .. } => None,
+                })
+                .show(ui, |plot| {
+                    for (g, color, name) in &lots {
+                        plot.points(
+                            Points::new(name.clone(), PlotPoints::Borrowed(&view.points[*g]))
+                                .color(color.gamma_multiply(0.7))
+                                .radius(2.5),
+                        );
+                        // Same name as the units: one legend entry per lot.
+                        if let Some(e) = &view.geometry.mean_regions[*g] {
+                            plot.line(Line::new(name.clone(), e.clone()).color(*color).width(2.0).allow_hover(false));
+                        }
+                        if let Some(e) = &view.geometry.data_ellipses[*g] {
+                            plot.line(
+                                Line::new(name.clone(), e.clone())
+                                    .color(*color)
+                                    .style(LineStyle::dashed_loose())
+                                    .allow_hover(false),
+                            );
+                        }
+                        plot.points(
+                            Points::new(name.clone(), vec![view.geometry.means[*g]])
+                                .shape(MarkerShape::Cross)
+                                .radius(7.0)
+                                .color(*color)
+                                .allow_hover(false),
+                        );
+                    }
+                });
+            if sampled {
+                ui.weak(format!(
+                    "Drawing a fixed subsample of {} + {} units; every statistic uses all units.",
+                    s.sample[0].len(),
+                    s.sample[1].len()
+                ));
+            }
+            ui.add_space(4.0);
+            difference_ui(ui, s, saved, &view.geometry, i, j);
+        });
+        if saved.pair_grid {
+            ui.vertical(|ui| {
+                ui.set_width(grid_w);
+                clicked_pair = grid_ui(ui, s, coverage, grid_w);
+            });
+        }
+    });
+    if let Some((a, b)) = clicked_pair {
+        saved.pair = Some([names[a].clone(), names[b].clone()]);
+    }
+}
+
+fn difference_ui(
+    ui: &mut egui::Ui,
+    s: &Shown,
+    saved: &mut Saved,
+    g: &crate::analysis::PairGeometry,
+    i: usize,
+    j: usize,
+) {
+    ui.horizontal(|ui| {
+        ui.label("Mean difference region:");
+        ui.radio_value(&mut saved.difference_shadow, true, "consistent with all characteristics")
+            .on_hover_text("The shadow of the full T² confidence region on this pair: agrees with the simultaneous intervals");
+        ui.radio_value(&mut saved.difference_shadow, false, "this pair alone")
+            .on_hover_text("A confidence region for these two mean differences only (2-characteristic critical value)");
+    });
+    let outline = if saved.difference_shadow {
+        &g.difference_shadow
+    } else {
+        &g.difference_pair
+    };
+    let covers_zero = outline.as_ref().map(|o| contains_origin(o)).unwrap_or(false);
+    Plot::new(("difference", i, j))
+        .height((ui.available_height() - 24.0).max(160.0))
+        .x_axis_label(format!("difference in {}", label(s, i)))
+        .y_axis_label(format!("difference in {}", label(s, j)))
+        .show(ui, |plot| {
+            if let Some(o) = outline {
+                plot.line(Line::new("mean difference region", o.clone()).color(Color32::from_rgb(120, 70, 160)).width(2.0));
+            }
+            plot.points(
+                Points::new("no difference", vec![[0.0, 0.0]])
+                    .shape(MarkerShape::Plus)
+                    .radius(8.0)
+                    .color(Color32::GRAY),
+            );
+            plot.points(
+                Points::new("observed difference", vec![g.difference])
+                    .radius(5.0)
+                    .color(Color32::from_rgb(120, 70, 160)),
+            );
+        });
+    ui.weak(if covers_zero {
+        "The region contains (0, 0): no difference on this pair at this confidence."
+    } else {
+        "The region excludes (0, 0): this pair's means differ."
+    });
+}
+
+/// Whether a closed outline (convex) contains the origin.
+fn contains_origin(o: &[[f64; 2]]) -> bool {
+    let mut sign = 0.0_f64;
+    for w in o.windows(2) {
+        let cross = w[0][0] * w[1][1] - w[0][1] * w[1][0];
+        if cross.abs() < 1e-300 {
+            continue;
+        }
+        if sign == 0.0 {
+            sign = cross.signum();
+        } else if cross.signum() != sign {
+            return false;
+        }
+    }
+    true
+}
+
+fn grid_ui(ui: &mut egui::Ui, s: &mut Shown, coverage: f64, width: f32) -> Option<(usize, usize)> {
+    let names = s.comparison.characteristics.clone();
+    let lead: Vec<usize> = s
+        .comparison
+        .ranking
+        .iter()
+        .take(GRID_CHARACTERISTICS)
+        .filter_map(|r| index_of(&names, &r.characteristic))
+        .collect();
+    let k = lead.len();
+    if k < 2 {
+        return None;
+    }
+    ui.label(RichText::new(format!("Pairs of the {k} leading characteristics (click to open)")).small());
+    let cell = ((width - 8.0) / (k - 1) as f32 - 4.0).max(40.0);
+    let mut clicked = None;
+    for row in 1..k {
+        ui.horizontal(|ui| {
+            ui.spacing_mut().item_spacing = egui::vec2(4.0, 4.0);
+            for col in 0..row {
+                let (a, b) = (lead[col], lead[row]);
+                let view = s.pair(a, b, coverage);
+                let resp = Plot::new(("cell", a, b))
+                    .width(cell)
+                    .height(cell)
+                    .show_axes(false)
+                    .show_grid(false)
+                    .allow_drag(false)
+                    .allow_zoom(false)
+                    .allow_scroll(false)
+                    .allow_boxed_zoom(false)
+                    .show_x(false)
+                    .show_y(false)
+                    .show(ui, |plot| {
+                        for (g, color) in [(0, REFERENCE_COLOR), (1, CANDIDATE_COLOR)] {
+                            let pts = &view.points[g][..view.points[g].len().min(SMALL_POINTS)];
+                            plot.points(
+                                Points::new(format!("lot {g}"), PlotPoints::Borrowed(pts))
+                                    .color(color.gamma_multiply(0.5))
+                                    .radius(1.2)
+                                    .allow_hover(false),
+                            );
+                            if let Some(e) = &view.geometry.mean_regions[g] {
+                                plot.line(Line::new(format!("mean {g}"), e.clone()).color(color).width(1.5).allow_hover(false));
+                            }
+                        }
+                    })
+                    .response
+                    .on_hover_text(format!("{} across, {} up", names[a], names[b]));
+                if resp.clicked() {
+                    clicked = Some((a, b));
+                }
+            }
+        });
+    }
+    clicked
+}

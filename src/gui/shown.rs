@@ -1,0 +1,188 @@
+//! A finished result and the plot geometry derived from it, computed once per result (and
+//! once per pair of characteristics), never per frame.
+
+use std::collections::HashMap;
+use std::sync::Arc;
+
+use egui_plot::PlotPoint;
+
+use crate::analysis::{pair_geometry, Comparison, PairGeometry};
+use crate::data::{ColumnData, Lot, Prepared};
+use crate::report::Record;
+
+/// Most units drawn per lot in a scatter plot (a stable subsample beyond that).
+pub const MAX_POINTS: usize = 4000;
+/// Units drawn per lot in each small-multiples cell.
+pub const SMALL_POINTS: usize = 300;
+/// Most bins of the score histograms (Rice's rule, 2·n^(1/3), chooses fewer for small lots).
+pub const MAX_SCORE_BINS: usize = 60;
+
+/// One pair's plot data.
+pub struct PairView {
+    /// Ellipses and means.
+    pub geometry: PairGeometry,
+    /// Sampled units of each lot, as plot points.
+    pub points: [Vec<PlotPoint>; 2],
+}
+
+/// Score histogram of both lots on common bins, as densities.
+pub struct ScoreHistogram {
+    /// Left edge of the first bin.
+    pub start: f64,
+    /// Bin width.
+    pub width: f64,
+    /// Density of each bin, per lot.
+    pub density: [Vec<f64>; 2],
+}
+
+/// Everything the views show for one result.
+pub struct Shown {
+    /// The comparison.
+    pub comparison: Comparison,
+    /// The unit data it was computed from.
+    pub prepared: Prepared,
+    /// The lots as read (for labels and rows).
+    pub lots: [Arc<Lot>; 2],
+    /// The record for export.
+    pub record: Record,
+    /// Indices (into the prepared lot) of the units drawn, per lot.
+    pub sample: [Vec<usize>; 2],
+    /// Score histograms.
+    pub scores: Option<ScoreHistogram>,
+    /// Hover text ("lot: row 17, serial ...") of each drawn unit, per lot.
+    pub unit_text: Arc<[Vec<String>; 2]>,
+    pairs: HashMap<(usize, usize, u64), Arc<PairView>>,
+}
+
+/// A stable subsample of `n` indices: the same units every time, spread over the file.
+pub fn stable_sample(n: usize, max: usize) -> Vec<usize> {
+    if n <= max {
+        return (0..n).collect();
+    }
+    let mut keyed: Vec<(u64, usize)> = (0..n)
+        .map(|i| ((i as u64).wrapping_add(1).wrapping_mul(0x9E37_79B9_7F4A_7C15).rotate_left(17), i))
+        .collect();
+    keyed.select_nth_unstable(max);
+    let mut out: Vec<usize> = keyed[..max].iter().map(|&(_, i)| i).collect();
+    out.sort_unstable();
+    out
+}
+
+fn histogram(scores: &[Vec<f64>; 2]) -> Option<ScoreHistogram> {
+    let all = scores.iter().flatten().copied();
+    let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    if !(lo.is_finite() && hi.is_finite()) || hi <= lo {
+        return None;
+    }
+    let n = scores.iter().map(Vec::len).sum::<usize>() as f64;
+    let bins = ((2.0 * n.cbrt()).ceil() as usize).clamp(8, MAX_SCORE_BINS);
+    let width = (hi - lo) / bins as f64;
+    let mut density = [vec![0.0; bins], vec![0.0; bins]];
+    for (g, s) in scores.iter().enumerate() {
+        for &v in s {
+            let b = (((v - lo) / width) as usize).min(bins - 1);
+            density[g][b] += 1.0;
+        }
+        let total = s.len() as f64 * width;
+        if total > 0.0 {
+            for d in &mut density[g] {
+                *d /= total;
+            }
+        }
+    }
+    Some(ScoreHistogram {
+        start: lo,
+        width,
+        density,
+    })
+}
+
+impl Shown {
+    /// Builds the plot caches of a result.
+    pub fn new(comparison: Comparison, prepared: Prepared, lots: [Arc<Lot>; 2], record: Record) -> Self {
+        let sample = [
+            stable_sample(prepared.lots[0].data.nrows(), MAX_POINTS),
+            stable_sample(prepared.lots[1].data.nrows(), MAX_POINTS),
+        ];
+        let scores = comparison.discriminant.scores.as_ref().and_then(histogram);
+        let mut shown = Shown {
+            comparison,
+            prepared,
+            lots,
+            record,
+            sample,
+            scores,
+            unit_text: Arc::new([Vec::new(), Vec::new()]),
+            pairs: HashMap::new(),
+        };
+        let text = [0, 1].map(|g| {
+            (0..shown.sample[g].len())
+                .map(|k| shown.describe_unit(g, k))
+                .collect()
+        });
+        shown.unit_text = Arc::new(text);
+        shown
+    }
+
+    /// Plot data for characteristics `i` (x) and `j` (y), computed on first use.
+    pub fn pair(&mut self, i: usize, j: usize, coverage: f64) -> Arc<PairView> {
+        let key = (i, j, coverage.to_bits());
+        if let Some(v) = self.pairs.get(&key) {
+            return v.clone();
+        }
+        let geometry = pair_geometry(&self.comparison, i, j, coverage);
+        let points = [0, 1].map(|g| {
+            let data = &self.prepared.lots[g].data;
+            self.sample[g]
+                .iter()
+                .map(|&r| PlotPoint::new(data[(r, i)], data[(r, j)]))
+                .collect()
+        });
+        let view = Arc::new(PairView { geometry, points });
+        self.pairs.insert(key, view.clone());
+        view
+    }
+
+    /// "row 17, HX40-A-0016" for the `index`-th drawn unit of lot `g`.
+    pub fn describe_unit(&self, g: usize, index: usize) -> String {
+        let Some(&r) = self.sample[g].get(index) else {
+            return String::new();
+        };
+        self.describe_prepared_unit(g, r)
+    }
+
+    /// Row and first label of unit `r` of prepared lot `g`.
+    pub fn describe_prepared_unit(&self, g: usize, r: usize) -> String {
+        let lot = &self.lots[g];
+        let Some(&k) = self.prepared.lots[g].kept.get(r) else {
+            return String::new();
+        };
+        let row = lot.rows.get(k).copied().unwrap_or(0);
+        let label = lot
+            .columns
+            .iter()
+            .find_map(|c| match &c.data {
+                ColumnData::Text(t) if !t.is_empty() => Some(format!(", {} {}", c.header, t.get(k))),
+                _ => None,
+            })
+            .unwrap_or_default();
+        format!("{}: row {row}{label}", lot.name)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn subsample_is_stable_sorted_and_capped() {
+        let a = stable_sample(100_000, 4000);
+        let b = stable_sample(100_000, 4000);
+        assert_eq!(a, b);
+        assert_eq!(a.len(), 4000);
+        assert!(a.windows(2).all(|w| w[0] < w[1]));
+        // Spread over the whole lot, not just its start.
+        assert!(*a.last().unwrap() > 90_000 && a[0] < 10_000);
+        assert_eq!(stable_sample(10, 4000), (0..10).collect::<Vec<_>>());
+    }
+}

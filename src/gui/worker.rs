@@ -1,0 +1,375 @@
+//! Background work for the window: loading files and running comparisons off the UI thread,
+//! with progress, cancellation, panic capture, and a run number so that a result from an old
+//! run never replaces a newer one.
+
+use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc::{channel, Receiver, Sender};
+use std::sync::{Arc, Mutex};
+
+use crate::analysis::{self, LotData, Progress, Settings};
+use crate::data::{self, LoadOptions, Lot, Selection};
+use crate::report::Record;
+
+use super::shown::Shown;
+
+/// Which lot slot a load fills.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Slot {
+    /// The reference lot (first; differences are reference minus candidate).
+    Reference,
+    /// The candidate lot.
+    Candidate,
+    /// Both lots at once, from two files in that order.
+    Both,
+    /// One file holding both lots, to be split by a lot column.
+    Combined,
+}
+
+/// What a file to load is.
+#[derive(Debug, Clone)]
+pub enum Source {
+    /// A file on disk.
+    Path(PathBuf),
+    /// Bytes built into the program (the sample lots), with the name to show.
+    Embedded(&'static str, &'static [u8]),
+}
+
+/// A finished piece of background work.
+pub enum Outcome {
+    /// Files read (or the reason they could not be).
+    Loaded {
+        /// Slot the files were for.
+        slot: Slot,
+        /// The lots, in slot order.
+        result: Result<Vec<Lot>, String>,
+    },
+    /// A comparison finished (or failed, or was cancelled).
+    Compared {
+        /// Run number.
+        run: u64,
+        /// The result bundle or the reason there is none.
+        result: Result<Box<Shown>, String>,
+    },
+    /// The record was written (or not).
+    Exported(Result<PathBuf, String>),
+    /// The file dialog closed.
+    Picked {
+        /// Slot the dialog was for.
+        slot: Slot,
+        /// Chosen files (empty when cancelled).
+        paths: Vec<PathBuf>,
+    },
+}
+
+/// Progress and cancellation of one run, shared with its thread.
+#[derive(Debug)]
+pub struct RunHandle {
+    /// Run number.
+    pub id: u64,
+    cancel: AtomicBool,
+    stage: Mutex<(String, f64)>,
+    repaint: Option<egui::Context>,
+}
+
+impl Progress for RunHandle {
+    fn report(&self, stage: &str, fraction: f64) {
+        if let Ok(mut s) = self.stage.lock() {
+            *s = (stage.to_string(), fraction);
+        }
+        if let Some(ctx) = &self.repaint {
+            ctx.request_repaint();
+        }
+    }
+    fn cancelled(&self) -> bool {
+        self.cancel.load(Ordering::Relaxed)
+    }
+}
+
+/// The window's background worker.
+pub struct Worker {
+    tx: Sender<Outcome>,
+    rx: Receiver<Outcome>,
+    ctx: Option<egui::Context>,
+    latest_run: u64,
+    active: Option<Arc<RunHandle>>,
+    loads_pending: usize,
+}
+
+fn panic_text(e: &Box<dyn std::any::Any + Send>) -> String {
+    e.downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| e.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "unknown failure".into())
+}
+
+fn load_source(src: &Source, options: &LoadOptions) -> Result<Lot, String> {
+    match src {
+        Source::Path(p) => data::load(p, options),
+        Source::Embedded(name, bytes) => data::load_bytes(name, bytes, options),
+    }
+    .map_err(|e| e.to_string())
+}
+
+impl Worker {
+    /// A worker that asks `ctx` (when given) to repaint whenever something finishes.
+    pub fn new(ctx: Option<egui::Context>) -> Self {
+        let (tx, rx) = channel();
+        Worker {
+            tx,
+            rx,
+            ctx,
+            latest_run: 0,
+            active: None,
+            loads_pending: 0,
+        }
+    }
+
+    fn send(tx: &Sender<Outcome>, ctx: &Option<egui::Context>, o: Outcome) {
+        let _ = tx.send(o);
+        if let Some(c) = ctx {
+            c.request_repaint();
+        }
+    }
+
+    /// Reads files for `slot` in the background.
+    pub fn load(&mut self, slot: Slot, sources: Vec<Source>) {
+        self.loads_pending += 1;
+        let tx = self.tx.clone();
+        let ctx = self.ctx.clone();
+        std::thread::spawn(move || {
+            let options = LoadOptions::default();
+            let result = catch_unwind(AssertUnwindSafe(|| {
+                let lots: Result<Vec<Lot>, String> = if sources.len() == 2 {
+                    // Both lots are parsed in parallel.
+                    std::thread::scope(|s| {
+                        let h = s.spawn(|| load_source(&sources[0], &options));
+                        let b = load_source(&sources[1], &options);
+                        let a = h.join().unwrap_or_else(|e| Err(panic_text(&e)));
+                        Ok(vec![a?, b?])
+                    })
+                } else {
+                    sources.iter().map(|s| load_source(s, &options)).collect()
+                };
+                lots
+            }))
+            .unwrap_or_else(|e| Err(format!("internal error while reading: {}", panic_text(&e))));
+            Self::send(&tx, &ctx, Outcome::Loaded { slot, result });
+        });
+    }
+
+    /// Opens a native file dialog in the background (the window keeps drawing meanwhile).
+    pub fn pick(&mut self, slot: Slot) {
+        let tx = self.tx.clone();
+        let ctx = self.ctx.clone();
+        std::thread::spawn(move || {
+            let dialog = rfd::FileDialog::new()
+                .set_title(match slot {
+                    Slot::Reference => "Open the reference lot",
+                    Slot::Candidate => "Open the candidate lot",
+                    Slot::Both => "Open two lot files (reference first)",
+                    Slot::Combined => "Open one file holding both lots",
+                })
+                .add_filter("Lot files", &["csv", "tsv", "txt", "xlsx", "xlsm", "xls", "ods"])
+                .add_filter("All files", &["*"]);
+            let paths = if slot == Slot::Both {
+                dialog.pick_files().unwrap_or_default()
+            } else {
+                dialog.pick_file().into_iter().collect()
+            };
+            Self::send(&tx, &ctx, Outcome::Picked { slot, paths });
+        });
+    }
+
+    /// Asks where to save `contents` (a native dialog, in the background) and writes it there
+    /// atomically.
+    pub fn export(&mut self, suggested_name: String, contents: String) {
+        let tx = self.tx.clone();
+        let ctx = self.ctx.clone();
+        std::thread::spawn(move || {
+            let picked = rfd::FileDialog::new()
+                .set_title("Export the comparison record")
+                .set_file_name(&suggested_name)
+                .add_filter("JSON", &["json"])
+                .save_file();
+            if let Some(path) = picked {
+                let result = crate::report::write_atomic(&path, contents.as_bytes())
+                    .map(|()| path)
+                    .map_err(|e| format!("the record was not written: {e}"));
+                Self::send(&tx, &ctx, Outcome::Exported(result));
+            }
+        });
+    }
+
+    /// Starts a comparison, cancelling any run still going. Returns its run number.
+    pub fn compare(&mut self, lots: [Arc<Lot>; 2], selection: Selection, settings: Settings) -> u64 {
+        self.cancel();
+        self.latest_run += 1;
+        let handle = Arc::new(RunHandle {
+            id: self.latest_run,
+            cancel: AtomicBool::new(false),
+            stage: Mutex::new(("starting".into(), 0.0)),
+            repaint: self.ctx.clone(),
+        });
+        self.active = Some(handle.clone());
+        let tx = self.tx.clone();
+        let ctx = self.ctx.clone();
+        std::thread::spawn(move || {
+            let result = catch_unwind(AssertUnwindSafe(|| run_comparison(&lots, &selection, &settings, &*handle)))
+                .unwrap_or_else(|e| Err(format!("internal error in the analysis: {}", panic_text(&e))));
+            Self::send(&tx, &ctx, Outcome::Compared { run: handle.id, result });
+        });
+        self.latest_run
+    }
+
+    /// Cancels the running comparison, if any.
+    pub fn cancel(&mut self) {
+        if let Some(h) = self.active.take() {
+            h.cancel.store(true, Ordering::Relaxed);
+        }
+    }
+
+    /// Stage and fraction of the running comparison.
+    pub fn progress(&self) -> Option<(String, f64)> {
+        self.active
+            .as_ref()
+            .and_then(|h| h.stage.lock().ok().map(|s| s.clone()))
+    }
+
+    /// True while a comparison or a load is under way.
+    pub fn busy(&self) -> bool {
+        self.active.is_some() || self.loads_pending > 0
+    }
+
+    /// Finished work, oldest first; results of superseded runs are dropped here.
+    pub fn poll(&mut self) -> Vec<Outcome> {
+        let mut out = Vec::new();
+        while let Ok(o) = self.rx.try_recv() {
+            match &o {
+                Outcome::Compared { run, .. } => {
+                    if *run != self.latest_run {
+                        continue;
+                    }
+                    self.active = None;
+                }
+                Outcome::Loaded { .. } => self.loads_pending = self.loads_pending.saturating_sub(1),
+                Outcome::Picked { .. } | Outcome::Exported(_) => {}
+            }
+            out.push(o);
+        }
+        out
+    }
+
+    /// Blocks until one outcome arrives (for tests and the screenshot mode).
+    pub fn wait(&mut self, timeout: std::time::Duration) -> Vec<Outcome> {
+        match self.rx.recv_timeout(timeout) {
+            Ok(o) => {
+                // Put it back through the same filter as poll.
+                let _ = self.tx.send(o);
+                self.poll()
+            }
+            Err(_) => Vec::new(),
+        }
+    }
+}
+
+/// Prepares, compares and builds everything the views draw.
+pub fn run_comparison(
+    lots: &[Arc<Lot>; 2],
+    selection: &Selection,
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Box<Shown>, String> {
+    progress.report("matching columns", 0.0);
+    let prepared = data::prepare(&lots[0], &lots[1], selection).map_err(|e| e.to_string())?;
+    let c = analysis::compare(
+        &prepared.characteristics,
+        &prepared.units,
+        [
+            LotData {
+                name: &prepared.lots[0].name,
+                data: &prepared.lots[0].data,
+            },
+            LotData {
+                name: &prepared.lots[1].name,
+                data: &prepared.lots[1].data,
+            },
+        ],
+        settings,
+        progress,
+    )
+    .map_err(|e| e.to_string())?;
+    let record = Record::new(&c, Some(&prepared), [Some(&lots[0].provenance), Some(&lots[1].provenance)]);
+    Ok(Box::new(Shown::new(c, prepared, lots.clone(), record)))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::time::Duration;
+
+    fn sample_lots() -> [Arc<Lot>; 2] {
+        let a = data::load_bytes("a.csv", b"x,y\n1,2\n2,1\n3,5\n4,3\n5,4\n", &LoadOptions::default()).unwrap();
+        let b = data::load_bytes("b.csv", b"x,y\n2,2\n3,4\n4,3\n6,6\n5,7\n", &LoadOptions::default()).unwrap();
+        [Arc::new(a), Arc::new(b)]
+    }
+
+    #[test]
+    fn a_newer_run_always_wins() {
+        // Start two runs back to back; only the second may be delivered.
+        let mut w = Worker::new(None);
+        let lots = sample_lots();
+        let first = w.compare(lots.clone(), Selection::default(), Settings::default());
+        let second = w.compare(
+            lots,
+            Selection::default(),
+            Settings {
+                alpha: 0.01,
+                ..Settings::default()
+            },
+        );
+        assert!(second > first);
+        let mut got = Vec::new();
+        let deadline = std::time::Instant::now() + Duration::from_secs(20);
+        while got.is_empty() && std::time::Instant::now() < deadline {
+            for o in w.wait(Duration::from_millis(200)) {
+                if let Outcome::Compared { run, result } = o {
+                    got.push((run, result.map(|s| s.comparison.alpha)));
+                }
+            }
+        }
+        // Give the first run's thread time to deliver too: it must still be dropped.
+        std::thread::sleep(Duration::from_millis(200));
+        for o in w.poll() {
+            if let Outcome::Compared { run, result } = o {
+                got.push((run, result.map(|s| s.comparison.alpha)));
+            }
+        }
+        assert_eq!(got.len(), 1, "exactly one result delivered");
+        assert_eq!(got[0].0, second);
+        assert_eq!(got[0].1, Ok(0.01));
+        assert!(!w.busy());
+    }
+
+    #[test]
+    fn a_failing_run_reports_instead_of_crashing() {
+        let mut w = Worker::new(None);
+        let lots = sample_lots();
+        let sel = Selection {
+            only: Some(vec!["nonexistent".into()]),
+            exclude: vec![],
+        };
+        w.compare(lots, sel, Settings::default());
+        let deadline = std::time::Instant::now() + Duration::from_secs(20);
+        loop {
+            let outs = w.wait(Duration::from_millis(200));
+            if let Some(Outcome::Compared { result, .. }) = outs.into_iter().next() {
+                let err = result.err().expect("an error");
+                assert!(err.contains("nonexistent"), "{err}");
+                break;
+            }
+            assert!(std::time::Instant::now() < deadline, "no result");
+        }
+    }
+}
