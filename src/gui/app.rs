@@ -606,7 +606,7 @@ impl LotshiftApp {
     }
 
     fn characteristics_ui(&mut self, ui: &mut egui::Ui) {
-        ui.strong("Characteristics");
+        ui.strong("Characteristics to compare");
         let [Some(a), Some(b)] = &self.slots else {
             ui.weak("load two lots to choose");
             return;
@@ -669,7 +669,7 @@ impl LotshiftApp {
         ui.strong("Settings");
         let mut changed = false;
         ui.horizontal(|ui| {
-            ui.label("alpha");
+            let label = ui.label("alpha");
             changed |= ui
                 .add(
                     egui::DragValue::new(&mut self.saved.settings.alpha)
@@ -677,6 +677,7 @@ impl LotshiftApp {
                         .speed(0.001)
                         .max_decimals(4),
                 )
+                .labelled_by(label.id)
                 .on_hover_text("Significance level of the test; intervals are at 1 - alpha confidence")
                 .changed();
         });
@@ -684,13 +685,14 @@ impl LotshiftApp {
             .checkbox(&mut self.saved.settings.leave_one_out, "leave-one-out misclassification")
             .changed();
         ui.horizontal(|ui| {
-            ui.label("data ellipse coverage");
+            let label = ui.label("data ellipse coverage");
             ui.add(
                 egui::DragValue::new(&mut self.saved.coverage)
                     .range(0.5..=0.999)
                     .speed(0.005)
                     .max_decimals(3),
-            );
+            )
+            .labelled_by(label.id);
         });
         ui.weak(
             "Not yet in this version: Box's M, Mardia's tests, outliers, the unequal-covariance \

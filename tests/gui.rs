@@ -1,0 +1,102 @@
+//! The window, driven headless through egui_kittest's accessibility tree: no display needed.
+
+use std::time::{Duration, Instant};
+
+use egui_kittest::kittest::Queryable as _;
+use egui_kittest::Harness;
+use lotshift::gui::worker::Slot;
+use lotshift::gui::{LotshiftApp, Saved};
+
+fn harness() -> Harness<'static, LotshiftApp> {
+    let mut app = LotshiftApp::new(None, Saved::default());
+    app.load_samples();
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    h
+}
+
+/// Steps the window until the background work is done.
+fn settle(h: &mut Harness<'static, LotshiftApp>) {
+    let deadline = Instant::now() + Duration::from_secs(60);
+    loop {
+        h.step();
+        if !h.state().worker.busy() {
+            break;
+        }
+        assert!(Instant::now() < deadline, "background work did not finish");
+        std::thread::sleep(Duration::from_millis(10));
+    }
+    h.run_steps(3);
+}
+
+#[test]
+fn sample_lots_load_and_every_view_shows_its_content() {
+    let mut h = harness();
+    assert!(h.state().shown_current);
+    h.get_by_label_contains("The lots differ at alpha 0.05: T² = 21.83");
+    h.get_by_label("hub length (mm)");
+    h.get_by_label("flange thickness (mm)");
+    h.get_by_label_contains("This statistical result supports, and does not replace");
+    h.get_by_label("Characteristics").click();
+    h.run_steps(2);
+    h.get_by_label("Copy table");
+    h.get_by_label("hub length");
+    h.get_by_label("Intervals").click();
+    h.run_steps(2);
+    h.get_by_label_contains("with 95% intervals, in pooled standard deviations");
+    assert_eq!(h.get_all_by_label("Bonferroni").count(), 2, "key and table header");
+    h.get_by_label("Pairs").click();
+    h.run_steps(2);
+    h.get_by_label("grid of leading pairs");
+    h.get_by_label_contains("Mean difference region");
+    h.get_by_label("Shift direction").click();
+    h.run_steps(2);
+    h.get_by_label_contains("With each unit held out");
+}
+
+#[test]
+fn a_bad_file_leaves_the_loaded_lots_alone() {
+    let mut h = harness();
+    let t2_before = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let bad = dir.join("bad-lot.csv");
+    std::fs::write(&bad, "bore diameter (mm),mass (g)\n12.0,141.2\n12.1,oops\n12.0,141.9\n").unwrap();
+    h.state_mut().load_paths(Slot::Candidate, vec![bad]);
+    settle(&mut h);
+    h.get_by_label_contains("bad-lot.csv, row 3, column B \"mass (g)\"");
+    let state = h.state();
+    assert_eq!(state.slots[1].as_ref().unwrap().name, "candidate-route-b");
+    assert_eq!(state.shown.as_ref().unwrap().comparison.hotelling.t2, t2_before);
+    assert!(state.shown_current);
+    h.get_by_label("Dismiss").click();
+    h.run_steps(2);
+    assert!(h.state().messages.is_empty());
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn unticking_a_characteristic_updates_the_result() {
+    let mut h = harness();
+    h.get_by_label("mass (g)").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let c = &h.state().shown.as_ref().unwrap().comparison;
+    assert_eq!(c.characteristics.len(), 4);
+    assert!(!c.characteristics.iter().any(|n| n == "mass"));
+    assert_eq!(c.hotelling.df1, 4.0);
+}
+
+#[test]
+fn swapping_makes_the_candidate_the_reference() {
+    let mut h = harness();
+    let d = h.state().shown.as_ref().unwrap().comparison.intervals[2].difference;
+    h.get_by_label("Swap lots").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let c = &h.state().shown.as_ref().unwrap().comparison;
+    assert_eq!(c.lots[0].name, "candidate-route-b");
+    assert!((c.intervals[2].difference + d).abs() < 1e-12 * d.abs());
+}

@@ -1,0 +1,293 @@
+//! Lot files: every dialect the loader accepts and every bad input it must refuse, with the
+//! exact place (file, row as a spreadsheet shows it, column) in each error.
+
+use lotshift::data::{
+    self, load, load_bytes, prepare, split_lot, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot,
+    PrepareError, Selection,
+};
+use std::path::{Path, PathBuf};
+
+fn sample(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-lots").join(name)
+}
+
+fn read(name: &str, text: &[u8]) -> Result<Lot, LoadError> {
+    load_bytes(name, text, &LoadOptions::default())
+}
+
+fn numbers(lot: &Lot, column: &str) -> Vec<f64> {
+    match &lot.column(column).expect(column).data {
+        ColumnData::Numeric(v) => v.clone(),
+        ColumnData::Text(_) => panic!("{column} is text"),
+    }
+}
+
+fn err(name: &str, text: &[u8]) -> LoadError {
+    read(name, text).expect_err("should fail")
+}
+
+#[test]
+fn comma_csv_roles_units_and_rows() {
+    let lot = load(&sample("reference-route-a.csv"), &LoadOptions::default()).unwrap();
+    assert_eq!(lot.provenance.delimiter, Some(','));
+    assert!(!lot.provenance.decimal_comma);
+    assert_eq!(lot.len(), 40);
+    assert_eq!(lot.rows[0], 2, "first data row is spreadsheet row 2");
+    let roles: Vec<(&str, bool)> = lot.columns.iter().map(|c| (c.name.as_str(), c.is_numeric())).collect();
+    assert_eq!(
+        roles,
+        vec![
+            ("serial", false),
+            ("measured at", false),
+            ("operator", false),
+            ("bore diameter", true),
+            ("outer diameter", true),
+            ("hub length", true),
+            ("flange thickness", true),
+            ("mass", true),
+        ]
+    );
+    assert_eq!(lot.column("mass").unwrap().unit.as_deref(), Some("g"));
+    assert_eq!(lot.column("mass").unwrap().missing, 1);
+    // SHA-256 of the bytes, checked against an independent implementation (sha256sum).
+    assert_eq!(lot.provenance.sha256.len(), 64);
+}
+
+#[test]
+fn semicolon_decimal_comma_crlf_reads_the_same_numbers() {
+    let plain = load(&sample("candidate-route-b.csv"), &LoadOptions::default()).unwrap();
+    let euro = load(&sample("candidate-route-b-semicolon.csv"), &LoadOptions::default()).unwrap();
+    assert_eq!(euro.provenance.delimiter, Some(';'));
+    assert!(euro.provenance.decimal_comma);
+    for c in ["bore diameter", "outer diameter", "hub length", "flange thickness", "mass"] {
+        assert_eq!(numbers(&plain, c), numbers(&euro, c), "{c}");
+    }
+}
+
+#[test]
+fn xlsx_reads_the_same_numbers_and_names_sheets() {
+    let plain = load(&sample("candidate-route-b.csv"), &LoadOptions::default()).unwrap();
+    let book = load(&sample("candidate-route-b.xlsx"), &LoadOptions::default()).unwrap();
+    assert_eq!(book.provenance.sheet.as_deref(), Some("hubs"));
+    assert_eq!(book.rows[0], 2);
+    for c in ["bore diameter", "hub length", "mass"] {
+        assert_eq!(numbers(&plain, c), numbers(&book, c), "{c}");
+    }
+    let named = load(
+        &sample("candidate-route-b.xlsx"),
+        &LoadOptions {
+            sheet: Some("HUBS".into()),
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    assert_eq!(named.len(), 40);
+    let e = load(
+        &sample("candidate-route-b.xlsx"),
+        &LoadOptions {
+            sheet: Some("lot 7".into()),
+            ..Default::default()
+        },
+    )
+    .unwrap_err();
+    assert_eq!(
+        e.kind,
+        LoadErrorKind::NoSuchSheet {
+            sheet: "lot 7".into(),
+            available: vec!["hubs".into()]
+        }
+    );
+}
+
+#[test]
+fn utf8_bom_tabs_quotes_and_decimal_comma_in_tsv() {
+    let text = "\u{feff}part\tlength [mm]\twidth [mm]\r\n\"A\t1\"\t1,5\t2,25\r\n\"B \"\"x\"\"\"\t1,75\t2,5\r\n";
+    let lot = read("t.tsv", text.as_bytes()).unwrap();
+    assert_eq!(lot.provenance.delimiter, Some('\t'));
+    assert!(lot.provenance.decimal_comma);
+    assert_eq!(numbers(&lot, "length"), vec![1.5, 1.75]);
+    assert_eq!(lot.column("length").unwrap().unit.as_deref(), Some("mm"));
+    match &lot.column("part").unwrap().data {
+        ColumnData::Text(t) => {
+            assert_eq!(t.get(0), "A\t1");
+            assert_eq!(t.get(1), "B \"x\"");
+        }
+        ColumnData::Numeric(_) => panic!("part should be a label"),
+    }
+}
+
+#[test]
+fn quoted_commas_and_missing_tokens() {
+    let text = b"operator,a,b\n\"Smith, J.\",1,2\nLee,,3\nLee,NA,4\nLee,NaN,5\nLee,-,6\nLee,#N/A,7\nLee,8,9\n";
+    let lot = read("m.csv", text).unwrap();
+    assert_eq!(lot.column("a").unwrap().missing, 5);
+    let a = numbers(&lot, "a");
+    assert_eq!(a.iter().filter(|v| v.is_nan()).count(), 5);
+    assert_eq!(lot.column("operator").unwrap().text(0), "Smith, J.");
+}
+
+#[test]
+fn latin1_headers_are_read() {
+    let mut bytes = b"Rauheit (\xb5m),b\n".to_vec();
+    bytes.extend_from_slice(b"1.5,2\n2.5,3\n");
+    let lot = read("l.csv", &bytes).unwrap();
+    assert_eq!(lot.provenance.encoding.as_deref(), Some("Latin-1"));
+    assert_eq!(lot.columns[0].unit.as_deref(), Some("µm"));
+}
+
+#[test]
+fn non_numeric_cell_names_file_row_column_and_text() {
+    let e = err("lots/a.csv", b"x,y\n1,2\n3,4.4.4\n4,5\n");
+    assert_eq!(e.file, "lots/a.csv");
+    assert_eq!(e.row, Some(3));
+    assert_eq!(e.column.as_deref(), Some("y"));
+    assert_eq!(e.position, Some(1));
+    assert_eq!(e.kind, LoadErrorKind::NotNumeric { text: "4.4.4".into() });
+    let msg = e.to_string();
+    assert!(msg.contains("lots/a.csv, row 3, column B \"y\""), "{msg}");
+}
+
+#[test]
+fn infinite_values_are_refused() {
+    let e = err("a.csv", b"x\n1\ninf\n2\n");
+    assert_eq!((e.row, e.position), (Some(3), Some(0)));
+    assert_eq!(e.kind, LoadErrorKind::NotFinite { text: "inf".into() });
+    let e = err("a.csv", b"x\n1\n1e999\n2\n");
+    assert_eq!(e.kind, LoadErrorKind::NotFinite { text: "1e999".into() });
+}
+
+#[test]
+fn empty_header_only_ragged_duplicate_binary_utf16() {
+    assert_eq!(err("e.csv", b"").kind, LoadErrorKind::Empty);
+    assert_eq!(err("e.csv", b"  \n\n").kind, LoadErrorKind::Empty);
+    let e = err("h.csv", b"a,b,c\n");
+    assert_eq!((e.kind.clone(), e.row), (LoadErrorKind::HeaderOnly, Some(1)));
+    let e = err("r.csv", b"a,b,c\n1,2,3\n4,5\n");
+    assert_eq!(e.row, Some(3));
+    assert_eq!(e.kind, LoadErrorKind::Ragged { found: 2, expected: 3 });
+    let e = err("r.csv", b"a,b\n1,2\n4,5,6\n");
+    assert_eq!(e.kind, LoadErrorKind::Ragged { found: 3, expected: 2 });
+    let e = err("d.csv", b"Bore (mm),x, bore \n1,2,3\n");
+    assert_eq!((e.row, e.position, e.column.as_deref()), (Some(1), Some(2), Some("bore")));
+    assert_eq!(
+        e.kind,
+        LoadErrorKind::DuplicateColumn {
+            first: "column A \"Bore (mm)\"".into()
+        }
+    );
+    assert_eq!(err("b.csv", b"\x00\x01\x02garbage\xff").kind, LoadErrorKind::Binary);
+    assert!(matches!(err("u.csv", b"\xff\xfea\x00,\x00b\x00").kind, LoadErrorKind::Encoding(_)));
+}
+
+#[test]
+fn trailing_empty_fields_are_tolerated() {
+    let lot = read("t.csv", b"a,b,\n1,2,\n3,4,\n").unwrap();
+    assert_eq!(lot.columns.len(), 2);
+    assert_eq!(numbers(&lot, "b"), vec![2.0, 4.0]);
+}
+
+#[test]
+fn unreadable_path_is_an_io_error_naming_the_file() {
+    let e = load(Path::new("/nonexistent/lot.csv"), &LoadOptions::default()).unwrap_err();
+    assert_eq!(e.file, "/nonexistent/lot.csv");
+    assert!(matches!(e.kind, LoadErrorKind::Io(_)));
+}
+
+#[test]
+fn forced_labels_keep_numeric_serials_out_of_the_analysis() {
+    let text = b"serial,x\n1001,1.5\n1002,2.5\n1003,2.0\n";
+    let lot = load_bytes(
+        "s.csv",
+        text,
+        &LoadOptions {
+            labels: vec!["Serial".into()],
+            ..Default::default()
+        },
+    )
+    .unwrap();
+    assert!(!lot.column("serial").unwrap().is_numeric());
+}
+
+#[test]
+fn one_file_split_by_lot_column_equals_two_files() {
+    let [a, b] = data::load_two(&[sample("both-routes.csv")], Some("route"), None, &LoadOptions::default()).unwrap();
+    assert_eq!((a.name.as_str(), b.name.as_str()), ("A", "B"));
+    let ref_a = load(&sample("reference-route-a.csv"), &LoadOptions::default()).unwrap();
+    assert_eq!(numbers(&a, "hub length"), numbers(&ref_a, "hub length"));
+    assert_eq!(a.rows[0], 2);
+    assert_eq!(b.rows[0], 42, "rows keep their place in the combined file");
+    assert_eq!(a.provenance.split, Some(("route".into(), "A".into())));
+    // Chosen order reverses the lots.
+    let [x, y] = data::load_two(&[sample("both-routes.csv")], Some("ROUTE"), Some(["b", "a"]), &LoadOptions::default()).unwrap();
+    assert_eq!((x.name.as_str(), y.name.as_str()), ("B", "A"));
+}
+
+#[test]
+fn lot_column_with_one_or_three_values() {
+    let one = read("one.csv", b"lot,x\nA,1\nA,2\n").unwrap();
+    let e = split_lot(&one, "lot", None).unwrap_err();
+    assert!(matches!(&e.kind, LoadErrorKind::LotValues { values, .. } if values == &vec!["A".to_string()]));
+    let three = read("three.csv", b"lot,x\nA,1\nB,2\nC,3\nA,4\n").unwrap();
+    let e = split_lot(&three, "lot", None).unwrap_err();
+    assert!(e.to_string().contains("more than two lots"), "{e}");
+    let [a, c] = split_lot(&three, "lot", Some(["A", "C"])).unwrap();
+    assert_eq!((a.len(), c.len()), (2, 1));
+    let e = split_lot(&three, "lot", Some(["A", "D"])).unwrap_err();
+    assert!(e.to_string().contains("no value \"D\""), "{e}");
+    let e = split_lot(&three, "batch", None).unwrap_err();
+    assert!(matches!(e.kind, LoadErrorKind::NoLotColumn { .. }));
+}
+
+#[test]
+fn matching_ignores_case_spaces_and_order_and_reports_unmatched() {
+    let a = read("a.csv", b"Bore Dia (mm),len,only_a\n1,2,3\n2,3,4\n3,5,5\n").unwrap();
+    let b = read("b.csv", b"LEN,bore dia [mm],only_b\n2,1,0\n3,3,1\n4,2,7\n").unwrap();
+    let p = prepare(&a, &b, &Selection::default()).unwrap();
+    assert_eq!(p.characteristics, vec!["Bore Dia".to_string(), "len".to_string()]);
+    // Candidate columns are reordered to match.
+    assert_eq!(p.lots[1].data[(0, 0)], 1.0);
+    assert_eq!(p.lots[1].data[(0, 1)], 2.0);
+    let unmatched: Vec<(usize, &str)> = p.unmatched.iter().map(|u| (u.lot, u.column.as_str())).collect();
+    assert_eq!(unmatched, vec![(0, "only_a"), (1, "only_b")]);
+}
+
+#[test]
+fn listwise_exclusion_counts_per_lot() {
+    let a = read("a.csv", b"x,y\n1,2\n,3\n4,NA\n5,6\n7,8\n").unwrap();
+    let b = read("b.csv", b"x,y\n1,2\n3,4\n5,7\n").unwrap();
+    let p = prepare(&a, &b, &Selection::default()).unwrap();
+    assert_eq!((p.lots[0].n_read, p.lots[0].n_excluded), (5, 2));
+    assert_eq!(p.lots[0].missing, vec![1, 1]);
+    assert_eq!(p.lots[0].data.nrows(), 3);
+    assert_eq!(p.lots[0].kept, vec![0, 3, 4]);
+}
+
+#[test]
+fn no_common_column_unknown_characteristic_unit_mismatch() {
+    let a = read("a.csv", b"x,y\n1,2\n2,3\n").unwrap();
+    let b = read("b.csv", b"u,v\n1,2\n2,3\n").unwrap();
+    assert_eq!(
+        prepare(&a, &b, &Selection::default()).unwrap_err(),
+        PrepareError::NoCommonColumns("a.csv".into(), "b.csv".into())
+    );
+    let sel = Selection {
+        only: Some(vec!["z".into()]),
+        exclude: vec![],
+    };
+    let e = prepare(&a, &a, &sel).unwrap_err();
+    assert!(matches!(e, PrepareError::UnknownCharacteristic { ref name, .. } if name == "z"));
+    let mm = read("mm.csv", b"d (mm),e\n1,2\n2,3\n").unwrap();
+    let inch = read("in.csv", b"d (in),e\n1,2\n2,3\n").unwrap();
+    assert!(matches!(prepare(&mm, &inch, &Selection::default()).unwrap_err(), PrepareError::UnitMismatch { .. }));
+}
+
+#[test]
+fn explicit_characteristics_keep_the_order_given() {
+    let a = read("a.csv", b"x,y,z\n1,2,3\n2,3,5\n4,1,2\n").unwrap();
+    let sel = Selection {
+        only: Some(vec!["Z".into(), "x".into()]),
+        exclude: vec![],
+    };
+    let p = prepare(&a, &a, &sel).unwrap();
+    assert_eq!(p.characteristics, vec!["z".to_string(), "x".to_string()]);
+}

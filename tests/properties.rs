@@ -1,0 +1,285 @@
+//! Mathematical properties of the two-sample T² that any correct implementation has,
+//! a type-I error simulation, and the planted truth of the sample lots.
+
+use lotshift::analysis::{self, Comparison, LotData, Settings, Silent};
+use lotshift::data::{self, LoadOptions, Selection};
+use lotshift::stats::EngineError;
+use nalgebra::{DMatrix, DVector};
+
+/// SplitMix64 with Box–Muller normals: a small, seeded generator for test data.
+struct Rng(u64);
+
+impl Rng {
+    fn next_u64(&mut self) -> u64 {
+        self.0 = self.0.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = self.0;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+    fn uniform(&mut self) -> f64 {
+        ((self.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+    }
+    fn normal(&mut self) -> f64 {
+        let (u, v) = (self.uniform(), self.uniform());
+        (-2.0 * u.ln()).sqrt() * (std::f64::consts::TAU * v).cos()
+    }
+    fn lot(&mut self, n: usize, p: usize, shift: f64) -> DMatrix<f64> {
+        // Correlated characteristics: x = z L with a fixed lower-triangular L.
+        let z = DMatrix::from_fn(n, p, |_, _| self.normal());
+        let l = DMatrix::from_fn(p, p, |i, j| if i >= j { 1.0 / (1.0 + (i - j) as f64) } else { 0.0 });
+        let mut x = z * l.transpose();
+        for k in 0..p {
+            for i in 0..n {
+                x[(i, k)] += shift * (k as f64 + 1.0);
+            }
+        }
+        x
+    }
+}
+
+fn names(p: usize) -> Vec<String> {
+    (0..p).map(|k| format!("c{k}")).collect()
+}
+
+fn run(x: &DMatrix<f64>, y: &DMatrix<f64>, alpha: f64) -> Result<Comparison, EngineError> {
+    let p = x.ncols();
+    analysis::compare(
+        &names(p),
+        &vec![None; p],
+        [LotData { name: "1", data: x }, LotData { name: "2", data: y }],
+        &Settings {
+            alpha,
+            leave_one_out: true,
+        },
+        &Silent,
+    )
+}
+
+fn rel(a: f64, b: f64) -> f64 {
+    (a - b).abs() / b.abs().max(1e-300)
+}
+
+#[test]
+fn t2_is_invariant_under_affine_maps() {
+    // Property: T² = n1 n2/N dᵀ Sp⁻¹ d is unchanged by x ↦ A x + b for any non-singular A.
+    let mut rng = Rng(11);
+    let x = rng.lot(23, 4, 0.0);
+    let y = rng.lot(31, 4, 0.4);
+    let a = DMatrix::from_fn(4, 4, |i, j| if i == j { 3.0 } else { rng.normal() });
+    let b = DVector::from_fn(4, |k, _| 1000.0 * (k as f64 + 1.0));
+    let map = |m: &DMatrix<f64>| {
+        let mut out = m * a.transpose();
+        for mut row in out.row_iter_mut() {
+            row += b.transpose();
+        }
+        out
+    };
+    let c0 = run(&x, &y, 0.05).unwrap();
+    let c1 = run(&map(&x), &map(&y), 0.05).unwrap();
+    assert!(rel(c1.hotelling.t2, c0.hotelling.t2) < 1e-8);
+    assert!(rel(c1.hotelling.p_value, c0.hotelling.p_value) < 1e-8);
+    assert_eq!(c1.discriminant.leave_one_out_misclassified, c0.discriminant.leave_one_out_misclassified);
+    assert_eq!(c1.discriminant.apparent_misclassified, c0.discriminant.apparent_misclassified);
+}
+
+#[test]
+fn swapping_lots_changes_only_signs() {
+    // Property: T² is symmetric in the lots; the difference and the direction change sign.
+    let mut rng = Rng(12);
+    let x = rng.lot(18, 3, 0.0);
+    let y = rng.lot(26, 3, 0.5);
+    let c = run(&x, &y, 0.05).unwrap();
+    let s = run(&y, &x, 0.05).unwrap();
+    assert!(rel(s.hotelling.t2, c.hotelling.t2) < 1e-12);
+    for k in 0..3 {
+        assert!(rel(-s.intervals[k].difference, c.intervals[k].difference) < 1e-12);
+        assert!(rel(-s.intervals[k].simultaneous[1], c.intervals[k].simultaneous[0]) < 1e-12);
+        assert!(rel(-s.discriminant.coefficients[k], c.discriminant.coefficients[k]) < 1e-10);
+    }
+    let lc = c.discriminant.leave_one_out_misclassified.unwrap();
+    let ls = s.discriminant.leave_one_out_misclassified.unwrap();
+    assert_eq!(lc, [ls[1], ls[0]]);
+}
+
+#[test]
+fn one_characteristic_gives_the_squared_pooled_t() {
+    // Property: with p = 1, T² is the square of the pooled two-sample t statistic, and its
+    // p-value is the two-sided t p-value.
+    let mut rng = Rng(13);
+    let x = rng.lot(9, 1, 0.0);
+    let y = rng.lot(14, 1, 0.8);
+    let c = run(&x, &y, 0.05).unwrap();
+    let t = c.per_characteristic[0].pooled_t;
+    assert!(rel(c.hotelling.t2, t * t) < 1e-12);
+    assert!(rel(c.hotelling.p_value, c.per_characteristic[0].pooled_p) < 1e-12);
+    // With one characteristic the simultaneous, Bonferroni and one-at-a-time intervals agree.
+    let iv = &c.intervals[0];
+    assert!(rel(iv.simultaneous[0], iv.one_at_a_time[0]) < 1e-10);
+    assert!(rel(iv.bonferroni[1], iv.one_at_a_time[1]) < 1e-10);
+}
+
+#[test]
+fn identical_lots_give_zero() {
+    let mut rng = Rng(14);
+    let x = rng.lot(15, 3, 0.0);
+    let c = run(&x, &x, 0.05).unwrap();
+    assert!(c.hotelling.t2.abs() < 1e-20);
+    assert!((c.hotelling.p_value - 1.0).abs() < 1e-12);
+    assert!(!c.hotelling.differ);
+}
+
+#[test]
+fn the_discriminant_direction_maximizes_the_squared_t() {
+    // Property (J&W Result 6.? / the union–intersection principle): the largest squared
+    // two-sample t over all linear combinations aᵀx is T², reached at a = Sp⁻¹ d.
+    let mut rng = Rng(15);
+    let x = rng.lot(20, 3, 0.0);
+    let y = rng.lot(17, 3, 0.3);
+    let c = run(&x, &y, 0.05).unwrap();
+    let a = DVector::from_vec(c.discriminant.coefficients.clone());
+    let project = |m: &DMatrix<f64>| DMatrix::from_column_slice(m.nrows(), 1, (m * &a).as_slice());
+    let one = run(&project(&x), &project(&y), 0.05).unwrap();
+    assert!(rel(one.hotelling.t2, c.hotelling.t2) < 1e-10);
+    // Any other direction gives less.
+    for _ in 0..20 {
+        let b = DVector::from_fn(3, |_, _| rng.normal());
+        let pb = |m: &DMatrix<f64>| DMatrix::from_column_slice(m.nrows(), 1, (m * &b).as_slice());
+        let other = run(&pb(&x), &pb(&y), 0.05).unwrap();
+        assert!(other.hotelling.t2 <= c.hotelling.t2 * (1.0 + 1e-12));
+    }
+}
+
+#[test]
+fn lots_far_from_zero_lose_no_digits() {
+    // Issue requirement: lots near 1e6 with spreads near 1e-2 agree with the same data near
+    // zero. Multiples of 2^-14 are exact at both magnitudes, so any disagreement is the
+    // computation's own.
+    let mut rng = Rng(16);
+    let q = |v: f64| (v * 16384.0).round() / 16384.0;
+    let x0 = rng.lot(25, 3, 0.0).map(|v| q(0.01 * v));
+    let y0 = rng.lot(30, 3, 0.0).map(|v| q(0.01 * v + 0.004));
+    let far = |m: &DMatrix<f64>| m.map(|v| v + 1.0e6);
+    let near = run(&x0, &y0, 0.05).unwrap();
+    let away = run(&far(&x0), &far(&y0), 0.05).unwrap();
+    assert!(rel(away.hotelling.t2, near.hotelling.t2) < 1e-9, "{} vs {}", away.hotelling.t2, near.hotelling.t2);
+    for k in 0..3 {
+        assert!(rel(away.intervals[k].difference, near.intervals[k].difference) < 1e-9);
+    }
+}
+
+#[test]
+fn false_alarm_rate_under_equal_means_is_alpha() {
+    // Simulation: 3000 seeded pairs of lots with equal means (p = 3, n = 12 and 20). The
+    // rejection rate must lie inside the 99% binomial band around alpha = 0.05:
+    // 0.05 ± 2.576·sqrt(0.05·0.95/3000) = 0.05 ± 0.0103.
+    let mut rng = Rng(17);
+    let trials = 3000;
+    let mut rejected = 0;
+    for _ in 0..trials {
+        let x = rng.lot(12, 3, 0.0);
+        let y = rng.lot(20, 3, 0.0);
+        let c = analysis::compare(
+            &names(3),
+            &[None, None, None],
+            [LotData { name: "1", data: &x }, LotData { name: "2", data: &y }],
+            &Settings {
+                alpha: 0.05,
+                leave_one_out: false,
+            },
+            &Silent,
+        )
+        .unwrap();
+        rejected += usize::from(c.hotelling.differ);
+    }
+    let rate = rejected as f64 / trials as f64;
+    assert!((rate - 0.05).abs() < 0.0103, "rejection rate {rate}");
+}
+
+#[test]
+fn degenerate_inputs_name_the_culprits() {
+    let mut rng = Rng(18);
+    // Too few units: n1 + n2 - 2 < p.
+    let x = rng.lot(2, 4, 0.0);
+    let y = rng.lot(3, 4, 0.0);
+    assert_eq!(run(&x, &y, 0.05).unwrap_err(), EngineError::TooFewUnits { n1: 2, n2: 3, p: 4 });
+    // A constant characteristic.
+    let mut x = rng.lot(10, 3, 0.0);
+    let mut y = rng.lot(10, 3, 0.0);
+    x.column_mut(1).fill(5.0);
+    y.column_mut(1).fill(5.0);
+    assert_eq!(run(&x, &y, 0.05).unwrap_err(), EngineError::Constant { names: vec!["c1".into()] });
+    // Collinear: c2 = 2 c0 - c1 exactly.
+    let mut x = rng.lot(10, 3, 0.0);
+    let mut y = rng.lot(12, 3, 0.0);
+    for m in [&mut x, &mut y] {
+        for i in 0..m.nrows() {
+            m[(i, 2)] = 2.0 * m[(i, 0)] - m[(i, 1)];
+        }
+    }
+    match run(&x, &y, 0.05).unwrap_err() {
+        EngineError::Collinear { mut names, .. } => {
+            names.sort();
+            assert_eq!(names, vec!["c0", "c1", "c2"]);
+        }
+        e => panic!("{e}"),
+    }
+    // Nearly collinear: a warning that names them, and a result.
+    let mut x = rng.lot(40, 3, 0.0);
+    let mut y = rng.lot(40, 3, 0.0);
+    for m in [&mut x, &mut y] {
+        for i in 0..m.nrows() {
+            m[(i, 2)] = m[(i, 0)] + 1e-4 * rng.normal();
+        }
+    }
+    let c = run(&x, &y, 0.05).unwrap();
+    assert_eq!(c.warnings.len(), 1);
+    assert!(c.warnings[0].contains("\"c0\"") && c.warnings[0].contains("\"c2\""), "{}", c.warnings[0]);
+    assert!(!c.warnings[0].contains("\"c1\""), "{}", c.warnings[0]);
+}
+
+#[test]
+fn sample_lots_show_the_planted_shift() {
+    // The generator (sample-lots/generate.py) planted a shift of +0.35 SD in hub length and
+    // -0.35 SD in flange thickness (correlated 0.85) and nothing else.
+    let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/sample-lots/");
+    let files = [
+        std::path::PathBuf::from(format!("{dir}reference-route-a.csv")),
+        std::path::PathBuf::from(format!("{dir}candidate-route-b.csv")),
+    ];
+    let [a, b] = data::load_two(&files, None, None, &LoadOptions::default()).unwrap();
+    let p = data::prepare(&a, &b, &Selection::default()).unwrap();
+    let c = analysis::compare(
+        &p.characteristics,
+        &p.units,
+        [
+            LotData { name: "a", data: &p.lots[0].data },
+            LotData { name: "b", data: &p.lots[1].data },
+        ],
+        &Settings::default(),
+        &Silent,
+    )
+    .unwrap();
+    assert!(c.hotelling.differ, "the multivariate test finds the shift (p = {})", c.hotelling.p_value);
+    let mut lead: Vec<&str> = c.ranking[..2].iter().map(|r| r.characteristic.as_str()).collect();
+    lead.sort();
+    assert_eq!(lead, vec!["flange thickness", "hub length"]);
+    for r in &c.per_characteristic {
+        assert!(r.pooled_p > 0.05, "{} alone would not flag it (p = {})", r.characteristic, r.pooled_p);
+    }
+    // The pair with no shift is not flagged.
+    let repeat = data::load(std::path::Path::new(&format!("{dir}repeat-route-a.csv")), &LoadOptions::default()).unwrap();
+    let p = data::prepare(&a, &repeat, &Selection::default()).unwrap();
+    let c = analysis::compare(
+        &p.characteristics,
+        &p.units,
+        [
+            LotData { name: "a", data: &p.lots[0].data },
+            LotData { name: "r", data: &p.lots[1].data },
+        ],
+        &Settings::default(),
+        &Silent,
+    )
+    .unwrap();
+    assert!(!c.hotelling.differ);
+}
