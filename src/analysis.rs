@@ -4,9 +4,9 @@
 use nalgebra::{DMatrix, DVector, Matrix2};
 use serde::{Deserialize, Serialize};
 
-use crate::stats::hotelling::{self, Pooled, CONDITION_WARN};
-use crate::stats::moments::{column_summary, ColumnSummary, LotMoments};
-use crate::stats::{discriminant, ellipse, quote_list, EngineError};
+use crate::stats::hotelling::{self, CONDITION_WARN, Pooled};
+use crate::stats::moments::{ColumnSummary, LotMoments, column_summary};
+use crate::stats::{EngineError, discriminant, ellipse, quote_list};
 
 /// What to compute and at which level.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -339,7 +339,9 @@ pub fn compare_summaries(
         if lot.n == 0 {
             return Err(EngineError::EmptyLot(lot.name.clone()));
         }
-        let cov = DMatrix::from_fn(p, p, |i, j| 0.5 * (lot.covariance[i][j] + lot.covariance[j][i]));
+        let cov = DMatrix::from_fn(p, p, |i, j| {
+            0.5 * (lot.covariance[i][j] + lot.covariance[j][i])
+        });
         let mean = DVector::from_vec(lot.mean.clone());
         moments.push(LotMoments::from_summary(lot.n, &mean, &cov, &origin));
     }
@@ -519,7 +521,11 @@ pub fn format_confidence(alpha: f64) -> String {
 /// Formats a number with `sig` significant digits, switching to exponent form when needed.
 pub fn format_sig(x: f64, sig: usize) -> String {
     if !x.is_finite() {
-        return if x.is_nan() { "n/a".into() } else { format!("{x}") };
+        return if x.is_nan() {
+            "n/a".into()
+        } else {
+            format!("{x}")
+        };
     }
     if x == 0.0 {
         return "0".into();
@@ -532,7 +538,12 @@ pub fn format_sig(x: f64, sig: usize) -> String {
     format!("{x:.decimals$}")
 }
 
-fn verdict_text(h: &HotellingResult, alpha: f64, ranking: &[Contribution], iv: &[Interval]) -> String {
+fn verdict_text(
+    h: &HotellingResult,
+    alpha: f64,
+    ranking: &[Contribution],
+    iv: &[Interval],
+) -> String {
     let stats = format!(
         "T² = {}, F({}, {}) = {}, p = {}",
         format_sig(h.t2, 4),
@@ -604,7 +615,8 @@ pub fn pair_geometry(c: &Comparison, i: usize, j: usize, coverage: f64) -> PairG
         [c.lots[0].mean[i], c.lots[0].mean[j]],
         [c.lots[1].mean[i], c.lots[1].mean[j]],
     ];
-    let per_lot = |k: usize, r2: f64| ellipse::outline(means[k], sub(&c.lots[k].covariance), r2, segments);
+    let per_lot =
+        |k: usize, r2: f64| ellipse::outline(means[k], sub(&c.lots[k].covariance), r2, segments);
     let n1 = c.lots[0].n;
     let n2 = c.lots[1].n;
     let scale = 1.0 / n1 as f64 + 1.0 / n2 as f64;

@@ -163,7 +163,8 @@ pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], String> {
         labels: args.labels.clone(),
     };
     let wanted = args.lots.as_ref().map(|v| [v[0].as_str(), v[1].as_str()]);
-    data::load_two(&args.files, args.split_by.as_deref(), wanted, &options).map_err(|e| e.to_string())
+    data::load_two(&args.files, args.split_by.as_deref(), wanted, &options)
+        .map_err(|e| e.to_string())
 }
 
 fn emit_json(target: &Option<String>, record: &Record) -> Result<(), String> {
@@ -206,7 +207,11 @@ fn compare(a: CompareArgs) -> CliResult {
         &Silent,
     )
     .map_err(|e| e.to_string())?;
-    let record = Record::new(&c, Some(&prepared), [Some(&lots[0].provenance), Some(&lots[1].provenance)]);
+    let record = Record::new(
+        &c,
+        Some(&prepared),
+        [Some(&lots[0].provenance), Some(&lots[1].provenance)],
+    );
     if a.json.as_deref() != Some("-") {
         let files = [
             lots[0].provenance.file_name.as_str(),
@@ -223,11 +228,15 @@ fn compare(a: CompareArgs) -> CliResult {
 }
 
 fn compare_stats(a: StatsArgs) -> CliResult {
-    let text = std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let text =
+        std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
     let spec: StatsFile =
         serde_json::from_str(&text).map_err(|e| format!("{}: {e}", a.file.display()))?;
     let [l1, l2] = spec.lots.as_slice() else {
-        return Err(format!("{}: \"lots\" must hold exactly two lots", a.file.display()));
+        return Err(format!(
+            "{}: \"lots\" must hold exactly two lots",
+            a.file.display()
+        ));
     };
     let units = if spec.units.is_empty() {
         vec![None; spec.characteristics.len()]
@@ -272,7 +281,10 @@ fn inspect(a: InspectArgs) -> CliResult {
             other => format!("{other:?}"),
         };
         println!("delimiter   {name}");
-        println!("decimal     {}", if p.decimal_comma { "comma" } else { "point" });
+        println!(
+            "decimal     {}",
+            if p.decimal_comma { "comma" } else { "point" }
+        );
     }
     if let Some(e) = &p.encoding {
         println!("encoding    {e}");
@@ -280,14 +292,26 @@ fn inspect(a: InspectArgs) -> CliResult {
     if let Some(s) = &p.sheet {
         println!("sheet       {s}");
     }
-    println!("data rows   {} (rows {}..{})", lot.len(), lot.rows.first().unwrap_or(&0), lot.rows.last().unwrap_or(&0));
+    println!(
+        "data rows   {} (rows {}..{})",
+        lot.len(),
+        lot.rows.first().unwrap_or(&0),
+        lot.rows.last().unwrap_or(&0)
+    );
     for n in &p.notes {
         println!("note        {n}");
     }
     println!("\ncolumns");
-    println!("  {:<4} {:<28} {:<15} {:<10} {:>8}", "col", "header", "role", "unit", "missing");
+    println!(
+        "  {:<4} {:<28} {:<15} {:<10} {:>8}",
+        "col", "header", "role", "unit", "missing"
+    );
     for c in &lot.columns {
-        let role = if c.is_numeric() { "characteristic" } else { "label" };
+        let role = if c.is_numeric() {
+            "characteristic"
+        } else {
+            "label"
+        };
         println!(
             "  {:<4} {:<28} {:<15} {:<10} {:>8}",
             data::column_letter(c.position),

@@ -2,8 +2,8 @@
 
 use std::time::{Duration, Instant};
 
-use egui_kittest::kittest::Queryable as _;
 use egui_kittest::Harness;
+use egui_kittest::kittest::Queryable as _;
 use lotshift::gui::worker::Slot;
 use lotshift::gui::{LotshiftApp, Saved};
 
@@ -46,7 +46,11 @@ fn sample_lots_load_and_every_view_shows_its_content() {
     h.get_by_label("Intervals").click();
     h.run_steps(2);
     h.get_by_label_contains("with 95% intervals, in pooled standard deviations");
-    assert_eq!(h.get_all_by_label("Bonferroni").count(), 2, "key and table header");
+    assert_eq!(
+        h.get_all_by_label("Bonferroni").count(),
+        2,
+        "key and table header"
+    );
     h.get_by_label("Pairs").click();
     h.run_steps(2);
     h.get_by_label("grid of leading pairs");
@@ -63,13 +67,20 @@ fn a_bad_file_leaves_the_loaded_lots_alone() {
     let dir = std::env::temp_dir().join(format!("lotshift-gui-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     let bad = dir.join("bad-lot.csv");
-    std::fs::write(&bad, "bore diameter (mm),mass (g)\n12.0,141.2\n12.1,oops\n12.0,141.9\n").unwrap();
+    std::fs::write(
+        &bad,
+        "bore diameter (mm),mass (g)\n12.0,141.2\n12.1,oops\n12.0,141.9\n",
+    )
+    .unwrap();
     h.state_mut().load_paths(Slot::Candidate, vec![bad]);
     settle(&mut h);
     h.get_by_label_contains("bad-lot.csv, row 3, column B \"mass (g)\"");
     let state = h.state();
     assert_eq!(state.slots[1].as_ref().unwrap().name, "candidate-route-b");
-    assert_eq!(state.shown.as_ref().unwrap().comparison.hotelling.t2, t2_before);
+    assert_eq!(
+        state.shown.as_ref().unwrap().comparison.hotelling.t2,
+        t2_before
+    );
     assert!(state.shown_current);
     h.get_by_label("Dismiss").click();
     h.run_steps(2);

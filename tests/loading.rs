@@ -2,13 +2,15 @@
 //! exact place (file, row as a spreadsheet shows it, column) in each error.
 
 use lotshift::data::{
-    self, load, load_bytes, prepare, split_lot, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot,
-    PrepareError, Selection,
+    self, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot, PrepareError, Selection, load,
+    load_bytes, prepare, split_lot,
 };
 use std::path::{Path, PathBuf};
 
 fn sample(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-lots").join(name)
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("sample-lots")
+        .join(name)
 }
 
 fn read(name: &str, text: &[u8]) -> Result<Lot, LoadError> {
@@ -33,7 +35,11 @@ fn comma_csv_roles_units_and_rows() {
     assert!(!lot.provenance.decimal_comma);
     assert_eq!(lot.len(), 40);
     assert_eq!(lot.rows[0], 2, "first data row is spreadsheet row 2");
-    let roles: Vec<(&str, bool)> = lot.columns.iter().map(|c| (c.name.as_str(), c.is_numeric())).collect();
+    let roles: Vec<(&str, bool)> = lot
+        .columns
+        .iter()
+        .map(|c| (c.name.as_str(), c.is_numeric()))
+        .collect();
     assert_eq!(
         roles,
         vec![
@@ -56,10 +62,20 @@ fn comma_csv_roles_units_and_rows() {
 #[test]
 fn semicolon_decimal_comma_crlf_reads_the_same_numbers() {
     let plain = load(&sample("candidate-route-b.csv"), &LoadOptions::default()).unwrap();
-    let euro = load(&sample("candidate-route-b-semicolon.csv"), &LoadOptions::default()).unwrap();
+    let euro = load(
+        &sample("candidate-route-b-semicolon.csv"),
+        &LoadOptions::default(),
+    )
+    .unwrap();
     assert_eq!(euro.provenance.delimiter, Some(';'));
     assert!(euro.provenance.decimal_comma);
-    for c in ["bore diameter", "outer diameter", "hub length", "flange thickness", "mass"] {
+    for c in [
+        "bore diameter",
+        "outer diameter",
+        "hub length",
+        "flange thickness",
+        "mass",
+    ] {
         assert_eq!(numbers(&plain, c), numbers(&euro, c), "{c}");
     }
 }
@@ -142,7 +158,12 @@ fn non_numeric_cell_names_file_row_column_and_text() {
     assert_eq!(e.row, Some(3));
     assert_eq!(e.column.as_deref(), Some("y"));
     assert_eq!(e.position, Some(1));
-    assert_eq!(e.kind, LoadErrorKind::NotNumeric { text: "4.4.4".into() });
+    assert_eq!(
+        e.kind,
+        LoadErrorKind::NotNumeric {
+            text: "4.4.4".into()
+        }
+    );
     let msg = e.to_string();
     assert!(msg.contains("lots/a.csv, row 3, column B \"y\""), "{msg}");
 }
@@ -153,7 +174,12 @@ fn infinite_values_are_refused() {
     assert_eq!((e.row, e.position), (Some(3), Some(0)));
     assert_eq!(e.kind, LoadErrorKind::NotFinite { text: "inf".into() });
     let e = err("a.csv", b"x\n1\n1e999\n2\n");
-    assert_eq!(e.kind, LoadErrorKind::NotFinite { text: "1e999".into() });
+    assert_eq!(
+        e.kind,
+        LoadErrorKind::NotFinite {
+            text: "1e999".into()
+        }
+    );
 }
 
 #[test]
@@ -161,22 +187,46 @@ fn empty_header_only_ragged_duplicate_binary_utf16() {
     assert_eq!(err("e.csv", b"").kind, LoadErrorKind::Empty);
     assert_eq!(err("e.csv", b"  \n\n").kind, LoadErrorKind::Empty);
     let e = err("h.csv", b"a,b,c\n");
-    assert_eq!((e.kind.clone(), e.row), (LoadErrorKind::HeaderOnly, Some(1)));
+    assert_eq!(
+        (e.kind.clone(), e.row),
+        (LoadErrorKind::HeaderOnly, Some(1))
+    );
     let e = err("r.csv", b"a,b,c\n1,2,3\n4,5\n");
     assert_eq!(e.row, Some(3));
-    assert_eq!(e.kind, LoadErrorKind::Ragged { found: 2, expected: 3 });
+    assert_eq!(
+        e.kind,
+        LoadErrorKind::Ragged {
+            found: 2,
+            expected: 3
+        }
+    );
     let e = err("r.csv", b"a,b\n1,2\n4,5,6\n");
-    assert_eq!(e.kind, LoadErrorKind::Ragged { found: 3, expected: 2 });
+    assert_eq!(
+        e.kind,
+        LoadErrorKind::Ragged {
+            found: 3,
+            expected: 2
+        }
+    );
     let e = err("d.csv", b"Bore (mm),x, bore \n1,2,3\n");
-    assert_eq!((e.row, e.position, e.column.as_deref()), (Some(1), Some(2), Some("bore")));
+    assert_eq!(
+        (e.row, e.position, e.column.as_deref()),
+        (Some(1), Some(2), Some("bore"))
+    );
     assert_eq!(
         e.kind,
         LoadErrorKind::DuplicateColumn {
             first: "column A \"Bore (mm)\"".into()
         }
     );
-    assert_eq!(err("b.csv", b"\x00\x01\x02garbage\xff").kind, LoadErrorKind::Binary);
-    assert!(matches!(err("u.csv", b"\xff\xfea\x00,\x00b\x00").kind, LoadErrorKind::Encoding(_)));
+    assert_eq!(
+        err("b.csv", b"\x00\x01\x02garbage\xff").kind,
+        LoadErrorKind::Binary
+    );
+    assert!(matches!(
+        err("u.csv", b"\xff\xfea\x00,\x00b\x00").kind,
+        LoadErrorKind::Encoding(_)
+    ));
 }
 
 #[test]
@@ -210,7 +260,13 @@ fn forced_labels_keep_numeric_serials_out_of_the_analysis() {
 
 #[test]
 fn one_file_split_by_lot_column_equals_two_files() {
-    let [a, b] = data::load_two(&[sample("both-routes.csv")], Some("route"), None, &LoadOptions::default()).unwrap();
+    let [a, b] = data::load_two(
+        &[sample("both-routes.csv")],
+        Some("route"),
+        None,
+        &LoadOptions::default(),
+    )
+    .unwrap();
     assert_eq!((a.name.as_str(), b.name.as_str()), ("A", "B"));
     let ref_a = load(&sample("reference-route-a.csv"), &LoadOptions::default()).unwrap();
     assert_eq!(numbers(&a, "hub length"), numbers(&ref_a, "hub length"));
@@ -218,7 +274,13 @@ fn one_file_split_by_lot_column_equals_two_files() {
     assert_eq!(b.rows[0], 42, "rows keep their place in the combined file");
     assert_eq!(a.provenance.split, Some(("route".into(), "A".into())));
     // Chosen order reverses the lots.
-    let [x, y] = data::load_two(&[sample("both-routes.csv")], Some("ROUTE"), Some(["b", "a"]), &LoadOptions::default()).unwrap();
+    let [x, y] = data::load_two(
+        &[sample("both-routes.csv")],
+        Some("ROUTE"),
+        Some(["b", "a"]),
+        &LoadOptions::default(),
+    )
+    .unwrap();
     assert_eq!((x.name.as_str(), y.name.as_str()), ("B", "A"));
 }
 
@@ -226,7 +288,9 @@ fn one_file_split_by_lot_column_equals_two_files() {
 fn lot_column_with_one_or_three_values() {
     let one = read("one.csv", b"lot,x\nA,1\nA,2\n").unwrap();
     let e = split_lot(&one, "lot", None).unwrap_err();
-    assert!(matches!(&e.kind, LoadErrorKind::LotValues { values, .. } if values == &vec!["A".to_string()]));
+    assert!(
+        matches!(&e.kind, LoadErrorKind::LotValues { values, .. } if values == &vec!["A".to_string()])
+    );
     let three = read("three.csv", b"lot,x\nA,1\nB,2\nC,3\nA,4\n").unwrap();
     let e = split_lot(&three, "lot", None).unwrap_err();
     assert!(e.to_string().contains("more than two lots"), "{e}");
@@ -243,11 +307,18 @@ fn matching_ignores_case_spaces_and_order_and_reports_unmatched() {
     let a = read("a.csv", b"Bore Dia (mm),len,only_a\n1,2,3\n2,3,4\n3,5,5\n").unwrap();
     let b = read("b.csv", b"LEN,bore dia [mm],only_b\n2,1,0\n3,3,1\n4,2,7\n").unwrap();
     let p = prepare(&a, &b, &Selection::default()).unwrap();
-    assert_eq!(p.characteristics, vec!["Bore Dia".to_string(), "len".to_string()]);
+    assert_eq!(
+        p.characteristics,
+        vec!["Bore Dia".to_string(), "len".to_string()]
+    );
     // Candidate columns are reordered to match.
     assert_eq!(p.lots[1].data[(0, 0)], 1.0);
     assert_eq!(p.lots[1].data[(0, 1)], 2.0);
-    let unmatched: Vec<(usize, &str)> = p.unmatched.iter().map(|u| (u.lot, u.column.as_str())).collect();
+    let unmatched: Vec<(usize, &str)> = p
+        .unmatched
+        .iter()
+        .map(|u| (u.lot, u.column.as_str()))
+        .collect();
     assert_eq!(unmatched, vec![(0, "only_a"), (1, "only_b")]);
 }
 
@@ -278,7 +349,10 @@ fn no_common_column_unknown_characteristic_unit_mismatch() {
     assert!(matches!(e, PrepareError::UnknownCharacteristic { ref name, .. } if name == "z"));
     let mm = read("mm.csv", b"d (mm),e\n1,2\n2,3\n").unwrap();
     let inch = read("in.csv", b"d (in),e\n1,2\n2,3\n").unwrap();
-    assert!(matches!(prepare(&mm, &inch, &Selection::default()).unwrap_err(), PrepareError::UnitMismatch { .. }));
+    assert!(matches!(
+        prepare(&mm, &inch, &Selection::default()).unwrap_err(),
+        PrepareError::UnitMismatch { .. }
+    ));
 }
 
 #[test]

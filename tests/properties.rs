@@ -27,7 +27,13 @@ impl Rng {
     fn lot(&mut self, n: usize, p: usize, shift: f64) -> DMatrix<f64> {
         // Correlated characteristics: x = z L with a fixed lower-triangular L.
         let z = DMatrix::from_fn(n, p, |_, _| self.normal());
-        let l = DMatrix::from_fn(p, p, |i, j| if i >= j { 1.0 / (1.0 + (i - j) as f64) } else { 0.0 });
+        let l = DMatrix::from_fn(p, p, |i, j| {
+            if i >= j {
+                1.0 / (1.0 + (i - j) as f64)
+            } else {
+                0.0
+            }
+        });
         let mut x = z * l.transpose();
         for k in 0..p {
             for i in 0..n {
@@ -47,7 +53,10 @@ fn run(x: &DMatrix<f64>, y: &DMatrix<f64>, alpha: f64) -> Result<Comparison, Eng
     analysis::compare(
         &names(p),
         &vec![None; p],
-        [LotData { name: "1", data: x }, LotData { name: "2", data: y }],
+        [
+            LotData { name: "1", data: x },
+            LotData { name: "2", data: y },
+        ],
         &Settings {
             alpha,
             leave_one_out: true,
@@ -79,8 +88,14 @@ fn t2_is_invariant_under_affine_maps() {
     let c1 = run(&map(&x), &map(&y), 0.05).unwrap();
     assert!(rel(c1.hotelling.t2, c0.hotelling.t2) < 1e-8);
     assert!(rel(c1.hotelling.p_value, c0.hotelling.p_value) < 1e-8);
-    assert_eq!(c1.discriminant.leave_one_out_misclassified, c0.discriminant.leave_one_out_misclassified);
-    assert_eq!(c1.discriminant.apparent_misclassified, c0.discriminant.apparent_misclassified);
+    assert_eq!(
+        c1.discriminant.leave_one_out_misclassified,
+        c0.discriminant.leave_one_out_misclassified
+    );
+    assert_eq!(
+        c1.discriminant.apparent_misclassified,
+        c0.discriminant.apparent_misclassified
+    );
 }
 
 #[test]
@@ -94,8 +109,18 @@ fn swapping_lots_changes_only_signs() {
     assert!(rel(s.hotelling.t2, c.hotelling.t2) < 1e-12);
     for k in 0..3 {
         assert!(rel(-s.intervals[k].difference, c.intervals[k].difference) < 1e-12);
-        assert!(rel(-s.intervals[k].simultaneous[1], c.intervals[k].simultaneous[0]) < 1e-12);
-        assert!(rel(-s.discriminant.coefficients[k], c.discriminant.coefficients[k]) < 1e-10);
+        assert!(
+            rel(
+                -s.intervals[k].simultaneous[1],
+                c.intervals[k].simultaneous[0]
+            ) < 1e-12
+        );
+        assert!(
+            rel(
+                -s.discriminant.coefficients[k],
+                c.discriminant.coefficients[k]
+            ) < 1e-10
+        );
     }
     let lc = c.discriminant.leave_one_out_misclassified.unwrap();
     let ls = s.discriminant.leave_one_out_misclassified.unwrap();
@@ -162,7 +187,12 @@ fn lots_far_from_zero_lose_no_digits() {
     let far = |m: &DMatrix<f64>| m.map(|v| v + 1.0e6);
     let near = run(&x0, &y0, 0.05).unwrap();
     let away = run(&far(&x0), &far(&y0), 0.05).unwrap();
-    assert!(rel(away.hotelling.t2, near.hotelling.t2) < 1e-9, "{} vs {}", away.hotelling.t2, near.hotelling.t2);
+    assert!(
+        rel(away.hotelling.t2, near.hotelling.t2) < 1e-9,
+        "{} vs {}",
+        away.hotelling.t2,
+        near.hotelling.t2
+    );
     for k in 0..3 {
         assert!(rel(away.intervals[k].difference, near.intervals[k].difference) < 1e-9);
     }
@@ -182,7 +212,16 @@ fn false_alarm_rate_under_equal_means_is_alpha() {
         let c = analysis::compare(
             &names(3),
             &[None, None, None],
-            [LotData { name: "1", data: &x }, LotData { name: "2", data: &y }],
+            [
+                LotData {
+                    name: "1",
+                    data: &x,
+                },
+                LotData {
+                    name: "2",
+                    data: &y,
+                },
+            ],
             &Settings {
                 alpha: 0.05,
                 leave_one_out: false,
@@ -202,13 +241,21 @@ fn degenerate_inputs_name_the_culprits() {
     // Too few units: n1 + n2 - 2 < p.
     let x = rng.lot(2, 4, 0.0);
     let y = rng.lot(3, 4, 0.0);
-    assert_eq!(run(&x, &y, 0.05).unwrap_err(), EngineError::TooFewUnits { n1: 2, n2: 3, p: 4 });
+    assert_eq!(
+        run(&x, &y, 0.05).unwrap_err(),
+        EngineError::TooFewUnits { n1: 2, n2: 3, p: 4 }
+    );
     // A constant characteristic.
     let mut x = rng.lot(10, 3, 0.0);
     let mut y = rng.lot(10, 3, 0.0);
     x.column_mut(1).fill(5.0);
     y.column_mut(1).fill(5.0);
-    assert_eq!(run(&x, &y, 0.05).unwrap_err(), EngineError::Constant { names: vec!["c1".into()] });
+    assert_eq!(
+        run(&x, &y, 0.05).unwrap_err(),
+        EngineError::Constant {
+            names: vec!["c1".into()]
+        }
+    );
     // Collinear: c2 = 2 c0 - c1 exactly.
     let mut x = rng.lot(10, 3, 0.0);
     let mut y = rng.lot(12, 3, 0.0);
@@ -234,7 +281,11 @@ fn degenerate_inputs_name_the_culprits() {
     }
     let c = run(&x, &y, 0.05).unwrap();
     assert_eq!(c.warnings.len(), 1);
-    assert!(c.warnings[0].contains("\"c0\"") && c.warnings[0].contains("\"c2\""), "{}", c.warnings[0]);
+    assert!(
+        c.warnings[0].contains("\"c0\"") && c.warnings[0].contains("\"c2\""),
+        "{}",
+        c.warnings[0]
+    );
     assert!(!c.warnings[0].contains("\"c1\""), "{}", c.warnings[0]);
 }
 
@@ -253,29 +304,57 @@ fn sample_lots_show_the_planted_shift() {
         &p.characteristics,
         &p.units,
         [
-            LotData { name: "a", data: &p.lots[0].data },
-            LotData { name: "b", data: &p.lots[1].data },
+            LotData {
+                name: "a",
+                data: &p.lots[0].data,
+            },
+            LotData {
+                name: "b",
+                data: &p.lots[1].data,
+            },
         ],
         &Settings::default(),
         &Silent,
     )
     .unwrap();
-    assert!(c.hotelling.differ, "the multivariate test finds the shift (p = {})", c.hotelling.p_value);
-    let mut lead: Vec<&str> = c.ranking[..2].iter().map(|r| r.characteristic.as_str()).collect();
+    assert!(
+        c.hotelling.differ,
+        "the multivariate test finds the shift (p = {})",
+        c.hotelling.p_value
+    );
+    let mut lead: Vec<&str> = c.ranking[..2]
+        .iter()
+        .map(|r| r.characteristic.as_str())
+        .collect();
     lead.sort();
     assert_eq!(lead, vec!["flange thickness", "hub length"]);
     for r in &c.per_characteristic {
-        assert!(r.pooled_p > 0.05, "{} alone would not flag it (p = {})", r.characteristic, r.pooled_p);
+        assert!(
+            r.pooled_p > 0.05,
+            "{} alone would not flag it (p = {})",
+            r.characteristic,
+            r.pooled_p
+        );
     }
     // The pair with no shift is not flagged.
-    let repeat = data::load(std::path::Path::new(&format!("{dir}repeat-route-a.csv")), &LoadOptions::default()).unwrap();
+    let repeat = data::load(
+        std::path::Path::new(&format!("{dir}repeat-route-a.csv")),
+        &LoadOptions::default(),
+    )
+    .unwrap();
     let p = data::prepare(&a, &repeat, &Selection::default()).unwrap();
     let c = analysis::compare(
         &p.characteristics,
         &p.units,
         [
-            LotData { name: "a", data: &p.lots[0].data },
-            LotData { name: "r", data: &p.lots[1].data },
+            LotData {
+                name: "a",
+                data: &p.lots[0].data,
+            },
+            LotData {
+                name: "r",
+                data: &p.lots[1].data,
+            },
         ],
         &Settings::default(),
         &Silent,

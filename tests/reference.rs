@@ -10,8 +10,11 @@ use serde_json::Value;
 const FIXTURE_REL: f64 = 1e-10;
 
 fn fixtures() -> Value {
-    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/tests/fixtures/reference.json"))
-        .expect("fixture file");
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/reference.json"
+    ))
+    .expect("fixture file");
     serde_json::from_str(&text).expect("fixture JSON")
 }
 
@@ -55,7 +58,16 @@ fn every_fixture_case_matches_numpy_and_scipy() {
         let c = analysis::compare(
             &names,
             &vec![None; p],
-            [LotData { name: "1", data: &x }, LotData { name: "2", data: &y }],
+            [
+                LotData {
+                    name: "1",
+                    data: &x,
+                },
+                LotData {
+                    name: "2",
+                    data: &y,
+                },
+            ],
             &settings,
             &Silent,
         )
@@ -77,7 +89,12 @@ fn every_fixture_case_matches_numpy_and_scipy() {
         for k in 0..p {
             let iv = &c.intervals[k];
             let tag = |s: &str| format!("{name} [{k}] {s}");
-            close(iv.difference, num(&e["difference"][k]), FIXTURE_REL, &tag("difference"));
+            close(
+                iv.difference,
+                num(&e["difference"][k]),
+                FIXTURE_REL,
+                &tag("difference"),
+            );
             for (got, key) in [
                 (iv.simultaneous, "simultaneous"),
                 (iv.bonferroni, "bonferroni"),
@@ -88,16 +105,56 @@ fn every_fixture_case_matches_numpy_and_scipy() {
                 close(got[1], want[1], FIXTURE_REL, &tag(key));
             }
             let d = &c.discriminant;
-            close(d.coefficients[k], num(&e["coefficients"][k]), FIXTURE_REL, &tag("coefficients"));
-            close(d.standardized[k], num(&e["standardized"][k]), FIXTURE_REL, &tag("standardized"));
-            close(d.structure[k], num(&e["structure"][k]), FIXTURE_REL, &tag("structure"));
+            close(
+                d.coefficients[k],
+                num(&e["coefficients"][k]),
+                FIXTURE_REL,
+                &tag("coefficients"),
+            );
+            close(
+                d.standardized[k],
+                num(&e["standardized"][k]),
+                FIXTURE_REL,
+                &tag("standardized"),
+            );
+            close(
+                d.structure[k],
+                num(&e["structure"][k]),
+                FIXTURE_REL,
+                &tag("structure"),
+            );
             let r = &c.per_characteristic[k];
-            close(r.pooled_t, num(&e["pooled_t"][k]), FIXTURE_REL, &tag("pooled_t"));
-            close(r.pooled_p, num(&e["pooled_p"][k]), FIXTURE_REL, &tag("pooled_p"));
-            close(r.welch_t, num(&e["welch_t"][k]), FIXTURE_REL, &tag("welch_t"));
-            close(r.welch_df, num(&e["welch_df"][k]), FIXTURE_REL, &tag("welch_df"));
+            close(
+                r.pooled_t,
+                num(&e["pooled_t"][k]),
+                FIXTURE_REL,
+                &tag("pooled_t"),
+            );
+            close(
+                r.pooled_p,
+                num(&e["pooled_p"][k]),
+                FIXTURE_REL,
+                &tag("pooled_p"),
+            );
+            close(
+                r.welch_t,
+                num(&e["welch_t"][k]),
+                FIXTURE_REL,
+                &tag("welch_t"),
+            );
+            close(
+                r.welch_df,
+                num(&e["welch_df"][k]),
+                FIXTURE_REL,
+                &tag("welch_df"),
+            );
             close(r.welch_p, num(&e["welch_p"][k]), 1e-9, &tag("welch_p"));
-            close(r.lots[0].median, num(&e["median1"][k]), 1e-14, &tag("median"));
+            close(
+                r.lots[0].median,
+                num(&e["median1"][k]),
+                1e-14,
+                &tag("median"),
+            );
             close(r.lots[0].sd, num(&e["sd1"][k]), FIXTURE_REL, &tag("sd"));
             // Unique contribution against refitting without the characteristic.
             let drop = c
@@ -112,10 +169,28 @@ fn every_fixture_case_matches_numpy_and_scipy() {
                 "{name} [{k}] t2_drop {drop} vs {want}"
             );
         }
-        let app: Vec<usize> = e["apparent"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
-        let loo: Vec<usize> = e["leave_one_out"].as_array().unwrap().iter().map(|v| v.as_u64().unwrap() as usize).collect();
-        assert_eq!(c.discriminant.apparent_misclassified.unwrap().to_vec(), app, "{name} apparent");
-        assert_eq!(c.discriminant.leave_one_out_misclassified.unwrap().to_vec(), loo, "{name} holdout");
+        let app: Vec<usize> = e["apparent"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_u64().unwrap() as usize)
+            .collect();
+        let loo: Vec<usize> = e["leave_one_out"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|v| v.as_u64().unwrap() as usize)
+            .collect();
+        assert_eq!(
+            c.discriminant.apparent_misclassified.unwrap().to_vec(),
+            app,
+            "{name} apparent"
+        );
+        assert_eq!(
+            c.discriminant.leave_one_out_misclassified.unwrap().to_vec(),
+            loo,
+            "{name} holdout"
+        );
     }
 }
 
@@ -125,23 +200,48 @@ fn distributions_match_scipy() {
     let d = &fx["distributions"];
     for row in d["f_sf"].as_array().unwrap() {
         let r = nums(row);
-        close(dist::f_sf(r[0], r[1], r[2]), r[3], 1e-12, &format!("f_sf {r:?}"));
+        close(
+            dist::f_sf(r[0], r[1], r[2]),
+            r[3],
+            1e-12,
+            &format!("f_sf {r:?}"),
+        );
     }
     for row in d["f_isf"].as_array().unwrap() {
         let r = nums(row);
-        close(dist::f_isf(r[0], r[1], r[2]), r[3], 1e-12, &format!("f_isf {r:?}"));
+        close(
+            dist::f_isf(r[0], r[1], r[2]),
+            r[3],
+            1e-12,
+            &format!("f_isf {r:?}"),
+        );
     }
     for row in d["t_isf2"].as_array().unwrap() {
         let r = nums(row);
-        close(dist::t_isf2(r[0], r[1]), r[2], 1e-12, &format!("t_isf2 {r:?}"));
+        close(
+            dist::t_isf2(r[0], r[1]),
+            r[2],
+            1e-12,
+            &format!("t_isf2 {r:?}"),
+        );
     }
     for row in d["t_sf2"].as_array().unwrap() {
         let r = nums(row);
-        close(dist::t_sf2(r[0], r[1]), r[2], 1e-12, &format!("t_sf2 {r:?}"));
+        close(
+            dist::t_sf2(r[0], r[1]),
+            r[2],
+            1e-12,
+            &format!("t_sf2 {r:?}"),
+        );
     }
     for row in d["chi2_sf"].as_array().unwrap() {
         let r = nums(row);
-        close(dist::chi2_sf(r[0], r[1]), r[2], 1e-12, &format!("chi2_sf {r:?}"));
+        close(
+            dist::chi2_sf(r[0], r[1]),
+            r[2],
+            1e-12,
+            &format!("chi2_sf {r:?}"),
+        );
     }
 }
 
@@ -164,9 +264,14 @@ fn johnson_wichern_example_6_3_soap() {
     let a = summary("method 1", 50, [8.3, 4.1], [[2.0, 1.0], [1.0, 6.0]]);
     let b = summary("method 2", 50, [10.2, 3.9], [[2.0, 1.0], [1.0, 4.0]]);
     let names = vec!["lather".to_string(), "mildness".to_string()];
-    let c = analysis::compare_summaries(&names, &[None, None], [&a, &b], &Settings::default()).unwrap();
+    let c =
+        analysis::compare_summaries(&names, &[None, None], [&a, &b], &Settings::default()).unwrap();
     assert!((c.hotelling.t2 - 52.47).abs() < 0.005, "{}", c.hotelling.t2);
-    assert!((c.hotelling.critical_t2 - 6.26).abs() < 0.03, "{}", c.hotelling.critical_t2);
+    assert!(
+        (c.hotelling.critical_t2 - 6.26).abs() < 0.03,
+        "{}",
+        c.hotelling.critical_t2
+    );
     assert!(c.hotelling.differ);
     // Exact algebra of the same inputs: Sp = [[2, 1], [1, 5]], d = (-1.9, 0.2),
     // dᵀ Sp⁻¹ d = 18.89 / 9, so T² = 25 · 18.89 / 9.
@@ -182,14 +287,28 @@ fn johnson_wichern_example_6_4_electricity() {
     // S1 = [[13825.3, 23823.4], [23823.4, 73107.4]], S2 = [[8632.0, 19616.7],
     // [19616.7, 55964.5]]; published T² ≈ 16.1 (> c² ≈ 6.26) and the simultaneous interval
     // for the first difference (21.7, 127.1) with c² = 6.26.
-    let a = summary("air conditioning", 45, [204.4, 556.6], [[13825.3, 23823.4], [23823.4, 73107.4]]);
-    let b = summary("none", 55, [130.0, 355.0], [[8632.0, 19616.7], [19616.7, 55964.5]]);
+    let a = summary(
+        "air conditioning",
+        45,
+        [204.4, 556.6],
+        [[13825.3, 23823.4], [23823.4, 73107.4]],
+    );
+    let b = summary(
+        "none",
+        55,
+        [130.0, 355.0],
+        [[8632.0, 19616.7], [19616.7, 55964.5]],
+    );
     let names = vec!["on-peak".to_string(), "off-peak".to_string()];
-    let c = analysis::compare_summaries(&names, &[None, None], [&a, &b], &Settings::default()).unwrap();
+    let c =
+        analysis::compare_summaries(&names, &[None, None], [&a, &b], &Settings::default()).unwrap();
     assert!((c.hotelling.t2 - 16.07).abs() < 0.01, "{}", c.hotelling.t2);
     let iv = c.intervals[0].simultaneous;
     // The book's c² is rounded; the exact one is a little smaller, so allow 0.2.
-    assert!((iv[0] - 21.7).abs() < 0.2 && (iv[1] - 127.1).abs() < 0.2, "{iv:?}");
+    assert!(
+        (iv[0] - 21.7).abs() < 0.2 && (iv[1] - 127.1).abs() < 0.2,
+        "{iv:?}"
+    );
 }
 
 #[test]

@@ -4,8 +4,8 @@
 use std::borrow::Cow;
 
 use super::{
-    classify, column_letter, match_key, parse_cell, split_header, Cell, Column, ColumnData,
-    LoadError, LoadErrorKind, LoadOptions, Lot, Provenance, TextColumn,
+    Cell, Column, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot, Provenance, TextColumn,
+    classify, column_letter, match_key, parse_cell, split_header,
 };
 
 /// Rows used to decide each column's role.
@@ -161,7 +161,11 @@ pub(super) fn read(
                 &text,
                 pos,
                 LoadErrorKind::DuplicateColumn {
-                    first: format!("column {} \"{}\"", column_letter(prev.position), prev.header),
+                    first: format!(
+                        "column {} \"{}\"",
+                        column_letter(prev.position),
+                        prev.header
+                    ),
                 },
             ));
         }
@@ -205,88 +209,93 @@ pub(super) fn read(
     for (k, col) in columns.iter_mut().enumerate() {
         let (mut num, mut txt) = (0, 0);
         for (rec, _) in &sample {
-            match rec.get(k).map(|b| parse_cell(&decode(b, latin1), decimal_comma)) {
+            match rec
+                .get(k)
+                .map(|b| parse_cell(&decode(b, latin1), decimal_comma))
+            {
                 Some(Cell::Number(_) | Cell::Infinite) => num += 1,
                 Some(Cell::Text) => txt += 1,
                 _ => {}
             }
         }
-        let forced_label = forced.contains(&match_key(&col.name)) || forced.contains(&match_key(&col.header));
+        let forced_label =
+            forced.contains(&match_key(&col.name)) || forced.contains(&match_key(&col.header));
         col.numeric = classify(num, txt, forced_label);
     }
 
     let mut rows: Vec<u32> = Vec::with_capacity(sample.len());
-    let mut push = |rec: &csv::ByteRecord, row: usize, columns: &mut [Builder]| -> Result<(), LoadError> {
-        if rec.len() < width {
-            // A blank line inside the data reads as one empty field: treat as no unit.
-            if rec.len() == 1 && rec.get(0).is_some_and(|f| f.trim_ascii().is_empty()) {
-                return Ok(());
-            }
-            return Err(LoadError::at_row(
-                path,
-                row,
-                LoadErrorKind::Ragged {
-                    found: rec.len(),
-                    expected: width,
-                },
-            ));
-        }
-        if rec.len() > width && rec.iter().skip(width).any(|f| !f.trim_ascii().is_empty()) {
-            return Err(LoadError::at_row(
-                path,
-                row,
-                LoadErrorKind::Ragged {
-                    found: rec.len(),
-                    expected: width,
-                },
-            ));
-        }
-        for (k, col) in columns.iter_mut().enumerate() {
-            let raw = rec.get(k).unwrap_or_default();
-            if col.numeric {
-                let text = decode(raw, latin1);
-                let v = match parse_cell(&text, decimal_comma) {
-                    Cell::Number(v) => v,
-                    Cell::Missing => {
-                        col.missing += 1;
-                        f64::NAN
-                    }
-                    Cell::Infinite => {
-                        return Err(LoadError::at_cell(
-                            path,
-                            row,
-                            &col.header,
-                            col.position,
-                            LoadErrorKind::NotFinite {
-                                text: text.trim().to_string(),
-                            },
-                        ));
-                    }
-                    Cell::Text => {
-                        return Err(LoadError::at_cell(
-                            path,
-                            row,
-                            &col.header,
-                            col.position,
-                            LoadErrorKind::NotNumeric {
-                                text: text.trim().to_string(),
-                            },
-                        ));
-                    }
-                };
-                col.values.push(v);
-            } else {
-                let text = decode(raw, latin1);
-                let t = text.trim();
-                if t.is_empty() {
-                    col.missing += 1;
+    let mut push =
+        |rec: &csv::ByteRecord, row: usize, columns: &mut [Builder]| -> Result<(), LoadError> {
+            if rec.len() < width {
+                // A blank line inside the data reads as one empty field: treat as no unit.
+                if rec.len() == 1 && rec.get(0).is_some_and(|f| f.trim_ascii().is_empty()) {
+                    return Ok(());
                 }
-                col.text.push(t);
+                return Err(LoadError::at_row(
+                    path,
+                    row,
+                    LoadErrorKind::Ragged {
+                        found: rec.len(),
+                        expected: width,
+                    },
+                ));
             }
-        }
-        rows.push(u32::try_from(row).unwrap_or(u32::MAX));
-        Ok(())
-    };
+            if rec.len() > width && rec.iter().skip(width).any(|f| !f.trim_ascii().is_empty()) {
+                return Err(LoadError::at_row(
+                    path,
+                    row,
+                    LoadErrorKind::Ragged {
+                        found: rec.len(),
+                        expected: width,
+                    },
+                ));
+            }
+            for (k, col) in columns.iter_mut().enumerate() {
+                let raw = rec.get(k).unwrap_or_default();
+                if col.numeric {
+                    let text = decode(raw, latin1);
+                    let v = match parse_cell(&text, decimal_comma) {
+                        Cell::Number(v) => v,
+                        Cell::Missing => {
+                            col.missing += 1;
+                            f64::NAN
+                        }
+                        Cell::Infinite => {
+                            return Err(LoadError::at_cell(
+                                path,
+                                row,
+                                &col.header,
+                                col.position,
+                                LoadErrorKind::NotFinite {
+                                    text: text.trim().to_string(),
+                                },
+                            ));
+                        }
+                        Cell::Text => {
+                            return Err(LoadError::at_cell(
+                                path,
+                                row,
+                                &col.header,
+                                col.position,
+                                LoadErrorKind::NotNumeric {
+                                    text: text.trim().to_string(),
+                                },
+                            ));
+                        }
+                    };
+                    col.values.push(v);
+                } else {
+                    let text = decode(raw, latin1);
+                    let t = text.trim();
+                    if t.is_empty() {
+                        col.missing += 1;
+                    }
+                    col.text.push(t);
+                }
+            }
+            rows.push(u32::try_from(row).unwrap_or(u32::MAX));
+            Ok(())
+        };
     for (rec, row) in &sample {
         push(rec, *row, &mut columns)?;
     }

@@ -100,7 +100,13 @@ impl LoadError {
     }
 
     /// An error at a cell.
-    pub fn at_cell(file: &str, row: usize, column: &str, position: usize, kind: LoadErrorKind) -> Self {
+    pub fn at_cell(
+        file: &str,
+        row: usize,
+        column: &str,
+        position: usize,
+        kind: LoadErrorKind,
+    ) -> Self {
         LoadError {
             row: Some(row),
             column: Some(column.to_string()),

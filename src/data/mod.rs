@@ -8,7 +8,7 @@ mod sheet;
 mod split;
 
 pub use error::{LoadError, LoadErrorKind, PrepareError};
-pub use pair::{prepare, Prepared, PreparedLot, Selection, Unmatched};
+pub use pair::{Prepared, PreparedLot, Selection, Unmatched, prepare};
 pub use split::{lot_values, split_lot};
 
 use std::path::Path;
@@ -251,7 +251,8 @@ pub(crate) fn parse_cell(raw: &str, decimal_comma: bool) -> Cell {
 /// A [`LoadError`] naming the file, and where it applies the row and column.
 pub fn load(path: &Path, options: &LoadOptions) -> Result<Lot, LoadError> {
     let display = path.display().to_string();
-    let bytes = std::fs::read(path).map_err(|e| LoadError::new(&display, LoadErrorKind::Io(e.to_string())))?;
+    let bytes = std::fs::read(path)
+        .map_err(|e| LoadError::new(&display, LoadErrorKind::Io(e.to_string())))?;
     load_bytes(&display, &bytes, options)
 }
 
@@ -289,11 +290,12 @@ pub fn load_bytes(path: &str, bytes: &[u8], options: &LoadOptions) -> Result<Lot
         .unwrap_or_default();
     let is_zip = bytes.starts_with(b"PK\x03\x04");
     let is_ole = bytes.starts_with(&[0xD0, 0xCF, 0x11, 0xE0]);
-    let mut lot = if matches!(ext.as_str(), "xlsx" | "xlsm" | "xlsb" | "xls" | "ods") || is_zip || is_ole {
-        sheet::read(path, bytes, &ext, options, provenance)?
-    } else {
-        delimited::read(path, bytes, options, provenance)?
-    };
+    let mut lot =
+        if matches!(ext.as_str(), "xlsx" | "xlsm" | "xlsb" | "xls" | "ods") || is_zip || is_ole {
+            sheet::read(path, bytes, &ext, options, provenance)?
+        } else {
+            delimited::read(path, bytes, options, provenance)?
+        };
     lot.name = stem;
     lot.provenance.rows_read = lot.rows.len();
     Ok(lot)
@@ -313,44 +315,6 @@ pub fn hex(bytes: &[u8]) -> String {
 /// than half of the non-missing cells read as numbers (a forced label stays a label).
 pub(crate) fn classify(numeric: usize, text: usize, forced_label: bool) -> bool {
     !forced_label && (numeric > 0 && text * 2 < numeric + text || numeric == 0 && text == 0)
-}
-
-#[cfg(test)]
-mod tests {
-    use super::*;
-
-    #[test]
-    fn headers_carry_units() {
-        assert_eq!(split_header("Bore (mm)"), ("Bore".into(), Some("mm".into())));
-        assert_eq!(split_header(" mass [g] "), ("mass".into(), Some("g".into())));
-        assert_eq!(split_header("plain"), ("plain".into(), None));
-        assert_eq!(split_header("(mm)"), ("(mm)".into(), None));
-    }
-
-    #[test]
-    fn letters_like_a_spreadsheet() {
-        assert_eq!(column_letter(0), "A");
-        assert_eq!(column_letter(25), "Z");
-        assert_eq!(column_letter(26), "AA");
-        assert_eq!(column_letter(701), "ZZ");
-        assert_eq!(column_letter(702), "AAA");
-    }
-
-    #[test]
-    fn cells() {
-        assert_eq!(parse_cell(" 12.5 ", false), Cell::Number(12.5));
-        assert_eq!(parse_cell("12,5", true), Cell::Number(12.5));
-        assert_eq!(parse_cell("12,5", false), Cell::Text);
-        assert_eq!(parse_cell("1.234,5", true), Cell::Text);
-        assert_eq!(parse_cell("#N/A", false), Cell::Missing);
-        assert_eq!(parse_cell("NaN", false), Cell::Missing);
-        assert_eq!(parse_cell("-", false), Cell::Missing);
-        assert_eq!(parse_cell("-inf", false), Cell::Infinite);
-        assert_eq!(parse_cell("1e400", false), Cell::Infinite);
-        assert_eq!(parse_cell("+3e-2", false), Cell::Number(0.03));
-        assert_eq!(parse_cell("HB-001", false), Cell::Text);
-        assert_eq!(match_key(" Bore  Diameter"), "borediameter");
-    }
 }
 
 /// Loads the two lots of a comparison: two files, or one file split by a lot column.
@@ -404,5 +368,49 @@ pub fn load_two(
             "",
             LoadErrorKind::Io("give two lot files, or one file and a lot column".into()),
         )),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn headers_carry_units() {
+        assert_eq!(
+            split_header("Bore (mm)"),
+            ("Bore".into(), Some("mm".into()))
+        );
+        assert_eq!(
+            split_header(" mass [g] "),
+            ("mass".into(), Some("g".into()))
+        );
+        assert_eq!(split_header("plain"), ("plain".into(), None));
+        assert_eq!(split_header("(mm)"), ("(mm)".into(), None));
+    }
+
+    #[test]
+    fn letters_like_a_spreadsheet() {
+        assert_eq!(column_letter(0), "A");
+        assert_eq!(column_letter(25), "Z");
+        assert_eq!(column_letter(26), "AA");
+        assert_eq!(column_letter(701), "ZZ");
+        assert_eq!(column_letter(702), "AAA");
+    }
+
+    #[test]
+    fn cells() {
+        assert_eq!(parse_cell(" 12.5 ", false), Cell::Number(12.5));
+        assert_eq!(parse_cell("12,5", true), Cell::Number(12.5));
+        assert_eq!(parse_cell("12,5", false), Cell::Text);
+        assert_eq!(parse_cell("1.234,5", true), Cell::Text);
+        assert_eq!(parse_cell("#N/A", false), Cell::Missing);
+        assert_eq!(parse_cell("NaN", false), Cell::Missing);
+        assert_eq!(parse_cell("-", false), Cell::Missing);
+        assert_eq!(parse_cell("-inf", false), Cell::Infinite);
+        assert_eq!(parse_cell("1e400", false), Cell::Infinite);
+        assert_eq!(parse_cell("+3e-2", false), Cell::Number(0.03));
+        assert_eq!(parse_cell("HB-001", false), Cell::Text);
+        assert_eq!(match_key(" Bore  Diameter"), "borediameter");
     }
 }

@@ -3,7 +3,7 @@
 
 use nalgebra::DMatrix;
 
-use super::{match_key, ColumnData, Lot, PrepareError};
+use super::{ColumnData, Lot, PrepareError, match_key};
 
 /// Which characteristics to compare.
 #[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
@@ -110,11 +110,16 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
         let key = match_key(name);
         let mut where_ = Vec::new();
         for lot in lots {
-            match lot.columns.iter().find(|c| match_key(&c.name) == key || match_key(&c.header) == key) {
+            match lot
+                .columns
+                .iter()
+                .find(|c| match_key(&c.name) == key || match_key(&c.header) == key)
+            {
                 None => where_.push(format!("is not in \"{}\"", lot.provenance.file_name)),
-                Some(c) if !c.is_numeric() => {
-                    where_.push(format!("is text, not numeric, in \"{}\"", lot.provenance.file_name))
-                }
+                Some(c) if !c.is_numeric() => where_.push(format!(
+                    "is text, not numeric, in \"{}\"",
+                    lot.provenance.file_name
+                )),
                 _ => {}
             }
         }
@@ -217,7 +222,10 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
         }
         units.push(ua.clone().or_else(|| ub.clone()));
     }
-    let characteristics: Vec<String> = pairs.iter().map(|&(ia, _)| a.columns[ia].name.clone()).collect();
+    let characteristics: Vec<String> = pairs
+        .iter()
+        .map(|&(ia, _)| a.columns[ia].name.clone())
+        .collect();
     let build = |lot: &Lot, idx: Vec<usize>| -> PreparedLot {
         let cols: Vec<&[f64]> = idx
             .iter()
@@ -227,7 +235,9 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
             })
             .collect();
         let n = lot.len();
-        let kept: Vec<usize> = (0..n).filter(|&r| cols.iter().all(|c| !c[r].is_nan())).collect();
+        let kept: Vec<usize> = (0..n)
+            .filter(|&r| cols.iter().all(|c| !c[r].is_nan()))
+            .collect();
         let missing: Vec<usize> = idx.iter().map(|&i| lot.columns[i].missing).collect();
         let mut data = DMatrix::zeros(kept.len(), cols.len());
         for (k, c) in cols.iter().enumerate() {

@@ -3,11 +3,11 @@
 
 use std::io::Cursor;
 
-use calamine::{open_workbook_auto_from_rs, Data, Range, Reader as _};
+use calamine::{Data, Range, Reader as _, open_workbook_auto_from_rs};
 
 use super::{
-    classify, column_letter, match_key, parse_cell, split_header, Cell, Column, ColumnData,
-    LoadError, LoadErrorKind, LoadOptions, Lot, Provenance, TextColumn,
+    Cell, Column, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot, Provenance, TextColumn,
+    classify, column_letter, match_key, parse_cell, split_header,
 };
 
 const CLASSIFY_ROWS: usize = 1000;
@@ -37,7 +37,8 @@ fn cell_text(d: &Data) -> String {
 }
 
 fn has_data(r: &Range<Data>) -> bool {
-    r.rows().any(|row| row.iter().any(|c| !matches!(c, Data::Empty)))
+    r.rows()
+        .any(|row| row.iter().any(|c| !matches!(c, Data::Empty)))
 }
 
 pub(super) fn read(
@@ -48,37 +49,40 @@ pub(super) fn read(
     mut provenance: Provenance,
 ) -> Result<Lot, LoadError> {
     // A malformed workbook must give an error, never bring the program down.
-    let opened = std::panic::catch_unwind(|| -> Result<(String, Range<Data>, Vec<String>), LoadError> {
-        let mut book = open_workbook_auto_from_rs(Cursor::new(bytes))
-            .map_err(|e| LoadError::new(path, LoadErrorKind::Spreadsheet(e.to_string())))?;
-        let names = book.sheet_names();
-        if let Some(want) = &options.sheet {
-            let Some(name) = names.iter().find(|n| n.eq_ignore_ascii_case(want)).cloned() else {
-                return Err(LoadError::new(
-                    path,
-                    LoadErrorKind::NoSuchSheet {
-                        sheet: want.clone(),
-                        available: names,
-                    },
-                ));
-            };
-            let range = book
-                .worksheet_range(&name)
+    let opened = std::panic::catch_unwind(
+        || -> Result<(String, Range<Data>, Vec<String>), LoadError> {
+            let mut book = open_workbook_auto_from_rs(Cursor::new(bytes))
                 .map_err(|e| LoadError::new(path, LoadErrorKind::Spreadsheet(e.to_string())))?;
-            return Ok((name, range, Vec::new()));
-        }
-        let mut skipped = Vec::new();
-        for name in &names {
-            let range = book
-                .worksheet_range(name)
-                .map_err(|e| LoadError::new(path, LoadErrorKind::Spreadsheet(e.to_string())))?;
-            if has_data(&range) {
-                return Ok((name.clone(), range, skipped));
+            let names = book.sheet_names();
+            if let Some(want) = &options.sheet {
+                let Some(name) = names.iter().find(|n| n.eq_ignore_ascii_case(want)).cloned()
+                else {
+                    return Err(LoadError::new(
+                        path,
+                        LoadErrorKind::NoSuchSheet {
+                            sheet: want.clone(),
+                            available: names,
+                        },
+                    ));
+                };
+                let range = book
+                    .worksheet_range(&name)
+                    .map_err(|e| LoadError::new(path, LoadErrorKind::Spreadsheet(e.to_string())))?;
+                return Ok((name, range, Vec::new()));
             }
-            skipped.push(name.clone());
-        }
-        Err(LoadError::new(path, LoadErrorKind::NoData))
-    });
+            let mut skipped = Vec::new();
+            for name in &names {
+                let range = book
+                    .worksheet_range(name)
+                    .map_err(|e| LoadError::new(path, LoadErrorKind::Spreadsheet(e.to_string())))?;
+                if has_data(&range) {
+                    return Ok((name.clone(), range, skipped));
+                }
+                skipped.push(name.clone());
+            }
+            Err(LoadError::new(path, LoadErrorKind::NoData))
+        },
+    );
     let (sheet, range, skipped) = match opened {
         Ok(r) => r?,
         Err(_) => {
@@ -88,12 +92,16 @@ pub(super) fn read(
             ));
         }
     };
-    provenance.format = if ext.is_empty() { "spreadsheet".into() } else { ext.to_string() };
+    provenance.format = if ext.is_empty() {
+        "spreadsheet".into()
+    } else {
+        ext.to_string()
+    };
     provenance.sheet = Some(sheet.clone());
     for s in skipped {
-        provenance
-            .notes
-            .push(format!("sheet \"{s}\" is empty; read sheet \"{sheet}\" instead"));
+        provenance.notes.push(format!(
+            "sheet \"{s}\" is empty; read sheet \"{sheet}\" instead"
+        ));
     }
     let (row0, col0) = range.start().unwrap_or((0, 0));
     let mut rows_iter = range
@@ -105,8 +113,15 @@ pub(super) fn read(
         return Err(LoadError::new(path, LoadErrorKind::Empty));
     };
     let body: Vec<(usize, &[Data])> = rows_iter.collect();
-    if body.iter().all(|(_, r)| r.iter().all(|c| matches!(c, Data::Empty))) {
-        return Err(LoadError::at_row(path, header_row, LoadErrorKind::HeaderOnly));
+    if body
+        .iter()
+        .all(|(_, r)| r.iter().all(|c| matches!(c, Data::Empty)))
+    {
+        return Err(LoadError::at_row(
+            path,
+            header_row,
+            LoadErrorKind::HeaderOnly,
+        ));
     }
     let forced: Vec<String> = options.labels.iter().map(|l| match_key(l)).collect();
     let mut columns: Vec<Column> = Vec::new();
@@ -118,20 +133,28 @@ pub(super) fn read(
         } else {
             split_header(&text)
         };
-        let all_empty = body
-            .iter()
-            .all(|(_, r)| r.get(k).is_none_or(|c| matches!(cell_kind(c), Cell::Missing)));
+        let all_empty = body.iter().all(|(_, r)| {
+            r.get(k)
+                .is_none_or(|c| matches!(cell_kind(c), Cell::Missing))
+        });
         if text.is_empty() && all_empty {
             continue;
         }
-        if let Some(prev) = columns.iter().find(|c| match_key(&c.name) == match_key(&name)) {
+        if let Some(prev) = columns
+            .iter()
+            .find(|c| match_key(&c.name) == match_key(&name))
+        {
             return Err(LoadError::at_cell(
                 path,
                 header_row,
                 &text,
                 pos,
                 LoadErrorKind::DuplicateColumn {
-                    first: format!("column {} \"{}\"", column_letter(prev.position), prev.header),
+                    first: format!(
+                        "column {} \"{}\"",
+                        column_letter(prev.position),
+                        prev.header
+                    ),
                 },
             ));
         }
@@ -162,7 +185,9 @@ pub(super) fn read(
                             *row,
                             &text,
                             pos,
-                            LoadErrorKind::NotFinite { text: cell_text(cell) },
+                            LoadErrorKind::NotFinite {
+                                text: cell_text(cell),
+                            },
                         ));
                     }
                     Cell::Text => {
@@ -171,7 +196,9 @@ pub(super) fn read(
                             *row,
                             &text,
                             pos,
-                            LoadErrorKind::NotNumeric { text: cell_text(cell) },
+                            LoadErrorKind::NotNumeric {
+                                text: cell_text(cell),
+                            },
                         ));
                     }
                 }
@@ -201,6 +228,9 @@ pub(super) fn read(
         name: String::new(),
         provenance,
         columns,
-        rows: body.iter().map(|(r, _)| u32::try_from(*r).unwrap_or(u32::MAX)).collect(),
+        rows: body
+            .iter()
+            .map(|(r, _)| u32::try_from(*r).unwrap_or(u32::MAX))
+            .collect(),
     })
 }

@@ -1,6 +1,6 @@
 //! One file holding both lots, split by a lot column.
 
-use super::{match_key, Column, ColumnData, LoadError, LoadErrorKind, Lot};
+use super::{Column, ColumnData, LoadError, LoadErrorKind, Lot, match_key};
 
 /// Distinct non-empty values of the lot column, in order of first appearance.
 ///
@@ -38,7 +38,11 @@ fn find<'a>(lot: &'a Lot, column: &str) -> Result<&'a Column, LoadError> {
 /// # Errors
 /// No such column, a single value, more than two values with none chosen, or a chosen value
 /// that does not occur.
-pub fn split_lot(lot: &Lot, column: &str, wanted: Option<[&str; 2]>) -> Result<[Lot; 2], LoadError> {
+pub fn split_lot(
+    lot: &Lot,
+    column: &str,
+    wanted: Option<[&str; 2]>,
+) -> Result<[Lot; 2], LoadError> {
     let col = find(lot, column)?;
     let values = lot_values(lot, column)?;
     let err = |why: String| LoadError {
@@ -86,7 +90,9 @@ pub fn split_lot(lot: &Lot, column: &str, wanted: Option<[&str; 2]>) -> Result<[
             .filter(|c| c.position != key)
             .map(|c| {
                 let data = match &c.data {
-                    ColumnData::Numeric(v) => ColumnData::Numeric(idx.iter().map(|&i| v[i]).collect()),
+                    ColumnData::Numeric(v) => {
+                        ColumnData::Numeric(idx.iter().map(|&i| v[i]).collect())
+                    }
                     ColumnData::Text(t) => ColumnData::Text(t.select(&idx)),
                 };
                 let missing = match &data {

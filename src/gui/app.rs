@@ -8,8 +8,8 @@ use std::sync::{Arc, Mutex};
 use egui::{Color32, Key, KeyboardShortcut, Modifiers, RichText};
 use serde::{Deserialize, Serialize};
 
-use crate::analysis::{format_p, format_sig, Settings};
-use crate::data::{self, match_key, ColumnData, Lot, Selection};
+use crate::analysis::{Settings, format_p, format_sig};
+use crate::data::{self, ColumnData, Lot, Selection, match_key};
 
 use super::shown::Shown;
 use super::worker::{Outcome, Slot, Source, Worker};
@@ -134,6 +134,9 @@ pub struct Combined {
     values: [String; 2],
 }
 
+/// Outcome of a screenshot, filled in by the screenshot callback.
+pub type ScreenshotOutcome = Arc<Mutex<Option<Result<(), String>>>>;
+
 /// Request to render the window to a PNG and close.
 pub struct ScreenshotPlan {
     path: PathBuf,
@@ -141,7 +144,7 @@ pub struct ScreenshotPlan {
     requested: bool,
     started: std::time::Instant,
     /// Outcome, set by the screenshot callback.
-    pub done: Arc<Mutex<Option<Result<(), String>>>>,
+    pub done: ScreenshotOutcome,
 }
 
 /// The application.
@@ -208,7 +211,8 @@ impl LotshiftApp {
             self.saved.recent.insert(0, s);
         }
         self.saved.recent.truncate(10);
-        self.worker.load(slot, paths.into_iter().map(Source::Path).collect());
+        self.worker
+            .load(slot, paths.into_iter().map(Source::Path).collect());
     }
 
     /// Renders to `path` once the first result is drawn, then closes.
@@ -223,7 +227,7 @@ impl LotshiftApp {
     }
 
     /// Outcome of the screenshot, once taken.
-    pub fn screenshot_result(&self) -> Option<Arc<Mutex<Option<Result<(), String>>>>> {
+    pub fn screenshot_result(&self) -> Option<ScreenshotOutcome> {
         self.screenshot.as_ref().map(|s| s.done.clone())
     }
 
@@ -237,7 +241,10 @@ impl LotshiftApp {
             .filter(|c| c.is_numeric() && self.excluded.contains(&match_key(&c.name)))
             .map(|c| c.name.clone())
             .collect();
-        Selection { only: None, exclude }
+        Selection {
+            only: None,
+            exclude,
+        }
     }
 
     /// Starts a new comparison of the current lots, selection and settings.
@@ -442,7 +449,10 @@ impl LotshiftApp {
             ui.separator();
             if ui
                 .button("Open lots…")
-                .on_hover_text(format!("Pick two lot files, reference first ({})", ui.ctx().format_shortcut(&OPEN)))
+                .on_hover_text(format!(
+                    "Pick two lot files, reference first ({})",
+                    ui.ctx().format_shortcut(&OPEN)
+                ))
                 .clicked()
             {
                 self.worker.pick(Slot::Both);
@@ -455,7 +465,10 @@ impl LotshiftApp {
                 self.worker.pick(Slot::Combined);
             }
             if ui
-                .add_enabled(self.slots.iter().all(Option::is_some), egui::Button::new("Swap lots"))
+                .add_enabled(
+                    self.slots.iter().all(Option::is_some),
+                    egui::Button::new("Swap lots"),
+                )
                 .on_hover_text(format!(
                     "Make the candidate the reference and vice versa ({})",
                     ui.ctx().format_shortcut(&SWAP)
@@ -492,7 +505,11 @@ impl LotshiftApp {
                     }
                 });
             }
-            if ui.button("Sample lots").on_hover_text("Load the bundled, invented sample lots").clicked() {
+            if ui
+                .button("Sample lots")
+                .on_hover_text("Load the bundled, invented sample lots")
+                .clicked()
+            {
                 self.load_samples();
             }
             ui.separator();
@@ -504,7 +521,8 @@ impl LotshiftApp {
                 );
                 if ui.button("Cancel").clicked() {
                     self.worker.cancel();
-                    self.run_error = Some("cancelled; the result shown is from the previous run".into());
+                    self.run_error =
+                        Some("cancelled; the result shown is from the previous run".into());
                 }
             } else if self.worker.busy() {
                 ui.spinner();
@@ -523,7 +541,11 @@ impl LotshiftApp {
             swatch(ui, color);
             ui.strong(title);
             if self.combined.is_none() && ui.small_button("Open…").clicked() {
-                self.worker.pick(if i == 0 { Slot::Reference } else { Slot::Candidate });
+                self.worker.pick(if i == 0 {
+                    Slot::Reference
+                } else {
+                    Slot::Candidate
+                });
             }
         });
         match &self.slots[i] {
@@ -540,7 +562,11 @@ impl LotshiftApp {
                     .map(|s| &s.prepared.lots[i]);
                 match used {
                     Some(pl) => {
-                        ui.label(format!("{} units used of {} read", pl.data.nrows(), pl.n_read));
+                        ui.label(format!(
+                            "{} units used of {} read",
+                            pl.data.nrows(),
+                            pl.n_read
+                        ));
                         if pl.n_excluded > 0 {
                             let why: Vec<String> = s_missing(self.shown.as_deref(), i);
                             ui.label(format!("{} left out for missing cells ({})", pl.n_excluded, why.join(", ")))
@@ -648,7 +674,12 @@ impl LotshiftApp {
         for (g, lot) in [(&a, &b), (&b, &a)].iter().enumerate() {
             for c in lot.0.columns.iter().filter(|c| c.is_numeric()) {
                 let key = match_key(&c.name);
-                if !lot.1.columns.iter().any(|x| x.is_numeric() && match_key(&x.name) == key) {
+                if !lot
+                    .1
+                    .columns
+                    .iter()
+                    .any(|x| x.is_numeric() && match_key(&x.name) == key)
+                {
                     ui.label(
                         RichText::new(format!(
                             "not compared: \"{}\" is only in the {} lot",
@@ -678,11 +709,16 @@ impl LotshiftApp {
                         .max_decimals(4),
                 )
                 .labelled_by(label.id)
-                .on_hover_text("Significance level of the test; intervals are at 1 - alpha confidence")
+                .on_hover_text(
+                    "Significance level of the test; intervals are at 1 - alpha confidence",
+                )
                 .changed();
         });
         changed |= ui
-            .checkbox(&mut self.saved.settings.leave_one_out, "leave-one-out misclassification")
+            .checkbox(
+                &mut self.saved.settings.leave_one_out,
+                "leave-one-out misclassification",
+            )
             .changed();
         ui.horizontal(|ui| {
             let label = ui.label("data ellipse coverage");
@@ -747,7 +783,10 @@ impl LotshiftApp {
             }
         });
         if let Some(e) = &self.run_error {
-            ui.label(RichText::new(format!("The comparison could not be made: {e}")).color(ui.visuals().error_fg_color));
+            ui.label(
+                RichText::new(format!("The comparison could not be made: {e}"))
+                    .color(ui.visuals().error_fg_color),
+            );
         }
         ui.separator();
         let Some(shown) = self.shown.as_deref_mut() else {
@@ -768,7 +807,9 @@ impl LotshiftApp {
     }
 
     fn screenshot_step(&mut self, ctx: &egui::Context) {
-        let Some(plan) = &mut self.screenshot else { return };
+        let Some(plan) = &mut self.screenshot else {
+            return;
+        };
         if plan.started.elapsed() > std::time::Duration::from_secs(180) {
             if let Ok(mut d) = plan.done.lock() {
                 *d = Some(Err("no result to show within 180 s".into()));
@@ -792,8 +833,14 @@ impl LotshiftApp {
             let repaint = ctx.clone();
             ctx.request_screenshot(move |img| {
                 let [w, h] = img.size;
-                let result = image::save_buffer(&path, img.as_raw(), w as u32, h as u32, image::ExtendedColorType::Rgba8)
-                    .map_err(|e| format!("{}: {e}", path.display()));
+                let result = image::save_buffer(
+                    &path,
+                    img.as_raw(),
+                    w as u32,
+                    h as u32,
+                    image::ExtendedColorType::Rgba8,
+                )
+                .map_err(|e| format!("{}: {e}", path.display()));
                 if let Ok(mut d) = done.lock() {
                     *d = Some(result);
                 }
@@ -823,7 +870,13 @@ fn s_missing(shown: Option<&Shown>, lot: usize) -> Vec<String> {
 
 fn sanitize(s: &str) -> String {
     s.chars()
-        .map(|c| if c.is_alphanumeric() || c == '-' { c } else { '_' })
+        .map(|c| {
+            if c.is_alphanumeric() || c == '-' {
+                c
+            } else {
+                '_'
+            }
+        })
         .collect()
 }
 

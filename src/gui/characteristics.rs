@@ -1,7 +1,7 @@
 //! The per-characteristic table: both lots side by side, the difference and the univariate
 //! tests; sortable, and copyable as tab-separated text for a spreadsheet.
 
-use crate::analysis::{format_p, format_sig, CharacteristicResult};
+use crate::analysis::{CharacteristicResult, format_p, format_sig};
 
 use super::app::Saved;
 use super::shown::Shown;

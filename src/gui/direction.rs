@@ -21,9 +21,16 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
     let order: Vec<usize> = c
         .ranking
         .iter()
-        .filter_map(|r| c.characteristics.iter().position(|n| n == &r.characteristic))
+        .filter_map(|r| {
+            c.characteristics
+                .iter()
+                .position(|n| n == &r.characteristic)
+        })
         .collect();
-    let names: Vec<String> = order.iter().map(|&k| c.characteristics[k].clone()).collect();
+    let names: Vec<String> = order
+        .iter()
+        .map(|&k| c.characteristics[k].clone())
+        .collect();
     let bars: Vec<Bar> = order
         .iter()
         .enumerate()

@@ -29,7 +29,12 @@ pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
     let names_axis = names.clone();
     let names_hover = names.clone();
     ui.horizontal(|ui| {
-        for (color, name) in [(SIM, "simultaneous (T²)"), (BONF, "Bonferroni"), (ONE, "one at a time"), (POINT, "difference")] {
+        for (color, name) in [
+            (SIM, "simultaneous (T²)"),
+            (BONF, "Bonferroni"),
+            (ONE, "one at a time"),
+            (POINT, "difference"),
+        ] {
             super::app::swatch(ui, color);
             ui.label(name);
             ui.add_space(10.0);
@@ -64,9 +69,21 @@ pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
                 let sd = c.per_characteristic[k].pooled_sd;
                 let y = -(k as f64);
                 let seg = |r: [f64; 2], dy: f64| vec![[r[0] / sd, y + dy], [r[1] / sd, y + dy]];
-                plot.line(Line::new("simultaneous (T²)", seg(iv.simultaneous, 0.18)).color(SIM).width(5.0));
-                plot.line(Line::new("Bonferroni", seg(iv.bonferroni, 0.0)).color(BONF).width(3.0));
-                plot.line(Line::new("one at a time", seg(iv.one_at_a_time, -0.18)).color(ONE).width(1.5));
+                plot.line(
+                    Line::new("simultaneous (T²)", seg(iv.simultaneous, 0.18))
+                        .color(SIM)
+                        .width(5.0),
+                );
+                plot.line(
+                    Line::new("Bonferroni", seg(iv.bonferroni, 0.0))
+                        .color(BONF)
+                        .width(3.0),
+                );
+                plot.line(
+                    Line::new("one at a time", seg(iv.one_at_a_time, -0.18))
+                        .color(ONE)
+                        .width(1.5),
+                );
                 let shape = if iv.excludes_zero[0] {
                     egui_plot::MarkerShape::Diamond
                 } else {
@@ -82,29 +99,44 @@ pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
         });
     ui.add_space(6.0);
     egui::ScrollArea::both().show(ui, |ui| {
-        egui::Grid::new("interval-table").striped(true).num_columns(5).show(ui, |ui| {
-            for h in ["characteristic", "difference", "simultaneous (T²)", "Bonferroni", "one at a time"] {
-                ui.strong(h);
-            }
-            ui.end_row();
-            for (k, iv) in c.intervals.iter().enumerate() {
-                let unit = c.units.get(k).cloned().flatten().map(|u| format!(" {u}")).unwrap_or_default();
-                ui.label(&iv.characteristic);
-                ui.label(format!("{}{unit}", format_sig(iv.difference, 4)));
-                for (r, flag) in [
-                    (iv.simultaneous, iv.excludes_zero[0]),
-                    (iv.bonferroni, iv.excludes_zero[1]),
-                    (iv.one_at_a_time, iv.excludes_zero[2]),
+        egui::Grid::new("interval-table")
+            .striped(true)
+            .num_columns(5)
+            .show(ui, |ui| {
+                for h in [
+                    "characteristic",
+                    "difference",
+                    "simultaneous (T²)",
+                    "Bonferroni",
+                    "one at a time",
                 ] {
-                    let text = format!("[{}, {}]", format_sig(r[0], 4), format_sig(r[1], 4));
-                    if flag {
-                        ui.label(RichText::new(format!("{text} excludes 0")).strong());
-                    } else {
-                        ui.label(text);
-                    }
+                    ui.strong(h);
                 }
                 ui.end_row();
-            }
-        });
+                for (k, iv) in c.intervals.iter().enumerate() {
+                    let unit = c
+                        .units
+                        .get(k)
+                        .cloned()
+                        .flatten()
+                        .map(|u| format!(" {u}"))
+                        .unwrap_or_default();
+                    ui.label(&iv.characteristic);
+                    ui.label(format!("{}{unit}", format_sig(iv.difference, 4)));
+                    for (r, flag) in [
+                        (iv.simultaneous, iv.excludes_zero[0]),
+                        (iv.bonferroni, iv.excludes_zero[1]),
+                        (iv.one_at_a_time, iv.excludes_zero[2]),
+                    ] {
+                        let text = format!("[{}, {}]", format_sig(r[0], 4), format_sig(r[1], 4));
+                        if flag {
+                            ui.label(RichText::new(format!("{text} excludes 0")).strong());
+                        } else {
+                            ui.label(text);
+                        }
+                    }
+                    ui.end_row();
+                }
+            });
     });
 }

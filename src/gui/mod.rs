@@ -19,14 +19,18 @@ pub use app::{LotshiftApp, Saved, View};
 /// and exits.
 pub fn run(files: Vec<PathBuf>, screenshot: Option<PathBuf>, view: Option<String>) -> ExitCode {
     if !(files.is_empty() || files.len() == 2) {
-        eprintln!("lotshift: error: give two lot files (reference, then candidate), or none for the sample lots");
+        eprintln!(
+            "lotshift: error: give two lot files (reference, then candidate), or none for the sample lots"
+        );
         return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
     }
     let start_view = match view.as_deref().map(View::from_name) {
         None => None,
         Some(Some(v)) => Some(v),
         Some(None) => {
-            eprintln!("lotshift: error: unknown view; use overview, characteristics, intervals, pairs or direction");
+            eprintln!(
+                "lotshift: error: unknown view; use overview, characteristics, intervals, pairs or direction"
+            );
             return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
         }
     };

@@ -34,50 +34,74 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown) {
             ui.label(RichText::new(format!("Warning: {w}")).color(ui.visuals().warn_fg_color));
         }
         ui.strong("Hotelling's two-sample T² test");
-        egui::Grid::new("test").striped(true).num_columns(2).show(ui, |ui| {
-            let rows = [
-                ("T²", format_sig(h.t2, 6)),
-                ("F", format!("{} on ({}, {}) degrees of freedom", format_sig(h.f, 6), h.df1, h.df2)),
-                ("p-value", format_p(h.p_value)),
-                (
-                    "critical T² at alpha",
-                    format!("{} (critical F {})", format_sig(h.critical_t2, 6), format_sig(h.critical_f, 6)),
-                ),
-                ("Mahalanobis D² between means", format_sig(h.mahalanobis_d2, 6)),
-                (
-                    "units compared",
-                    format!("{} (reference) and {} (candidate)", c.lots[0].n, c.lots[1].n),
-                ),
-            ];
-            for (k, v) in rows {
-                ui.label(k);
-                ui.label(v);
+        egui::Grid::new("test")
+            .striped(true)
+            .num_columns(2)
+            .show(ui, |ui| {
+                let rows = [
+                    ("T²", format_sig(h.t2, 6)),
+                    (
+                        "F",
+                        format!(
+                            "{} on ({}, {}) degrees of freedom",
+                            format_sig(h.f, 6),
+                            h.df1,
+                            h.df2
+                        ),
+                    ),
+                    ("p-value", format_p(h.p_value)),
+                    (
+                        "critical T² at alpha",
+                        format!(
+                            "{} (critical F {})",
+                            format_sig(h.critical_t2, 6),
+                            format_sig(h.critical_f, 6)
+                        ),
+                    ),
+                    (
+                        "Mahalanobis D² between means",
+                        format_sig(h.mahalanobis_d2, 6),
+                    ),
+                    (
+                        "units compared",
+                        format!(
+                            "{} (reference) and {} (candidate)",
+                            c.lots[0].n, c.lots[1].n
+                        ),
+                    ),
+                ];
+                for (k, v) in rows {
+                    ui.label(k);
+                    ui.label(v);
+                    ui.end_row();
+                }
+                let d = &c.discriminant;
+                if let Some(rate) = d.leave_one_out_rate {
+                    ui.label("misclassified, each unit held out");
+                    ui.label(format!("{:.1}% (by the discriminant rule)", 100.0 * rate));
+                    ui.end_row();
+                }
+                ui.label("condition of the pooled covariance");
+                ui.label(format_sig(c.condition_number, 3));
                 ui.end_row();
-            }
-            let d = &c.discriminant;
-            if let Some(rate) = d.leave_one_out_rate {
-                ui.label("misclassified, each unit held out");
-                ui.label(format!("{:.1}% (by the discriminant rule)", 100.0 * rate));
-                ui.end_row();
-            }
-            ui.label("condition of the pooled covariance");
-            ui.label(format_sig(c.condition_number, 3));
-            ui.end_row();
-        });
+            });
         ui.add_space(8.0);
         ui.strong("What drives the shift");
-        egui::Grid::new("drivers").striped(true).num_columns(3).show(ui, |ui| {
-            ui.label("characteristic");
-            ui.label("T² lost without it");
-            ui.label("standardized coefficient");
-            ui.end_row();
-            for r in &c.ranking {
-                ui.label(&r.characteristic);
-                ui.label(format_sig(r.t2_drop, 4));
-                ui.label(format_sig(r.standardized_coefficient, 3));
+        egui::Grid::new("drivers")
+            .striped(true)
+            .num_columns(3)
+            .show(ui, |ui| {
+                ui.label("characteristic");
+                ui.label("T² lost without it");
+                ui.label("standardized coefficient");
                 ui.end_row();
-            }
-        });
+                for r in &c.ranking {
+                    ui.label(&r.characteristic);
+                    ui.label(format_sig(r.t2_drop, 4));
+                    ui.label(format_sig(r.standardized_coefficient, 3));
+                    ui.end_row();
+                }
+            });
         ui.add_space(8.0);
         ui.strong("Assumption checks");
         ui.label(

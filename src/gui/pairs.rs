@@ -7,8 +7,8 @@ use egui_plot::{Legend, Line, LineStyle, MarkerShape, Plot, PlotPoints, Points};
 
 use crate::analysis::{format_confidence, format_sig};
 
-use super::app::{Saved, CANDIDATE_COLOR, REFERENCE_COLOR};
-use super::shown::{Shown, SMALL_POINTS};
+use super::app::{CANDIDATE_COLOR, REFERENCE_COLOR, Saved};
+use super::shown::{SMALL_POINTS, Shown};
 
 /// Characteristics in the small-multiples grid (those driving the shift most).
 pub const GRID_CHARACTERISTICS: usize = 6;
@@ -83,15 +83,27 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
         .small(),
     );
     let avail = ui.available_size();
-    let grid_w = if saved.pair_grid { (avail.x * 0.36).min(420.0) } else { 0.0 };
+    let grid_w = if saved.pair_grid {
+        (avail.x * 0.36).min(420.0)
+    } else {
+        0.0
+    };
     let main_w = (avail.x - grid_w - 12.0).max(200.0);
     let mut clicked_pair = None;
     ui.horizontal_top(|ui| {
         ui.vertical(|ui| {
             ui.set_width(main_w);
             let lots = [
-                (0, REFERENCE_COLOR, format!("reference: {}", s.comparison.lots[0].name)),
-                (1, CANDIDATE_COLOR, format!("candidate: {}", s.comparison.lots[1].name)),
+                (
+                    0,
+                    REFERENCE_COLOR,
+                    format!("reference: {}", s.comparison.lots[0].name),
+                ),
+                (
+                    1,
+                    CANDIDATE_COLOR,
+                    format!("candidate: {}", s.comparison.lots[1].name),
+                ),
             ];
             let hover_names = [lots[0].2.clone(), lots[1].2.clone()];
             let hover_text = s.unit_text.clone();
@@ -103,7 +115,9 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                 .x_axis_label(label(s, i))
                 .y_axis_label(label(s, j))
                 .label_formatter(move |h| match h {
-                    egui_plot::HoverPosition::NearDataPoint { plot_name, index, .. } => {
+                    egui_plot::HoverPosition::NearDataPoint {
+                        plot_name, index, ..
+                    } => {
                         let g = hover_names.iter().position(|n| n == plot_name)?;
                         hover_text[g].get(*index).cloned()
                     }
@@ -118,7 +132,12 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                         );
                         // Same name as the units: one legend entry per lot.
                         if let Some(e) = &view.geometry.mean_regions[*g] {
-                            plot.line(Line::new(name.clone(), e.clone()).color(*color).width(2.0).allow_hover(false));
+                            plot.line(
+                                Line::new(name.clone(), e.clone())
+                                    .color(*color)
+                                    .width(2.0)
+                                    .allow_hover(false),
+                            );
                         }
                         if let Some(e) = &view.geometry.data_ellipses[*g] {
                             plot.line(
@@ -179,14 +198,21 @@ fn difference_ui(
     } else {
         &g.difference_pair
     };
-    let covers_zero = outline.as_ref().map(|o| contains_origin(o)).unwrap_or(false);
+    let covers_zero = outline
+        .as_ref()
+        .map(|o| contains_origin(o))
+        .unwrap_or(false);
     Plot::new(("difference", i, j))
         .height((ui.available_height() - 24.0).max(160.0))
         .x_axis_label(format!("difference in {}", label(s, i)))
         .y_axis_label(format!("difference in {}", label(s, j)))
         .show(ui, |plot| {
             if let Some(o) = outline {
-                plot.line(Line::new("mean difference region", o.clone()).color(Color32::from_rgb(120, 70, 160)).width(2.0));
+                plot.line(
+                    Line::new("mean difference region", o.clone())
+                        .color(Color32::from_rgb(120, 70, 160))
+                        .width(2.0),
+                );
             }
             plot.points(
                 Points::new("no difference", vec![[0.0, 0.0]])
@@ -237,7 +263,12 @@ fn grid_ui(ui: &mut egui::Ui, s: &mut Shown, coverage: f64, width: f32) -> Optio
     if k < 2 {
         return None;
     }
-    ui.label(RichText::new(format!("Pairs of the {k} leading characteristics (click to open)")).small());
+    ui.label(
+        RichText::new(format!(
+            "Pairs of the {k} leading characteristics (click to open)"
+        ))
+        .small(),
+    );
     let cell = ((width - 8.0) / (k - 1) as f32 - 4.0).max(40.0);
     let mut clicked = None;
     for row in 1..k {
@@ -267,7 +298,12 @@ fn grid_ui(ui: &mut egui::Ui, s: &mut Shown, coverage: f64, width: f32) -> Optio
                                     .allow_hover(false),
                             );
                             if let Some(e) = &view.geometry.mean_regions[g] {
-                                plot.line(Line::new(format!("mean {g}"), e.clone()).color(color).width(1.5).allow_hover(false));
+                                plot.line(
+                                    Line::new(format!("mean {g}"), e.clone())
+                                        .color(color)
+                                        .width(1.5)
+                                        .allow_hover(false),
+                                );
                             }
                         }
                     })

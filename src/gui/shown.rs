@@ -6,7 +6,7 @@ use std::sync::Arc;
 
 use egui_plot::PlotPoint;
 
-use crate::analysis::{pair_geometry, Comparison, PairGeometry};
+use crate::analysis::{Comparison, PairGeometry, pair_geometry};
 use crate::data::{ColumnData, Lot, Prepared};
 use crate::report::Record;
 
@@ -60,7 +60,15 @@ pub fn stable_sample(n: usize, max: usize) -> Vec<usize> {
         return (0..n).collect();
     }
     let mut keyed: Vec<(u64, usize)> = (0..n)
-        .map(|i| ((i as u64).wrapping_add(1).wrapping_mul(0x9E37_79B9_7F4A_7C15).rotate_left(17), i))
+        .map(|i| {
+            (
+                (i as u64)
+                    .wrapping_add(1)
+                    .wrapping_mul(0x9E37_79B9_7F4A_7C15)
+                    .rotate_left(17),
+                i,
+            )
+        })
         .collect();
     keyed.select_nth_unstable(max);
     let mut out: Vec<usize> = keyed[..max].iter().map(|&(_, i)| i).collect();
@@ -70,7 +78,9 @@ pub fn stable_sample(n: usize, max: usize) -> Vec<usize> {
 
 fn histogram(scores: &[Vec<f64>; 2]) -> Option<ScoreHistogram> {
     let all = scores.iter().flatten().copied();
-    let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| (a.min(v), b.max(v)));
+    let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
+        (a.min(v), b.max(v))
+    });
     if !(lo.is_finite() && hi.is_finite()) || hi <= lo {
         return None;
     }
@@ -99,7 +109,12 @@ fn histogram(scores: &[Vec<f64>; 2]) -> Option<ScoreHistogram> {
 
 impl Shown {
     /// Builds the plot caches of a result.
-    pub fn new(comparison: Comparison, prepared: Prepared, lots: [Arc<Lot>; 2], record: Record) -> Self {
+    pub fn new(
+        comparison: Comparison,
+        prepared: Prepared,
+        lots: [Arc<Lot>; 2],
+        record: Record,
+    ) -> Self {
         let sample = [
             stable_sample(prepared.lots[0].data.nrows(), MAX_POINTS),
             stable_sample(prepared.lots[1].data.nrows(), MAX_POINTS),
@@ -162,7 +177,9 @@ impl Shown {
             .columns
             .iter()
             .find_map(|c| match &c.data {
-                ColumnData::Text(t) if !t.is_empty() => Some(format!(", {} {}", c.header, t.get(k))),
+                ColumnData::Text(t) if !t.is_empty() => {
+                    Some(format!(", {} {}", c.header, t.get(k)))
+                }
                 _ => None,
             })
             .unwrap_or_default();

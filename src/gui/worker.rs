@@ -2,10 +2,10 @@
 //! with progress, cancellation, panic capture, and a run number so that a result from an old
 //! run never replaces a newer one.
 
-use std::panic::{catch_unwind, AssertUnwindSafe};
+use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{channel, Receiver, Sender};
+use std::sync::mpsc::{Receiver, Sender, channel};
 use std::sync::{Arc, Mutex};
 
 use crate::analysis::{self, LotData, Progress, Settings};
@@ -171,7 +171,10 @@ impl Worker {
                     Slot::Both => "Open two lot files (reference first)",
                     Slot::Combined => "Open one file holding both lots",
                 })
-                .add_filter("Lot files", &["csv", "tsv", "txt", "xlsx", "xlsm", "xls", "ods"])
+                .add_filter(
+                    "Lot files",
+                    &["csv", "tsv", "txt", "xlsx", "xlsm", "xls", "ods"],
+                )
                 .add_filter("All files", &["*"]);
             let paths = if slot == Slot::Both {
                 dialog.pick_files().unwrap_or_default()
@@ -203,7 +206,12 @@ impl Worker {
     }
 
     /// Starts a comparison, cancelling any run still going. Returns its run number.
-    pub fn compare(&mut self, lots: [Arc<Lot>; 2], selection: Selection, settings: Settings) -> u64 {
+    pub fn compare(
+        &mut self,
+        lots: [Arc<Lot>; 2],
+        selection: Selection,
+        settings: Settings,
+    ) -> u64 {
         self.cancel();
         self.latest_run += 1;
         let handle = Arc::new(RunHandle {
@@ -216,9 +224,23 @@ impl Worker {
         let tx = self.tx.clone();
         let ctx = self.ctx.clone();
         std::thread::spawn(move || {
-            let result = catch_unwind(AssertUnwindSafe(|| run_comparison(&lots, &selection, &settings, &*handle)))
-                .unwrap_or_else(|e| Err(format!("internal error in the analysis: {}", panic_text(&e))));
-            Self::send(&tx, &ctx, Outcome::Compared { run: handle.id, result });
+            let result = catch_unwind(AssertUnwindSafe(|| {
+                run_comparison(&lots, &selection, &settings, &*handle)
+            }))
+            .unwrap_or_else(|e| {
+                Err(format!(
+                    "internal error in the analysis: {}",
+                    panic_text(&e)
+                ))
+            });
+            Self::send(
+                &tx,
+                &ctx,
+                Outcome::Compared {
+                    run: handle.id,
+                    result,
+                },
+            );
         });
         self.latest_run
     }
@@ -300,7 +322,11 @@ pub fn run_comparison(
         progress,
     )
     .map_err(|e| e.to_string())?;
-    let record = Record::new(&c, Some(&prepared), [Some(&lots[0].provenance), Some(&lots[1].provenance)]);
+    let record = Record::new(
+        &c,
+        Some(&prepared),
+        [Some(&lots[0].provenance), Some(&lots[1].provenance)],
+    );
     Ok(Box::new(Shown::new(c, prepared, lots.clone(), record)))
 }
 
@@ -310,8 +336,18 @@ mod tests {
     use std::time::Duration;
 
     fn sample_lots() -> [Arc<Lot>; 2] {
-        let a = data::load_bytes("a.csv", b"x,y\n1,2\n2,1\n3,5\n4,3\n5,4\n", &LoadOptions::default()).unwrap();
-        let b = data::load_bytes("b.csv", b"x,y\n2,2\n3,4\n4,3\n6,6\n5,7\n", &LoadOptions::default()).unwrap();
+        let a = data::load_bytes(
+            "a.csv",
+            b"x,y\n1,2\n2,1\n3,5\n4,3\n5,4\n",
+            &LoadOptions::default(),
+        )
+        .unwrap();
+        let b = data::load_bytes(
+            "b.csv",
+            b"x,y\n2,2\n3,4\n4,3\n6,6\n5,7\n",
+            &LoadOptions::default(),
+        )
+        .unwrap();
         [Arc::new(a), Arc::new(b)]
     }
 

@@ -93,7 +93,11 @@ pub struct Record {
 
 impl Record {
     /// Builds the record of a comparison of unit data.
-    pub fn new(c: &Comparison, prepared: Option<&Prepared>, sources: [Option<&Provenance>; 2]) -> Self {
+    pub fn new(
+        c: &Comparison,
+        prepared: Option<&Prepared>,
+        sources: [Option<&Provenance>; 2],
+    ) -> Self {
         let lots = (0..2)
             .map(|i| {
                 let lot = &c.lots[i];
@@ -109,7 +113,8 @@ impl Record {
                     n: lot.n,
                     n_read: prep.map_or(lot.n, |p| p.n_read),
                     n_excluded: prep.map_or(0, |p| p.n_excluded),
-                    missing: prep.map_or_else(|| vec![0; c.characteristics.len()], |p| p.missing.clone()),
+                    missing: prep
+                        .map_or_else(|| vec![0; c.characteristics.len()], |p| p.missing.clone()),
                     mean: lot.mean.clone(),
                     covariance: lot.covariance.clone(),
                 }

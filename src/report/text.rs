@@ -2,7 +2,7 @@
 
 use std::fmt::Write as _;
 
-use crate::analysis::{format_confidence, format_p, format_sig, Comparison};
+use crate::analysis::{Comparison, format_confidence, format_p, format_sig};
 use crate::data::Prepared;
 
 use super::CAUTION;
@@ -15,12 +15,18 @@ fn unit_suffix(u: &Option<String>) -> String {
 pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]) -> String {
     let mut s = String::new();
     let h = &c.hotelling;
-    let _ = writeln!(s, "lotshift comparison (difference = first lot minus second lot)");
+    let _ = writeln!(
+        s,
+        "lotshift comparison (difference = first lot minus second lot)"
+    );
     for (i, lot) in c.lots.iter().enumerate() {
         let extra = prepared
             .map(|p| {
                 let pl = &p.lots[i];
-                format!(", {} read, {} left out for missing cells", pl.n_read, pl.n_excluded)
+                format!(
+                    ", {} read, {} left out for missing cells",
+                    pl.n_read, pl.n_excluded
+                )
             })
             .unwrap_or_default();
         let _ = writeln!(
@@ -50,7 +56,13 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
     }
     let _ = writeln!(s, "\nHotelling's two-sample T² (alpha {})", c.alpha);
     let _ = writeln!(s, "  T²            {}", format_sig(h.t2, 6));
-    let _ = writeln!(s, "  F             {}  on ({}, {}) df", format_sig(h.f, 6), h.df1, h.df2);
+    let _ = writeln!(
+        s,
+        "  F             {}  on ({}, {}) df",
+        format_sig(h.f, 6),
+        h.df1,
+        h.df2
+    );
     let _ = writeln!(s, "  p-value       {}", format_p(h.p_value));
     let _ = writeln!(s, "  critical T²   {}", format_sig(h.critical_t2, 6));
     let _ = writeln!(s, "  critical F    {}", format_sig(h.critical_f, 6));

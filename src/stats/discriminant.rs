@@ -48,7 +48,11 @@ pub fn leave_one_out(
         let ng = n[lot] as f64;
         let c = ng / (ng - 1.0);
         // Lot 1: d₋ⱼ = d − u/(n1 − 1); lot 2: d₋ⱼ = d + u/(n2 − 1).
-        let s = if lot == 0 { -1.0 / (ng - 1.0) } else { 1.0 / (ng - 1.0) };
+        let s = if lot == 0 {
+            -1.0 / (ng - 1.0)
+        } else {
+            1.0 / (ng - 1.0)
+        };
         let half_d = if lot == 0 { 0.5 } else { -0.5 };
         for j in 0..x.nrows() {
             let u: DVector<f64> = x.row(j).transpose();
@@ -64,7 +68,7 @@ pub fn leave_one_out(
                 wrong[lot] += 1;
             }
             done += 1;
-            if done % 4096 == 0 && !keep_going(done as f64 / total) {
+            if done.is_multiple_of(4096) && !keep_going(done as f64 / total) {
                 return None;
             }
         }
@@ -89,7 +93,11 @@ mod tests {
         for g in 0..2 {
             for j in 0..lots[g].nrows() {
                 let kept = lots[g].clone().remove_row(j);
-                let pair = if g == 0 { [&kept, lots[1]] } else { [lots[0], &kept] };
+                let pair = if g == 0 {
+                    [&kept, lots[1]]
+                } else {
+                    [lots[0], &kept]
+                };
                 let origin = DVector::zeros(2);
                 let (m1, _) = LotMoments::from_data_centred(pair[0], &origin);
                 let (m2, _) = LotMoments::from_data_centred(pair[1], &origin);
@@ -134,6 +142,9 @@ mod tests {
         let d = &m1.offset - &m2.offset;
         let fast = leave_one_out([&c1, &c2], &d, &pooled, |_| true).unwrap();
         assert_eq!(fast, brute_force([&a, &b]));
-        assert!(fast[0] + fast[1] > 0, "the example should misclassify someone");
+        assert!(
+            fast[0] + fast[1] > 0,
+            "the example should misclassify someone"
+        );
     }
 }

@@ -38,7 +38,8 @@ fn ln_beta_front(a: f64, b: f64, x: f64) -> f64 {
     let ln_y = (-x).ln_1p();
     if small >= 10.0 {
         let s = a + b;
-        a * ((x * b - y * a) / a).ln_1p() + b * ((y * a - x * b) / b).ln_1p()
+        a * ((x * b - y * a) / a).ln_1p()
+            + b * ((y * a - x * b) / b).ln_1p()
             + 0.5 * (a.ln() + b.ln() - s.ln())
             - LN_SQRT_2PI
             - stirling_correction(a)
@@ -118,8 +119,10 @@ pub fn inc_beta(a: f64, b: f64, x: f64, y: f64) -> (f64, f64) {
     if y <= 0.0 {
         return (1.0, 0.0);
     }
-    let lower_at = |x: f64| beta_cf(a, b, x).map(|cf| (ln_beta_front(a, b, x).exp() * cf / a).min(1.0));
-    let upper_at = |y: f64| beta_cf(b, a, y).map(|cf| (ln_beta_front(b, a, y).exp() * cf / b).min(1.0));
+    let lower_at =
+        |x: f64| beta_cf(a, b, x).map(|cf| (ln_beta_front(a, b, x).exp() * cf / a).min(1.0));
+    let upper_at =
+        |y: f64| beta_cf(b, a, y).map(|cf| (ln_beta_front(b, a, y).exp() * cf / b).min(1.0));
     // The fraction converges fastest on the side of (a + 1)/(a + b + 2) where the variable
     // lies, and gives the smaller tail with full relative precision. But a variable near 1
     // has lost its low digits to rounding, and with large a or b the result is sensitive to
@@ -199,7 +202,11 @@ pub fn chi2_sf(x: f64, k: f64) -> f64 {
 /// bracketing, then Newton steps kept inside the bracket, to a few ulps.
 fn solve_upper(q: f64, sf: impl Fn(f64) -> f64, pdf: impl Fn(f64) -> f64, start: f64) -> f64 {
     let mut lo = 0.0_f64;
-    let mut hi = if start.is_finite() && start > 0.0 { start } else { 1.0 };
+    let mut hi = if start.is_finite() && start > 0.0 {
+        start
+    } else {
+        1.0
+    };
     while sf(hi) > q {
         lo = hi;
         hi *= 2.0;
@@ -207,7 +214,11 @@ fn solve_upper(q: f64, sf: impl Fn(f64) -> f64, pdf: impl Fn(f64) -> f64, start:
             return f64::INFINITY;
         }
     }
-    let mut x = if start.is_finite() && start > lo && start <= hi { start } else { 0.5 * (lo + hi) };
+    let mut x = if start.is_finite() && start > lo && start <= hi {
+        start
+    } else {
+        0.5 * (lo + hi)
+    };
     for _ in 0..400 {
         let s = sf(x);
         if s > q {
@@ -298,7 +309,11 @@ mod tests {
 
     #[test]
     fn quantiles_invert_tails() {
-        for &(q, d1, d2) in &[(0.05, 3.0, 10.0), (1e-6, 12.0, 40.0), (0.5, 30.0, 399_969.0)] {
+        for &(q, d1, d2) in &[
+            (0.05, 3.0, 10.0),
+            (1e-6, 12.0, 40.0),
+            (0.5, 30.0, 399_969.0),
+        ] {
             let f = f_isf(q, d1, d2);
             assert!(rel(f_sf(f, d1, d2), q) < 1e-12, "{q} {d1} {d2}");
         }

@@ -11,9 +11,9 @@
 
 use nalgebra::{Cholesky, DMatrix, DVector, Dyn, SymmetricEigen};
 
+use super::EngineError;
 use super::dist;
 use super::moments::LotMoments;
-use super::EngineError;
 
 /// Condition number of the pooled correlation matrix above which results carry a warning
 /// (common practice: about log10(cond) of the 16 significant digits are lost).
@@ -55,7 +55,7 @@ impl Pooled {
         let constant: Vec<String> = (0..p)
             .filter(|&k| {
                 let scale = m1.spread_scale[k].max(m2.spread_scale[k]);
-                !(sd[k] > CONSTANT_RELATIVE * scale) || sd[k] == 0.0
+                sd[k].partial_cmp(&(CONSTANT_RELATIVE * scale)) != Some(std::cmp::Ordering::Greater)
             })
             .map(|k| names[k].clone())
             .collect();
@@ -80,7 +80,11 @@ impl Pooled {
         }
         let lmin = eig.eigenvalues[imin];
         let lmax = eig.eigenvalues[imax];
-        let condition = if lmin > 0.0 { lmax / lmin } else { f64::INFINITY };
+        let condition = if lmin > 0.0 {
+            lmax / lmin
+        } else {
+            f64::INFINITY
+        };
         let v = eig.eigenvectors.column(imin);
         let vmax = v.amax();
         let mut weakest: Vec<usize> = (0..p).filter(|&k| v[k].abs() >= 0.2 * vmax).collect();
@@ -181,11 +185,7 @@ pub fn two_sample(m1: &LotMoments, m2: &LotMoments, pooled: &Pooled, alpha: f64)
     let critical_f = dist::f_isf(alpha, df1, df2);
     let critical_t2 = (n - 2.0) * df1 / df2 * critical_f;
     let d = d2.sqrt();
-    let structure = if d > 0.0 {
-        z / d
-    } else {
-        DVector::zeros(p)
-    };
+    let structure = if d > 0.0 { z / d } else { DVector::zeros(p) };
     let rinv_diag = pooled.corr_inverse_diagonal();
     let t2_drop = DVector::from_iterator(
         p,

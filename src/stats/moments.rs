@@ -46,7 +46,11 @@ impl LotMoments {
             for &v in col.iter() {
                 resid += (v - o) - mean_shift;
             }
-            let mean_shift = if n > 0 { mean_shift + resid / n as f64 } else { 0.0 };
+            let mean_shift = if n > 0 {
+                mean_shift + resid / n as f64
+            } else {
+                0.0
+            };
             let mut out = centred.column_mut(k);
             for (dst, &v) in out.iter_mut().zip(col.iter()) {
                 *dst = (v - o) - mean_shift;
@@ -178,7 +182,13 @@ mod tests {
     fn far_from_zero_keeps_its_digits() {
         // Property: shifting the data by a constant changes no centred quantity.
         // Multiples of 2^-10 are exact both near zero and near 1e9.
-        let base = [3.0 / 1024.0, -7.0 / 1024.0, 11.0 / 1024.0, 1.0 / 1024.0, -2.0 / 1024.0];
+        let base = [
+            3.0 / 1024.0,
+            -7.0 / 1024.0,
+            11.0 / 1024.0,
+            1.0 / 1024.0,
+            -2.0 / 1024.0,
+        ];
         let near = DMatrix::from_column_slice(5, 1, &base);
         let far = near.map(|v| v + 1.0e9);
         let (a, _) = LotMoments::from_data_centred(&near, &DVector::from_element(1, base[0]));

@@ -1,0 +1,275 @@
+//! The built binary on the sample lots and on bad files: output, record and exit status.
+
+use std::path::{Path, PathBuf};
+use std::process::{Command, Output};
+
+fn bin() -> Command {
+    Command::new(env!("CARGO_BIN_EXE_lotshift"))
+}
+
+fn sample(name: &str) -> PathBuf {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("sample-lots")
+        .join(name)
+}
+
+fn run(args: &[&str]) -> Output {
+    bin().args(args).output().expect("binary runs")
+}
+
+fn stdout(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stdout).into_owned()
+}
+
+fn stderr(o: &Output) -> String {
+    String::from_utf8_lossy(&o.stderr).into_owned()
+}
+
+fn tmpdir(tag: &str) -> PathBuf {
+    let d = std::env::temp_dir().join(format!("lotshift-cli-{tag}-{}", std::process::id()));
+    std::fs::create_dir_all(&d).unwrap();
+    d
+}
+
+#[test]
+fn compare_prints_the_verdict_and_writes_the_record() {
+    let dir = tmpdir("record");
+    let json = dir.join("record.json");
+    let a = sample("reference-route-a.csv");
+    let b = sample("candidate-route-b.csv");
+    let o = run(&[
+        "compare",
+        a.to_str().unwrap(),
+        b.to_str().unwrap(),
+        "--json",
+        json.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(out.contains("The lots differ at alpha 0.05"), "{out}");
+    assert!(out.contains("hub length"));
+    assert!(out.contains("supports, and does not replace"));
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(rec["schema"], "lotshift.comparison/1");
+    assert_eq!(rec["alpha"], 0.05);
+    assert_eq!(rec["lots"][0]["n"], 39);
+    assert_eq!(rec["lots"][0]["n_excluded"], 1);
+    assert_eq!(rec["lots"][1]["file"], "candidate-route-b.csv");
+    assert_eq!(rec["lots"][0]["sha256"].as_str().unwrap().len(), 64);
+    for key in [
+        "t2",
+        "f",
+        "df1",
+        "df2",
+        "p_value",
+        "critical_t2",
+        "critical_f",
+        "mahalanobis_d2",
+    ] {
+        assert!(rec["hotelling"][key].is_number(), "hotelling.{key}");
+    }
+    assert_eq!(rec["intervals"].as_array().unwrap().len(), 5);
+    assert!(rec["intervals"][0]["simultaneous"].is_array());
+    assert!(rec["discriminant"]["standardized"].is_array());
+    // Full precision: the record's T² is the engine's T², not a rounded print.
+    let t2 = rec["hotelling"]["t2"].as_f64().unwrap();
+    assert!(t2.to_string().len() > 10, "{t2}");
+    std::fs::remove_dir_all(dir).unwrap();
+}
+
+#[test]
+fn json_to_stdout_is_only_json() {
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("repeat-route-a.csv").to_str().unwrap(),
+        "--json",
+        "-",
+    ]);
+    assert!(o.status.success());
+    let rec: serde_json::Value =
+        serde_json::from_str(&stdout(&o)).expect("stdout is one JSON document");
+    assert_eq!(rec["hotelling"]["differ"], false);
+}
+
+#[test]
+fn fail_on_shift_sets_the_exit_status() {
+    let a = sample("reference-route-a.csv");
+    let o = run(&[
+        "compare",
+        a.to_str().unwrap(),
+        sample("candidate-route-b.xlsx").to_str().unwrap(),
+        "--fail-on-shift",
+    ]);
+    assert_eq!(o.status.code(), Some(1));
+    let o = run(&[
+        "compare",
+        a.to_str().unwrap(),
+        sample("repeat-route-a.csv").to_str().unwrap(),
+        "--fail-on-shift",
+    ]);
+    assert_eq!(o.status.code(), Some(0));
+}
+
+#[test]
+fn every_form_of_the_sample_gives_the_same_t2() {
+    let get = |args: &[&str]| -> f64 {
+        let mut all = vec!["compare"];
+        all.extend_from_slice(args);
+        all.extend_from_slice(&["--json", "-"]);
+        let o = run(&all);
+        assert!(o.status.success(), "{}", stderr(&o));
+        let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+        v["hotelling"]["t2"].as_f64().unwrap()
+    };
+    let a = sample("reference-route-a.csv");
+    let a = a.to_str().unwrap();
+    let csv = get(&[a, sample("candidate-route-b.csv").to_str().unwrap()]);
+    let xlsx = get(&[a, sample("candidate-route-b.xlsx").to_str().unwrap()]);
+    let euro = get(&[
+        a,
+        sample("candidate-route-b-semicolon.csv").to_str().unwrap(),
+    ]);
+    let split = get(&[
+        sample("both-routes.csv").to_str().unwrap(),
+        "--split-by",
+        "route",
+    ]);
+    assert_eq!(csv, xlsx);
+    assert_eq!(csv, euro);
+    assert_eq!(csv, split);
+}
+
+#[test]
+fn characteristics_and_exclusions() {
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--characteristics",
+        "Hub Length,flange thickness",
+        "--json",
+        "-",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    assert_eq!(
+        v["characteristics"],
+        serde_json::json!(["hub length", "flange thickness"])
+    );
+    assert_eq!(v["hotelling"]["df1"], 2.0);
+    // With mass left out no unit is excluded for its missing cell.
+    assert_eq!(v["lots"][0]["n"], 40);
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--exclude",
+        "mass",
+        "--json",
+        "-",
+    ]);
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    assert_eq!(v["hotelling"]["df1"], 4.0);
+    assert_eq!(v["unmatched"][0]["why"], "excluded");
+}
+
+#[test]
+fn bad_input_exits_2_with_one_line_naming_the_place() {
+    let dir = tmpdir("bad");
+    let bad = dir.join("bad.csv");
+    std::fs::write(&bad, "x,y\n1,2\n3,zz\n5,6\n").unwrap();
+    let o = run(&[
+        "compare",
+        bad.to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert_eq!(err.lines().count(), 1, "{err}");
+    assert!(err.contains("bad.csv, row 3, column B \"y\""), "{err}");
+    assert!(err.contains("\"zz\""), "{err}");
+    // A missing file.
+    let o = run(&[
+        "compare",
+        "/nonexistent.csv",
+        sample("candidate-route-b.csv").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("/nonexistent.csv"));
+    // No column in common.
+    let other = dir.join("other.csv");
+    std::fs::write(&other, "a,b\n1,2\n3,4\n5,7\n").unwrap();
+    let o = run(&["compare", bad.to_str().unwrap(), other.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    // A lot column with three values and none chosen.
+    let three = dir.join("three.csv");
+    std::fs::write(&three, "lot,x\nA,1\nB,2\nC,3\nA,4\nB,5\nC,6\n").unwrap();
+    let o = run(&["compare", three.to_str().unwrap(), "--split-by", "lot"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("--lots"), "{}", stderr(&o));
+    // A failed --json write leaves nothing behind.
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--json",
+        dir.join("no-such-dir/record.json").to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(!dir.join("no-such-dir").exists());
+    std::fs::remove_dir_all(dir).unwrap();
+}
+
+#[test]
+fn compare_stats_from_summary_statistics() {
+    // Johnson & Wichern, 6th ed., Example 6.3 (soap), as summary statistics (from memory).
+    let dir = tmpdir("stats");
+    let spec = dir.join("soap.json");
+    std::fs::write(
+        &spec,
+        r#"{"characteristics": ["lather", "mildness"],
+            "lots": [{"name": "method 1", "n": 50, "mean": [8.3, 4.1], "covariance": [[2, 1], [1, 6]]},
+                     {"name": "method 2", "n": 50, "mean": [10.2, 3.9], "covariance": [[2, 1], [1, 4]]}]}"#,
+    )
+    .unwrap();
+    let o = run(&["compare-stats", spec.to_str().unwrap(), "--json", "-"]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    assert!((v["hotelling"]["t2"].as_f64().unwrap() - 52.47).abs() < 0.005);
+    std::fs::remove_dir_all(dir).unwrap();
+}
+
+#[test]
+fn inspect_shows_what_lotshift_sees() {
+    let o = run(&[
+        "inspect",
+        sample("candidate-route-b-semicolon.csv").to_str().unwrap(),
+    ]);
+    assert!(o.status.success());
+    let out = stdout(&o);
+    assert!(out.contains("delimiter   semicolon"), "{out}");
+    assert!(out.contains("decimal     comma"), "{out}");
+    assert!(out.contains("hub length (mm)"));
+    assert!(out.contains("characteristic"));
+    assert!(out.contains("label"));
+    let o = run(&[
+        "inspect",
+        sample("candidate-route-b.xlsx").to_str().unwrap(),
+        "--sheet",
+        "nope",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(stderr(&o).contains("\"hubs\""));
+}
+
+#[test]
+fn help_lists_the_subcommands() {
+    let o = run(&["--help"]);
+    assert!(o.status.success());
+    let out = stdout(&o);
+    for s in ["compare", "compare-stats", "inspect", "--screenshot"] {
+        assert!(out.contains(s), "{s}");
+    }
+}
