@@ -9,6 +9,21 @@ use crate::analysis::{self, LotData, Settings, Silent, SummaryLot};
 use crate::data::{self, ColumnData, LoadOptions, Lot, Selection};
 use crate::report::{self, Record};
 
+/// Writes a line to standard output; a closed pipe (`lotshift ... | head`) is not an error
+/// worth a panic, so write failures are ignored.
+macro_rules! outln {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stdout().lock(), $($arg)*);
+    }};
+}
+
+/// Writes text to standard output, ignoring a closed pipe.
+fn out(text: &str) {
+    use std::io::Write as _;
+    let _ = std::io::stdout().lock().write_all(text.as_bytes());
+}
+
 /// Exit status when the lots differ and `--fail-on-shift` was given.
 pub const EXIT_SHIFT: u8 = 1;
 /// Exit status for bad input or a failed analysis.
@@ -171,7 +186,7 @@ fn emit_json(target: &Option<String>, record: &Record) -> Result<(), String> {
     match target.as_deref() {
         None => Ok(()),
         Some("-") => {
-            println!("{}", record.to_json());
+            outln!("{}", record.to_json());
             Ok(())
         }
         Some(path) => report::write_atomic(std::path::Path::new(path), record.to_json().as_bytes())
@@ -217,7 +232,7 @@ fn compare(a: CompareArgs) -> CliResult {
             lots[0].provenance.file_name.as_str(),
             lots[1].provenance.file_name.as_str(),
         ];
-        print!("{}", report::render_text(&c, Some(&prepared), files));
+        out(&report::render_text(&c, Some(&prepared), files));
     }
     emit_json(&a.json, &record)?;
     Ok(if a.fail_on_shift && c.hotelling.differ {
@@ -252,7 +267,7 @@ fn compare_stats(a: StatsArgs) -> CliResult {
     let record = Record::new(&c, None, [None, None]);
     if a.json.as_deref() != Some("-") {
         let name = a.file.display().to_string();
-        print!("{}", report::render_text(&c, None, [&name, &name]));
+        out(&report::render_text(&c, None, [&name, &name]));
     }
     emit_json(&a.json, &record)?;
     Ok(if a.fail_on_shift && c.hotelling.differ {
@@ -269,10 +284,10 @@ fn inspect(a: InspectArgs) -> CliResult {
     };
     let lot = data::load(&a.file, &options).map_err(|e| e.to_string())?;
     let p = &lot.provenance;
-    println!("file        {}", p.path);
-    println!("sha256      {}", p.sha256);
-    println!("size        {} bytes", p.size_bytes);
-    println!("format      {}", p.format);
+    outln!("file        {}", p.path);
+    outln!("sha256      {}", p.sha256);
+    outln!("size        {} bytes", p.size_bytes);
+    outln!("format      {}", p.format);
     if let Some(d) = p.delimiter {
         let name = match d {
             '\t' => "tab".to_string(),
@@ -280,31 +295,35 @@ fn inspect(a: InspectArgs) -> CliResult {
             ';' => "semicolon".to_string(),
             other => format!("{other:?}"),
         };
-        println!("delimiter   {name}");
-        println!(
+        outln!("delimiter   {name}");
+        outln!(
             "decimal     {}",
             if p.decimal_comma { "comma" } else { "point" }
         );
     }
     if let Some(e) = &p.encoding {
-        println!("encoding    {e}");
+        outln!("encoding    {e}");
     }
     if let Some(s) = &p.sheet {
-        println!("sheet       {s}");
+        outln!("sheet       {s}");
     }
-    println!(
+    outln!(
         "data rows   {} (rows {}..{})",
         lot.len(),
         lot.rows.first().unwrap_or(&0),
         lot.rows.last().unwrap_or(&0)
     );
     for n in &p.notes {
-        println!("note        {n}");
+        outln!("note        {n}");
     }
-    println!("\ncolumns");
-    println!(
+    outln!("\ncolumns");
+    outln!(
         "  {:<4} {:<28} {:<15} {:<10} {:>8}",
-        "col", "header", "role", "unit", "missing"
+        "col",
+        "header",
+        "role",
+        "unit",
+        "missing"
     );
     for c in &lot.columns {
         let role = if c.is_numeric() {
@@ -312,7 +331,7 @@ fn inspect(a: InspectArgs) -> CliResult {
         } else {
             "label"
         };
-        println!(
+        outln!(
             "  {:<4} {:<28} {:<15} {:<10} {:>8}",
             data::column_letter(c.position),
             c.header,
@@ -323,7 +342,7 @@ fn inspect(a: InspectArgs) -> CliResult {
     }
     let shown = a.rows.min(lot.len());
     if shown > 0 {
-        println!("\nfirst {shown} rows");
+        outln!("\nfirst {shown} rows");
         for i in 0..shown {
             let cells: Vec<String> = lot
                 .columns
@@ -333,7 +352,7 @@ fn inspect(a: InspectArgs) -> CliResult {
                     _ => c.text(i),
                 })
                 .collect();
-            println!("  row {:<6} {}", lot.rows[i], cells.join(" | "));
+            outln!("  row {:<6} {}", lot.rows[i], cells.join(" | "));
         }
     }
     Ok(ExitCode::SUCCESS)

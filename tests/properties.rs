@@ -156,7 +156,7 @@ fn identical_lots_give_zero() {
 
 #[test]
 fn the_discriminant_direction_maximizes_the_squared_t() {
-    // Property (J&W Result 6.? / the union–intersection principle): the largest squared
+    // Property (the union–intersection principle behind T², J&W §6.3): the largest squared
     // two-sample t over all linear combinations aᵀx is T², reached at a = Sp⁻¹ d.
     let mut rng = Rng(15);
     let x = rng.lot(20, 3, 0.0);

@@ -263,6 +263,31 @@ pub fn chi2_isf(q: f64, k: f64) -> f64 {
     solve_upper(q, |x| chi2_sf(x, k), |x| dist.pdf(x), k)
 }
 
+/// Upper tail `P(X > x)` of the Beta(a, b) distribution.
+pub fn beta_sf(x: f64, a: f64, b: f64) -> f64 {
+    if x <= 0.0 {
+        return 1.0;
+    }
+    if x >= 1.0 {
+        return 0.0;
+    }
+    inc_beta(a, b, x, 1.0 - x).1
+}
+
+/// Upper `q` point of the Beta(a, b) distribution.
+pub fn beta_isf(q: f64, a: f64, b: f64) -> f64 {
+    let Ok(dist) = statrs::distribution::Beta::new(a, b) else {
+        return f64::NAN;
+    };
+    solve_upper(
+        q,
+        |x| beta_sf(x, a, b),
+        |x| if x < 1.0 { dist.pdf(x) } else { 0.0 },
+        0.5,
+    )
+    .min(1.0)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -1,11 +1,13 @@
 //! Pure statistics on matrices and summary statistics. Nothing here touches files, clocks
 //! or the window.
 
+pub mod checks;
 pub mod discriminant;
 pub mod dist;
 pub mod ellipse;
 pub mod hotelling;
 pub mod moments;
+pub mod normality;
 
 /// Why the engine could not compare two lots.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]

@@ -1,0 +1,120 @@
+//! Frame time of the window's heaviest views with 2 × 200,000 units, against the same views
+//! with 2 × 1,000 units in the same run (the baseline): building the frame and tessellating
+//! it, on one core, as eframe does before handing triangles to the GPU.
+//!
+//! Run: `cargo bench --bench frame_time`. Target: under 16 ms a frame at 2 × 200,000 units.
+
+use std::sync::Arc;
+use std::time::{Duration, Instant};
+
+use lotshift::analysis::{Settings, Silent};
+use lotshift::data::{self, LoadOptions, Selection};
+use lotshift::gui::worker::run_comparison;
+use lotshift::gui::{LotshiftApp, Saved, View};
+
+const TARGET_MS: f64 = 16.0;
+
+fn lot_csv(n: usize, shift: f64, seed: u64) -> String {
+    let mut s = String::with_capacity(n * 48);
+    s.push_str("serial,a (mm),b (mm),c (mm),d (g),e (mm)\n");
+    let mut state = seed;
+    let mut normal = || {
+        // SplitMix64 + Box–Muller.
+        let mut next = || {
+            state = state.wrapping_add(0x9E37_79B9_7F4A_7C15);
+            let mut z = state;
+            z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+            z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+            (((z ^ (z >> 31)) >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+        };
+        let (u, v) = (next(), next());
+        (-2.0 * u.ln()).sqrt() * (std::f64::consts::TAU * v).cos()
+    };
+    for i in 0..n {
+        let z: Vec<f64> = (0..5).map(|_| normal()).collect();
+        s.push_str(&format!(
+            "S{i},{:.4},{:.4},{:.4},{:.3},{:.4}\n",
+            10.0 + z[0] + shift,
+            20.0 + 0.6 * z[0] + 0.8 * z[1],
+            5.0 + z[2],
+            100.0 + 0.5 * z[1] + z[3],
+            1.0 + z[4] - shift
+        ));
+    }
+    s
+}
+
+fn app_with(n: usize) -> LotshiftApp {
+    let opts = LoadOptions::default();
+    let a = data::load_bytes("a.csv", lot_csv(n, 0.0, 1).as_bytes(), &opts).unwrap();
+    let b = data::load_bytes("b.csv", lot_csv(n, 0.05, 2).as_bytes(), &opts).unwrap();
+    let lots = [Arc::new(a), Arc::new(b)];
+    let shown =
+        run_comparison(&lots, &Selection::default(), &Settings::default(), &Silent).unwrap();
+    let mut app = LotshiftApp::new(None, Saved::default());
+    app.slots = [Some(lots[0].clone()), Some(lots[1].clone())];
+    app.shown = Some(shown);
+    app.shown_current = true;
+    app
+}
+
+/// Median time to build and tessellate one frame of `view`.
+fn frame_ms(app: &mut LotshiftApp, view: View) -> f64 {
+    app.saved.view = view;
+    let ctx = egui::Context::default();
+    let input = || egui::RawInput {
+        screen_rect: Some(egui::Rect::from_min_size(
+            egui::Pos2::ZERO,
+            egui::vec2(1400.0, 900.0),
+        )),
+        ..Default::default()
+    };
+    // Warm up (first frames build caches: pair geometry, fonts).
+    for _ in 0..5 {
+        let out = ctx.run_ui(input(), |ui| app.show(ui));
+        let _ = ctx.tessellate(out.shapes, out.pixels_per_point);
+    }
+    let mut times: Vec<Duration> = (0..40)
+        .map(|_| {
+            let t = Instant::now();
+            let out = ctx.run_ui(input(), |ui| app.show(ui));
+            let _ = ctx.tessellate(out.shapes, out.pixels_per_point);
+            t.elapsed()
+        })
+        .collect();
+    times.sort();
+    times[times.len() / 2].as_secs_f64() * 1e3
+}
+
+fn main() {
+    println!("frame time (build + tessellate, median of 40 frames, 1400 x 900)");
+    println!(
+        "{:<16} {:>14} {:>16} {:>8} {:>9}",
+        "view", "2 x 1,000 ms", "2 x 200,000 ms", "ratio", "target"
+    );
+    let mut small = app_with(1_000);
+    let mut big = app_with(200_000);
+    let mut ok = true;
+    for view in [
+        View::Pairs,
+        View::Direction,
+        View::Intervals,
+        View::Overview,
+    ] {
+        let base = frame_ms(&mut small, view);
+        let heavy = frame_ms(&mut big, view);
+        let pass = heavy < TARGET_MS;
+        ok &= pass;
+        println!(
+            "{:<16} {:>14.2} {:>16.2} {:>8.2} {:>9}",
+            view.title(),
+            base,
+            heavy,
+            heavy / base,
+            if pass { "< 16 ok" } else { "MISSED" }
+        );
+    }
+    if !ok {
+        std::process::exit(1);
+    }
+}

@@ -1,0 +1,377 @@
+//! Assumption checks of the two-sample T²: Box's M for equal covariance matrices, Mardia's
+//! multivariate skewness and kurtosis, outliers by squared Mahalanobis distance, and the
+//! approximate-df test for unequal covariance matrices.
+
+use nalgebra::{Cholesky, DMatrix, DVector, Dyn};
+use serde::{Deserialize, Serialize};
+
+use super::dist;
+use super::moments::LotMoments;
+
+/// `ln |A|` of a symmetric positive definite matrix, scaled to unit diagonal first for
+/// stability (the scale factors are added back). `None` when not positive definite.
+pub fn ln_det(a: &DMatrix<f64>) -> Option<f64> {
+    let p = a.nrows();
+    let d: Vec<f64> = (0..p).map(|k| a[(k, k)]).collect();
+    if d.iter().any(|&v| !(v > 0.0)) {
+        return None;
+    }
+    let scaled = DMatrix::from_fn(p, p, |i, j| a[(i, j)] / (d[i] * d[j]).sqrt());
+    let l = Cholesky::new(scaled)?.l();
+    let mut s: f64 = d.iter().map(|v| v.ln()).sum();
+    for k in 0..p {
+        let v = l[(k, k)];
+        if !(v > 0.0) {
+            return None;
+        }
+        s += 2.0 * v.ln();
+    }
+    Some(s)
+}
+
+/// Box's M test of equal covariance matrices (record key `box_m`).
+///
+/// # Formula
+/// Box (1949), Biometrika 36, for two groups (Rencher, *Methods of Multivariate Analysis*,
+/// 2nd ed., §7.3.2 gives the same forms):
+/// `M = (N − 2) ln|Sp| − Σ (nᵢ − 1) ln|Sᵢ|`;
+/// `c1 = (Σ 1/(nᵢ−1) − 1/(N−2)) (2p² + 3p − 1)/(6(p + 1))`, `(1 − c1) M ~ χ²(p(p+1)/2)`;
+/// F approximation with `c2 = (p−1)(p+2)/6 · (Σ 1/(nᵢ−1)² − 1/(N−2)²)`, `a1 = p(p+1)/2`,
+/// `a2 = (a1 + 2)/|c2 − c1²|`: when `c2 > c1²`, `F = M (1 − c1 − a1/a2)/a1` on `(a1, a2)`,
+/// otherwise `F = a2 b2 M / (a1 (1 − b2 M))` with `b2 = (1 − c1 + 2/a2)/a2`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct BoxM {
+    /// Box's M.
+    pub m: f64,
+    /// `(1 − c1) M`.
+    pub chi2: f64,
+    /// `p(p + 1)/2`.
+    pub df: f64,
+    /// Chi-square p-value.
+    pub p_value: f64,
+    /// F approximation.
+    pub f: f64,
+    /// Its numerator df.
+    pub f_df1: f64,
+    /// Its denominator df.
+    pub f_df2: f64,
+    /// F-approximation p-value.
+    pub f_p_value: f64,
+    /// Which approximation to read: `"chi-square"` or `"F"`.
+    pub preferred: String,
+    /// Why that one.
+    pub why: String,
+}
+
+impl BoxM {
+    /// The p-value of the preferred approximation.
+    pub fn preferred_p_value(&self) -> f64 {
+        if self.preferred == "F" {
+            self.f_p_value
+        } else {
+            self.p_value
+        }
+    }
+}
+
+/// Box's M for two lots; `None` when a lot's covariance is singular (too few units or a
+/// characteristic constant within the lot).
+pub fn box_m(m1: &LotMoments, m2: &LotMoments) -> Option<BoxM> {
+    let p = m1.dim() as f64;
+    let (v1, v2) = (m1.n as f64 - 1.0, m2.n as f64 - 1.0);
+    let v = v1 + v2;
+    if v1 < p || v2 < p {
+        return None;
+    }
+    let sp = (&m1.ssp + &m2.ssp) / v;
+    let l_sp = ln_det(&sp)?;
+    let l1 = ln_det(&(&m1.ssp / v1))?;
+    let l2 = ln_det(&(&m2.ssp / v2))?;
+    let m = (v * l_sp - v1 * l1 - v2 * l2).max(0.0);
+    let sum_inv = 1.0 / v1 + 1.0 / v2;
+    let c1 = (sum_inv - 1.0 / v) * (2.0 * p * p + 3.0 * p - 1.0) / (6.0 * (p + 1.0));
+    let df = p * (p + 1.0) / 2.0;
+    let chi2 = (1.0 - c1) * m;
+    let c2 = (p - 1.0) * (p + 2.0) / 6.0 * (1.0 / (v1 * v1) + 1.0 / (v2 * v2) - 1.0 / (v * v));
+    let a1 = df;
+    let a2 = (a1 + 2.0) / (c2 - c1 * c1).abs();
+    let f = if c2 > c1 * c1 {
+        let b1 = (1.0 - c1 - a1 / a2) / a1;
+        b1 * m
+    } else {
+        let b2 = (1.0 - c1 + 2.0 / a2) / a2;
+        a2 * b2 * m / (a1 * (1.0 - b2 * m))
+    };
+    let f_p_value = if f.is_finite() && f >= 0.0 {
+        dist::f_sf(f, a1, a2)
+    } else {
+        f64::NAN
+    };
+    // Common practice (e.g. Rencher §7.3.2): the chi-square form is adequate when every lot
+    // has more than 20 units and p is at most 5; otherwise read the F form.
+    let small = m1.n.min(m2.n) <= 20 || m1.dim() > 5;
+    let (preferred, why) = if small && f_p_value.is_finite() {
+        (
+            "F",
+            "a lot has 20 units or fewer, or there are more than 5 characteristics: the F \
+             approximation is the closer one there",
+        )
+    } else {
+        (
+            "chi-square",
+            "every lot has more than 20 units and there are at most 5 characteristics: the \
+             chi-square approximation is adequate",
+        )
+    };
+    Some(BoxM {
+        m,
+        chi2,
+        df,
+        p_value: dist::chi2_sf(chi2, df),
+        f,
+        f_df1: a1,
+        f_df2: a2,
+        f_p_value,
+        preferred: preferred.into(),
+        why: why.into(),
+    })
+}
+
+/// Mardia's multivariate skewness and kurtosis of one lot (record key `mardia`).
+///
+/// # Formula
+/// Mardia (1970), Biometrika 57: with the divisor-n covariance `S̃ = L Lᵀ` and whitened units
+/// `zᵢ = L⁻¹(xᵢ − x̄)`, `b1 = (1/n²) Σᵢ Σⱼ (zᵢᵀzⱼ)³ = Σ_abc M_abc²` where
+/// `M_abc = (1/n) Σᵢ z_ia z_ib z_ic` (the third-moment tensor: O(n·p³), never the O(n²) pair
+/// sum), and `b2 = (1/n) Σᵢ (zᵢᵀzᵢ)²`. `n b1/6 ~ χ²(p(p+1)(p+2)/6)`;
+/// `(b2 − p(p+2)) / sqrt(8p(p+2)/n) ~ N(0, 1)` (two-sided p-value).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Mardia {
+    /// Lot name.
+    pub lot: String,
+    /// `b1,p`.
+    pub skewness: f64,
+    /// `n b1/6`.
+    pub skewness_stat: f64,
+    /// `p(p+1)(p+2)/6`.
+    pub skewness_df: f64,
+    /// Chi-square p-value.
+    pub skewness_p: f64,
+    /// `b2,p`.
+    pub kurtosis: f64,
+    /// Standardized kurtosis.
+    pub kurtosis_z: f64,
+    /// Two-sided normal p-value.
+    pub kurtosis_p: f64,
+}
+
+/// Whitens centred data by the divisor-n covariance: row-major `n × p` values of `zᵢ`.
+/// `None` when the covariance is singular.
+pub fn whiten(centred: &DMatrix<f64>) -> Option<Vec<f64>> {
+    let (n, p) = centred.shape();
+    if n == 0 {
+        return None;
+    }
+    let cov = centred.tr_mul(centred) / n as f64;
+    let sd: Vec<f64> = (0..p).map(|k| cov[(k, k)].sqrt()).collect();
+    if sd.iter().any(|&s| !(s > 0.0)) {
+        return None;
+    }
+    let corr = DMatrix::from_fn(p, p, |i, j| cov[(i, j)] / (sd[i] * sd[j]));
+    let chol: Cholesky<f64, Dyn> = Cholesky::new(corr)?;
+    let l = chol.l();
+    let mut out = vec![0.0; n * p];
+    let mut y = DVector::zeros(p);
+    for i in 0..n {
+        for k in 0..p {
+            y[k] = centred[(i, k)] / sd[k];
+        }
+        // Forward substitution with the lower factor.
+        for a in 0..p {
+            let mut s = y[a];
+            for b in 0..a {
+                s -= l[(a, b)] * out[i * p + b];
+            }
+            out[i * p + a] = s / l[(a, a)];
+        }
+    }
+    Some(out)
+}
+
+/// Mardia's statistics from whitened row-major data (`n` rows of `p`).
+pub fn mardia(lot: &str, z: &[f64], n: usize, p: usize) -> Mardia {
+    // Upper-triangle entries (a ≤ b ≤ c) of the symmetric tensor, with their multiplicity.
+    let mut weights = Vec::new();
+    for a in 0..p {
+        for b in a..p {
+            for c in b..p {
+                let w = if a == b && b == c {
+                    1.0
+                } else if a == b || b == c {
+                    3.0
+                } else {
+                    6.0
+                };
+                weights.push(w);
+            }
+        }
+    }
+    let mut tensor = vec![0.0; weights.len()];
+    let mut b2_sum = 0.0;
+    for row in z.chunks_exact(p) {
+        let mut k = 0;
+        for a in 0..p {
+            let za = row[a];
+            for b in a..p {
+                let zab = za * row[b];
+                for &zc in &row[b..p] {
+                    tensor[k] += zab * zc;
+                    k += 1;
+                }
+            }
+        }
+        let r2: f64 = row.iter().map(|v| v * v).sum();
+        b2_sum += r2 * r2;
+    }
+    let nf = n as f64;
+    let pf = p as f64;
+    let b1: f64 = tensor
+        .iter()
+        .zip(&weights)
+        .map(|(t, w)| w * (t / nf) * (t / nf))
+        .sum();
+    let b2 = b2_sum / nf;
+    let skewness_stat = nf * b1 / 6.0;
+    let skewness_df = pf * (pf + 1.0) * (pf + 2.0) / 6.0;
+    let kurtosis_z = (b2 - pf * (pf + 2.0)) / (8.0 * pf * (pf + 2.0) / nf).sqrt();
+    Mardia {
+        lot: lot.to_string(),
+        skewness: b1,
+        skewness_stat,
+        skewness_df,
+        skewness_p: dist::chi2_sf(skewness_stat, skewness_df),
+        kurtosis: b2,
+        kurtosis_z,
+        kurtosis_p: 2.0 * dist::norm_sf(kurtosis_z.abs()),
+    }
+}
+
+/// A unit far from its own lot's mean.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Outlier {
+    /// Lot index (0 reference, 1 candidate).
+    pub lot: usize,
+    /// Index of the unit among the lot's compared units.
+    pub unit: usize,
+    /// Squared Mahalanobis distance from the lot mean (divisor n − 1 covariance).
+    pub d2: f64,
+    /// Upper-tail probability of `n d²/(n−1)²` under Beta(p/2, (n−p−1)/2).
+    pub p_value: f64,
+}
+
+/// Outlier screening of one lot (Gnanadesikan & Kettenring 1972, Biometrics 28):
+/// `n dᵢ²/(n−1)² ~ Beta(p/2, (n−p−1)/2)` for a normal lot. A unit is flagged when its tail
+/// probability is below `alpha / n` (Bonferroni over the lot's units: common practice, so
+/// that a big lot does not flag alpha of its units by chance). Returns the cutoff on d² and
+/// the flagged units, largest distance first.
+pub fn outliers(lot: usize, z: &[f64], n: usize, p: usize, alpha: f64) -> (f64, Vec<Outlier>) {
+    let nf = n as f64;
+    let (a, b) = (p as f64 / 2.0, (nf - p as f64 - 1.0) / 2.0);
+    if b <= 0.0 {
+        return (f64::NAN, Vec::new());
+    }
+    let scale = (nf - 1.0) * (nf - 1.0) / nf;
+    let q = dist::beta_isf(alpha / nf, a, b);
+    let cutoff = q * scale;
+    let mut out: Vec<Outlier> = z
+        .chunks_exact(p)
+        .enumerate()
+        .filter_map(|(i, row)| {
+            // ‖z‖² is on the divisor-n scale; d² on the divisor-(n−1) scale is (n−1)/n of it.
+            let d2 = row.iter().map(|v| v * v).sum::<f64>() * (nf - 1.0) / nf;
+            (d2 > cutoff).then(|| {
+                let u = (d2 / scale).min(1.0);
+                Outlier {
+                    lot,
+                    unit: i,
+                    d2,
+                    p_value: dist::inc_beta(a, b, u, 1.0 - u).1,
+                }
+            })
+        })
+        .collect();
+    out.sort_by(|x, y| y.d2.total_cmp(&x.d2));
+    (cutoff, out)
+}
+
+/// The approximate-df test for unequal covariance matrices (record key `unequal_covariance`).
+///
+/// # Formula
+/// Krishnamoorthy & Yu (2004), Statistics & Probability Letters 66 (modified Nel–Van der
+/// Merwe): `Vᵢ = Sᵢ/nᵢ`, `S̃ = V1 + V2`, `T² = dᵀ S̃⁻¹ d`,
+/// `ν = (p + p²) / Σᵢ (1/nᵢ) { tr[(Vᵢ S̃⁻¹)²] + [tr(Vᵢ S̃⁻¹)]² }`,
+/// `T² ~ ν p/(ν − p + 1) · F(p, ν − p + 1)`. The weights are 1/nᵢ as in that paper (not
+/// 1/(nᵢ − 1), an older variant with different df).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct UnequalCovariance {
+    /// `dᵀ S̃⁻¹ d`.
+    pub t2: f64,
+    /// Approximate df ν.
+    pub nu: f64,
+    /// F statistic.
+    pub f: f64,
+    /// `p`.
+    pub df1: f64,
+    /// `ν − p + 1`.
+    pub df2: f64,
+    /// `P(F > f)`.
+    pub p_value: f64,
+}
+
+/// The unequal-covariance test; `None` when a lot has fewer than two units or `S̃` is singular.
+pub fn unequal_covariance(m1: &LotMoments, m2: &LotMoments) -> Option<UnequalCovariance> {
+    if m1.n < 2 || m2.n < 2 {
+        return None;
+    }
+    let p = m1.dim();
+    let (n1, n2) = (m1.n as f64, m2.n as f64);
+    let v1 = m1.covariance() / n1;
+    let v2 = m2.covariance() / n2;
+    let s = &v1 + &v2;
+    let sd: Vec<f64> = (0..p).map(|k| s[(k, k)].sqrt()).collect();
+    if sd.iter().any(|&v| !(v > 0.0)) {
+        return None;
+    }
+    let scale = |m: &DMatrix<f64>| DMatrix::from_fn(p, p, |i, j| m[(i, j)] / (sd[i] * sd[j]));
+    // Work in the scaled coordinates D⁻¹(·)D⁻¹: traces of Vᵢ S̃⁻¹ are unchanged.
+    let chol = Cholesky::new(scale(&s))?;
+    let d = &m1.offset - &m2.offset;
+    let dz = DVector::from_fn(p, |k, _| d[k] / sd[k]);
+    let t2 = dz.dot(&chol.solve(&dz));
+    let mut denom = 0.0;
+    for (v, n) in [(&v1, n1), (&v2, n2)] {
+        // A = S̃⁻¹ V has the same traces as V S̃⁻¹.
+        let a = chol.solve(&scale(v));
+        let tr = a.trace();
+        let tr2: f64 = (0..p)
+            .flat_map(|i| (0..p).map(move |j| (i, j)))
+            .map(|(i, j)| a[(i, j)] * a[(j, i)])
+            .sum();
+        denom += (tr2 + tr * tr) / n;
+    }
+    let pf = p as f64;
+    let nu = (pf + pf * pf) / denom;
+    let df2 = nu - pf + 1.0;
+    if !(df2 > 0.0) {
+        return None;
+    }
+    let f = df2 / (nu * pf) * t2;
+    Some(UnequalCovariance {
+        t2,
+        nu,
+        f,
+        df1: pf,
+        df2,
+        p_value: dist::f_sf(f, pf, df2),
+    })
+}
