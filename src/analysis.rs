@@ -4,8 +4,11 @@
 use nalgebra::{DMatrix, DVector, Matrix2};
 use serde::{Deserialize, Serialize};
 
+use crate::stats::checks::{self, BoxM, Mardia, Outlier, UnequalCovariance};
 use crate::stats::hotelling::{self, CONDITION_WARN, Pooled};
 use crate::stats::moments::{ColumnSummary, LotMoments, column_summary};
+use crate::stats::normality::{ShapiroWilk, shapiro_wilk};
+use crate::stats::permutation::{PermutationResult, permutation_test};
 use crate::stats::{EngineError, discriminant, ellipse, quote_list};
 
 /// What to compute and at which level.
@@ -16,15 +19,58 @@ pub struct Settings {
     pub alpha: f64,
     /// Compute the leave-one-out misclassification rate (needs unit data).
     pub leave_one_out: bool,
+    /// Run the assumption checks (Box's M, Mardia, Shapiro–Wilk, outliers, unequal covariance).
+    pub checks: bool,
+    /// Relabellings for the permutation p-value (0: skip it).
+    pub permutations: usize,
+    /// Seed of the permutation draws.
+    pub seed: u64,
 }
+
+/// Default number of relabellings of the permutation test.
+pub const DEFAULT_PERMUTATIONS: usize = 9999;
+/// Default seed of the permutation test.
+pub const DEFAULT_SEED: u64 = 20_261_202;
 
 impl Default for Settings {
     fn default() -> Self {
         Settings {
             alpha: 0.05,
             leave_one_out: true,
+            checks: true,
+            permutations: DEFAULT_PERMUTATIONS,
+            seed: DEFAULT_SEED,
         }
     }
+}
+
+/// Shapiro–Wilk results of one characteristic in both lots (record key `normality`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NormalityRow {
+    /// Characteristic name.
+    pub characteristic: String,
+    /// Result per lot (absent with fewer than 3 units or no spread).
+    pub lots: [Option<ShapiroWilk>; 2],
+}
+
+/// Units far from their own lot's mean (record key `outliers`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct OutlierReport {
+    /// Cutoff on d² per lot (Beta reference at alpha / n).
+    pub cutoff: [f64; 2],
+    /// Flagged units, largest distance first per lot.
+    pub units: Vec<Outlier>,
+}
+
+/// Which test the assumption checks favour, and why (record key `favoured`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Favoured {
+    /// `"pooled T²"`, `"unequal-covariance test"` or `"permutation p-value"`.
+    pub test: String,
+    /// The reason, in plain words.
+    pub why: String,
+    /// That test's p-value.
+    pub p_value: f64,
 }
 
 /// Progress and cancellation for a long run; the worker thread's handle implements it.
@@ -210,10 +256,103 @@ pub struct Comparison {
     pub ranking: Vec<Contribution>,
     /// Summaries and univariate tests, one per characteristic.
     pub per_characteristic: Vec<CharacteristicResult>,
+    /// Box's M test of equal covariance matrices.
+    pub box_m: Option<BoxM>,
+    /// Mardia's tests per lot.
+    pub mardia: Vec<Mardia>,
+    /// Shapiro–Wilk per characteristic and lot.
+    pub normality: Vec<NormalityRow>,
+    /// Outlier screening.
+    pub outliers: Option<OutlierReport>,
+    /// Test that does not assume equal covariance matrices.
+    pub unequal_covariance: Option<UnequalCovariance>,
+    /// Permutation p-value.
+    pub permutation: Option<PermutationResult>,
+    /// Which test the checks favour.
+    pub favoured: Favoured,
     /// The result in plain words.
     pub verdict: String,
     /// Cautions about this result (conditioning, small lots...).
     pub warnings: Vec<String>,
+}
+
+/// Box's M is judged at this level (common practice: M is very sensitive to non-normality).
+pub const BOX_M_LEVEL: f64 = 0.001;
+/// Lot sizes differing by more than this ratio count as unbalanced (common practice).
+pub const UNBALANCED_RATIO: f64 = 1.2;
+
+/// Decides which test the assumption checks favour.
+pub fn favour(c: &Comparison) -> Favoured {
+    let (n1, n2) = (c.lots[0].n as f64, c.lots[1].n as f64);
+    let unbalanced = n1.max(n2) / n1.min(n2) > UNBALANCED_RATIO;
+    let box_p = c.box_m.as_ref().map(BoxM::preferred_p_value);
+    let cov_differ = box_p.is_some_and(|p| p < BOX_M_LEVEL);
+    let pooled = c.hotelling.p_value;
+    if cov_differ
+        && unbalanced
+        && let Some(u) = &c.unequal_covariance
+    {
+        return Favoured {
+            test: "unequal-covariance test".into(),
+            why: format!(
+                "Box's M gives p = {} (below {BOX_M_LEVEL}, the level common practice uses \
+                 because M is sensitive to non-normality) and the lots differ in size ({} and \
+                 {} units): the pooled T² can then be far off its level, while the \
+                 Krishnamoorthy–Yu test does not assume equal covariance matrices",
+                format_p(box_p.unwrap_or(f64::NAN)),
+                c.lots[0].n,
+                c.lots[1].n
+            ),
+            p_value: u.p_value,
+        };
+    }
+    let nonnormal: Vec<&str> = c
+        .mardia
+        .iter()
+        .filter(|m| m.skewness_p < c.alpha || m.kurtosis_p < c.alpha)
+        .map(|m| m.lot.as_str())
+        .collect();
+    if cov_differ {
+        return Favoured {
+            test: "pooled T²".into(),
+            why: format!(
+                "Box's M gives p = {} (covariance matrices differ), but the lots are of similar \
+                 size, where the pooled T² keeps its level (common practice); the \
+                 unequal-covariance test is shown for comparison",
+                format_p(box_p.unwrap_or(f64::NAN))
+            ),
+            p_value: pooled,
+        };
+    }
+    if !nonnormal.is_empty()
+        && let Some(perm) = &c.permutation
+    {
+        return Favoured {
+            test: "permutation p-value".into(),
+            why: format!(
+                "Mardia's tests reject multivariate normality in {}; the permutation p-value \
+                 does not rely on it",
+                nonnormal
+                    .iter()
+                    .map(|l| format!("\"{l}\""))
+                    .collect::<Vec<_>>()
+                    .join(" and ")
+            ),
+            p_value: perm.p_value,
+        };
+    }
+    let why = if c.box_m.is_none() && c.mardia.is_empty() {
+        "the assumption checks were not run".to_string()
+    } else {
+        "no check contradicts its assumptions (equal covariance matrices, multivariate \
+         normal lots)"
+            .to_string()
+    };
+    Favoured {
+        test: "pooled T²".into(),
+        why,
+        p_value: pooled,
+    }
 }
 
 fn rows_of(m: &DMatrix<f64>) -> Vec<Vec<f64>> {
@@ -299,10 +438,22 @@ pub fn compare(
     ];
     out.discriminant.apparent_misclassified = Some(apparent);
     out.discriminant.scores = Some([s1, s2]);
+    if settings.checks {
+        progress.report("assumption checks", 0.3);
+        unit_checks(
+            &mut out,
+            [lots[0].data, lots[1].data],
+            [&c1, &c2],
+            settings.alpha,
+        );
+        if progress.cancelled() {
+            return Err(EngineError::Cancelled);
+        }
+    }
     if settings.leave_one_out {
-        progress.report("leave-one-out", 0.5);
+        progress.report("leave-one-out", 0.4);
         let loo = discriminant::leave_one_out([&c1, &c2], &d, &pooled, |f| {
-            progress.report("leave-one-out", 0.5 + 0.5 * f);
+            progress.report("leave-one-out", 0.4 + 0.2 * f);
             !progress.cancelled()
         });
         if progress.cancelled() {
@@ -314,8 +465,61 @@ pub fn compare(
                 Some((wrong[0] + wrong[1]) as f64 / (m1.n + m2.n) as f64);
         }
     }
+    drop((c1, c2));
+    if settings.permutations > 0 {
+        progress.report("permutations", 0.6);
+        let keep_going = |f: f64| {
+            progress.report("permutations", 0.6 + 0.4 * f);
+            !progress.cancelled()
+        };
+        out.permutation = permutation_test(
+            lots[0].data,
+            lots[1].data,
+            settings.permutations,
+            settings.seed,
+            &keep_going,
+        );
+        if progress.cancelled() {
+            return Err(EngineError::Cancelled);
+        }
+    }
+    conclude(&mut out);
     progress.report("done", 1.0);
     Ok(out)
+}
+
+/// Mardia's tests, Shapiro–Wilk and the outlier screen: the checks that need unit data.
+fn unit_checks(
+    out: &mut Comparison,
+    data: [&DMatrix<f64>; 2],
+    centred: [&DMatrix<f64>; 2],
+    alpha: f64,
+) {
+    let p = out.characteristics.len();
+    let mut cutoff = [f64::NAN; 2];
+    let mut flagged = Vec::new();
+    for g in 0..2 {
+        let n = centred[g].nrows();
+        if let Some(z) = checks::whiten(centred[g]) {
+            out.mardia.push(checks::mardia(&out.lots[g].name, &z, n, p));
+            let (cut, units) = checks::outliers(g, &z, n, p, alpha);
+            cutoff[g] = cut;
+            flagged.extend(units);
+        }
+    }
+    out.outliers = Some(OutlierReport {
+        cutoff,
+        units: flagged,
+    });
+    out.normality = (0..p)
+        .map(|k| NormalityRow {
+            characteristic: out.characteristics[k].clone(),
+            lots: [
+                shapiro_wilk(data[0].column(k).as_slice()),
+                shapiro_wilk(data[1].column(k).as_slice()),
+            ],
+        })
+        .collect();
 }
 
 /// Compares two lots from published summary statistics only (n, mean vector, covariance).
@@ -461,8 +665,12 @@ fn finish(
             quote_list(&involved)
         ));
     }
-    let verdict = verdict_text(&hot, alpha, &ranking, &intervals);
-    Ok(Comparison {
+    let (box_m, unequal_covariance) = if settings.checks {
+        (checks::box_m(m1, m2), checks::unequal_covariance(m1, m2))
+    } else {
+        (None, None)
+    };
+    let mut out = Comparison {
         alpha,
         characteristics: characteristics.to_vec(),
         units: units.to_vec(),
@@ -496,9 +704,28 @@ fn finish(
         },
         ranking,
         per_characteristic,
-        verdict,
+        box_m,
+        mardia: Vec::new(),
+        normality: Vec::new(),
+        outliers: None,
+        unequal_covariance,
+        permutation: None,
+        favoured: Favoured {
+            test: String::new(),
+            why: String::new(),
+            p_value: f64::NAN,
+        },
+        verdict: String::new(),
         warnings,
-    })
+    };
+    conclude(&mut out);
+    Ok(out)
+}
+
+/// Sets the favoured test and the verdict from everything computed so far.
+fn conclude(c: &mut Comparison) {
+    c.favoured = favour(c);
+    c.verdict = verdict_text(c);
 }
 
 /// Formats a p-value for people: four significant digits, or a bound below 1e-16.
@@ -538,12 +765,9 @@ pub fn format_sig(x: f64, sig: usize) -> String {
     format!("{x:.decimals$}")
 }
 
-fn verdict_text(
-    h: &HotellingResult,
-    alpha: f64,
-    ranking: &[Contribution],
-    iv: &[Interval],
-) -> String {
+fn verdict_text(c: &Comparison) -> String {
+    let h = &c.hotelling;
+    let alpha = c.alpha;
     let stats = format!(
         "T² = {}, F({}, {}) = {}, p = {}",
         format_sig(h.t2, 4),
@@ -552,14 +776,16 @@ fn verdict_text(
         format_sig(h.f, 4),
         format_p(h.p_value)
     );
-    if h.differ {
-        let leaders: Vec<String> = ranking
+    let mut s = if h.differ {
+        let leaders: Vec<String> = c
+            .ranking
             .iter()
             .take(2)
-            .filter(|c| c.t2_drop > 0.0)
-            .map(|c| c.characteristic.clone())
+            .filter(|r| r.t2_drop > 0.0)
+            .map(|r| r.characteristic.clone())
             .collect();
-        let flagged: Vec<String> = iv
+        let flagged: Vec<String> = c
+            .intervals
             .iter()
             .filter(|i| i.excludes_zero[0])
             .map(|i| i.characteristic.clone())
@@ -586,7 +812,34 @@ fn verdict_text(
              not proof that the lots are the same; see the intervals for the size of \
              difference the data can rule out."
         )
+    };
+    let f = &c.favoured;
+    if f.test != "pooled T²" && f.p_value.is_finite() {
+        let differ = f.p_value < alpha;
+        let detail = match (f.test.as_str(), &c.unequal_covariance) {
+            ("unequal-covariance test", Some(u)) => format!(
+                "F({}, {}) = {}, p = {}",
+                u.df1,
+                format_sig(u.df2, 4),
+                format_sig(u.f, 4),
+                format_p(u.p_value)
+            ),
+            _ => format!("p = {}", format_p(f.p_value)),
+        };
+        s.push_str(&format!(
+            " The assumption checks favour the {} ({detail}): by it the lots {} at alpha {alpha}.",
+            f.test,
+            if differ {
+                "differ"
+            } else {
+                "do not differ detectably"
+            }
+        ));
+        if differ != h.differ {
+            s.push_str(" The two tests disagree: read the checks before deciding.");
+        }
     }
+    s
 }
 
 /// Geometry for the pairwise view of characteristics `i` and `j`.

@@ -5,7 +5,7 @@ use std::process::ExitCode;
 
 use clap::{Args, Parser, Subcommand};
 
-use crate::analysis::{self, LotData, Settings, Silent, SummaryLot};
+use crate::analysis::{self, LotData, Settings, Silent, SummaryLot, format_sig};
 use crate::data::{self, ColumnData, LoadOptions, Lot, Selection};
 use crate::report::{self, Record};
 
@@ -57,6 +57,33 @@ pub enum Command {
     CompareStats(StatsArgs),
     /// Show what lotshift sees in a file: delimiter, columns and their roles, missing cells.
     Inspect(InspectArgs),
+    /// Power of the test for a given shift and lot size, or the lot size for a target power.
+    Plan(PlanArgs),
+}
+
+/// Arguments of `plan`.
+#[derive(Debug, Args)]
+pub struct PlanArgs {
+    /// Number of characteristics compared (with --distance).
+    #[arg(long, value_name = "P")]
+    pub characteristics: Option<usize>,
+    /// Size of the shift to detect as a Mahalanobis distance (in pooled standard deviations
+    /// along the shift; 1.0 is a shift of one standard deviation for one characteristic).
+    #[arg(long, value_name = "D")]
+    pub distance: Option<f64>,
+    /// Take the shift and covariance from a summary-statistics file (as for compare-stats):
+    /// the shift is the difference of the two mean vectors, the covariance the pooled one.
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["characteristics", "distance"])]
+    pub from_summary: Option<PathBuf>,
+    /// Units per lot to give the power for (both lots the same size).
+    #[arg(long, value_name = "N")]
+    pub units: Option<usize>,
+    /// Target power: print the smallest number of units per lot that reaches it.
+    #[arg(long, value_name = "POWER", default_value_t = 0.9)]
+    pub target_power: f64,
+    /// Significance level.
+    #[arg(long, default_value_t = 0.05)]
+    pub alpha: f64,
 }
 
 /// Which lots to read and which characteristics to compare.
@@ -103,6 +130,15 @@ pub struct CompareArgs {
     /// Skip the leave-one-out misclassification rate.
     #[arg(long)]
     pub no_holdout: bool,
+    /// Skip the assumption checks (Box's M, Mardia, Shapiro–Wilk, outliers, unequal covariance).
+    #[arg(long)]
+    pub no_checks: bool,
+    /// Relabellings for the permutation p-value (0 skips it).
+    #[arg(long, default_value_t = analysis::DEFAULT_PERMUTATIONS)]
+    pub permutations: usize,
+    /// Seed of the permutation draws (the same seed gives the same p-value).
+    #[arg(long, default_value_t = analysis::DEFAULT_SEED)]
+    pub seed: u64,
 }
 
 /// Arguments of `compare-stats`.
@@ -158,6 +194,7 @@ pub fn run(command: Command) -> ExitCode {
         Command::Compare(a) => compare(a),
         Command::CompareStats(a) => compare_stats(a),
         Command::Inspect(a) => inspect(a),
+        Command::Plan(a) => plan(a),
     };
     match result {
         Ok(code) => code,
@@ -204,6 +241,9 @@ fn compare(a: CompareArgs) -> CliResult {
     let settings = Settings {
         alpha: a.alpha,
         leave_one_out: !a.no_holdout,
+        checks: !a.no_checks,
+        permutations: a.permutations,
+        seed: a.seed,
     };
     let c = analysis::compare(
         &prepared.characteristics,
@@ -222,11 +262,7 @@ fn compare(a: CompareArgs) -> CliResult {
         &Silent,
     )
     .map_err(|e| e.to_string())?;
-    let record = Record::new(
-        &c,
-        Some(&prepared),
-        [Some(&lots[0].provenance), Some(&lots[1].provenance)],
-    );
+    let record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     if a.json.as_deref() != Some("-") {
         let files = [
             lots[0].provenance.file_name.as_str(),
@@ -261,10 +297,13 @@ fn compare_stats(a: StatsArgs) -> CliResult {
     let settings = Settings {
         alpha: a.alpha.or(spec.alpha).unwrap_or(0.05),
         leave_one_out: false,
+        checks: true,
+        permutations: 0,
+        seed: analysis::DEFAULT_SEED,
     };
     let c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
         .map_err(|e| format!("{}: {e}", a.file.display()))?;
-    let record = Record::new(&c, None, [None, None]);
+    let record = Record::new(&c, None);
     if a.json.as_deref() != Some("-") {
         let name = a.file.display().to_string();
         out(&report::render_text(&c, None, [&name, &name]));
@@ -354,6 +393,79 @@ fn inspect(a: InspectArgs) -> CliResult {
                 .collect();
             outln!("  row {:<6} {}", lot.rows[i], cells.join(" | "));
         }
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+fn plan(a: PlanArgs) -> CliResult {
+    if !(a.alpha > 0.0 && a.alpha < 1.0) {
+        return Err(format!(
+            "alpha must lie strictly between 0 and 1 (got {})",
+            a.alpha
+        ));
+    }
+    if !(a.target_power > a.alpha && a.target_power < 1.0) {
+        return Err(format!(
+            "the target power must lie between alpha and 1 (got {})",
+            a.target_power
+        ));
+    }
+    let (p, delta2, source) = match (&a.from_summary, a.characteristics, a.distance) {
+        (Some(file), _, _) => {
+            let text =
+                std::fs::read_to_string(file).map_err(|e| format!("{}: {e}", file.display()))?;
+            let spec: StatsFile =
+                serde_json::from_str(&text).map_err(|e| format!("{}: {e}", file.display()))?;
+            let [l1, l2] = spec.lots.as_slice() else {
+                return Err(format!(
+                    "{}: \"lots\" must hold exactly two lots",
+                    file.display()
+                ));
+            };
+            let units = vec![None; spec.characteristics.len()];
+            let settings = Settings {
+                checks: false,
+                permutations: 0,
+                leave_one_out: false,
+                ..Settings::default()
+            };
+            let c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
+                .map_err(|e| format!("{}: {e}", file.display()))?;
+            (
+                spec.characteristics.len(),
+                c.hotelling.mahalanobis_d2,
+                format!("the shift and pooled covariance in {}", file.display()),
+            )
+        }
+        (None, Some(p), Some(d)) if p > 0 && d >= 0.0 => {
+            (p, d * d, format!("a shift of Mahalanobis distance {d}"))
+        }
+        _ => {
+            return Err("give --characteristics P and --distance D, or --from-summary FILE".into());
+        }
+    };
+    outln!("Power of Hotelling's T² at alpha {} for {source}", a.alpha);
+    outln!("  characteristics            {p}");
+    outln!(
+        "  Mahalanobis distance       {}",
+        format_sig(delta2.sqrt(), 4)
+    );
+    if let Some(n) = a.units {
+        let pw = crate::stats::power::power(p, n, n, delta2, a.alpha);
+        if pw.is_nan() {
+            return Err(format!(
+                "{n} units per lot are too few for {p} characteristics"
+            ));
+        }
+        outln!("  power with {n} units per lot   {}", format_sig(pw, 4));
+    }
+    match crate::stats::power::units_per_lot(p, delta2, a.alpha, a.target_power) {
+        Some(n) => outln!(
+            "  units per lot for power {}   {n}  (power {})",
+            a.target_power,
+            format_sig(crate::stats::power::power(p, n, n, delta2, a.alpha), 4)
+        ),
+        None => outln!("  no lot size up to 10^8 reaches power {}", a.target_power),
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -60,6 +60,8 @@ fn run(x: &DMatrix<f64>, y: &DMatrix<f64>, alpha: f64) -> Result<Comparison, Eng
         &Settings {
             alpha,
             leave_one_out: true,
+            permutations: 0,
+            ..Settings::default()
         },
         &Silent,
     )
@@ -225,6 +227,9 @@ fn false_alarm_rate_under_equal_means_is_alpha() {
             &Settings {
                 alpha: 0.05,
                 leave_one_out: false,
+                checks: false,
+                permutations: 0,
+                ..Settings::default()
             },
             &Silent,
         )

@@ -322,11 +322,7 @@ pub fn run_comparison(
         progress,
     )
     .map_err(|e| e.to_string())?;
-    let record = Record::new(
-        &c,
-        Some(&prepared),
-        [Some(&lots[0].provenance), Some(&lots[1].provenance)],
-    );
+    let record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     Ok(Box::new(Shown::new(c, prepared, lots.clone(), record)))
 }
 

@@ -3,7 +3,7 @@
 mod record;
 mod text;
 
-pub use record::{CAUTION, LotRecord, Record, SCHEMA, Software};
+pub use record::{CAUTION, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, Software};
 pub use text::render_text;
 
 use std::io::Write as _;

@@ -3,9 +3,12 @@
 use serde::{Deserialize, Serialize};
 
 use crate::analysis::{
-    CharacteristicResult, Comparison, Contribution, Discriminant, HotellingResult, Interval,
+    CharacteristicResult, Comparison, Contribution, Discriminant, Favoured, HotellingResult,
+    Interval, NormalityRow,
 };
-use crate::data::{Prepared, Provenance, Unmatched};
+use crate::data::{ColumnData, Lot, Prepared, Unmatched};
+use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
+use crate::stats::permutation::PermutationResult;
 
 /// Schema identifier written into every record.
 pub const SCHEMA: &str = "lotshift.comparison/1";
@@ -52,6 +55,30 @@ pub struct LotRecord {
     pub covariance: Vec<Vec<f64>>,
 }
 
+/// A flagged outlier, located in its file.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct OutlierRecord {
+    /// Lot index (0 reference, 1 candidate).
+    pub lot: usize,
+    /// Row as a spreadsheet shows it.
+    pub row: Option<u32>,
+    /// The unit's label columns, `[header, value]`.
+    pub labels: Vec<(String, String)>,
+    /// Squared Mahalanobis distance from its lot's mean.
+    pub d2: f64,
+    /// Beta reference tail probability.
+    pub p_value: f64,
+}
+
+/// The outlier screen in the record.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct OutlierSection {
+    /// Cutoff on d² per lot.
+    pub cutoff: [f64; 2],
+    /// Flagged units (all of them; largest distance first per lot).
+    pub units: Vec<OutlierRecord>,
+}
+
 /// The comparison record.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Record {
@@ -83,6 +110,20 @@ pub struct Record {
     pub pooled_covariance: Vec<Vec<f64>>,
     /// Condition number of the pooled correlation matrix.
     pub condition_number: f64,
+    /// Box's M test of equal covariance matrices.
+    pub box_m: Option<BoxM>,
+    /// Mardia's multivariate skewness and kurtosis per lot.
+    pub mardia: Vec<Mardia>,
+    /// Shapiro–Wilk per characteristic and lot.
+    pub normality: Vec<NormalityRow>,
+    /// Outlier screen.
+    pub outliers: Option<OutlierSection>,
+    /// Krishnamoorthy–Yu test for unequal covariance matrices.
+    pub unequal_covariance: Option<UnequalCovariance>,
+    /// Permutation p-value.
+    pub permutation: Option<PermutationResult>,
+    /// Which test the checks favour, and why.
+    pub favoured: Favoured,
     /// The result in plain words.
     pub verdict: String,
     /// Cautions about this result.
@@ -92,16 +133,14 @@ pub struct Record {
 }
 
 impl Record {
-    /// Builds the record of a comparison of unit data.
-    pub fn new(
-        c: &Comparison,
-        prepared: Option<&Prepared>,
-        sources: [Option<&Provenance>; 2],
-    ) -> Self {
+    /// Builds the record of a comparison; `inputs` are the prepared unit data and the lots as
+    /// read (absent for summary-statistics input).
+    pub fn new(c: &Comparison, inputs: Option<(&Prepared, [&Lot; 2])>) -> Self {
+        let prepared = inputs.map(|(p, _)| p);
         let lots = (0..2)
             .map(|i| {
                 let lot = &c.lots[i];
-                let src = sources[i];
+                let src = inputs.map(|(_, l)| &l[i].provenance);
                 let prep = prepared.map(|p| &p.lots[i]);
                 LotRecord {
                     name: lot.name.clone(),
@@ -120,6 +159,38 @@ impl Record {
                 }
             })
             .collect();
+        let outliers = c.outliers.as_ref().map(|o| OutlierSection {
+            cutoff: o.cutoff,
+            units: o
+                .units
+                .iter()
+                .map(|u| {
+                    let located = inputs.and_then(|(p, l)| {
+                        let k = *p.lots[u.lot].kept.get(u.unit)?;
+                        let lot = l[u.lot];
+                        let labels = lot
+                            .columns
+                            .iter()
+                            .filter_map(|col| match &col.data {
+                                ColumnData::Text(t) => {
+                                    Some((col.header.clone(), t.get(k).to_string()))
+                                }
+                                ColumnData::Numeric(_) => None,
+                            })
+                            .collect();
+                        Some((lot.rows.get(k).copied(), labels))
+                    });
+                    let (row, labels) = located.unwrap_or((None, Vec::new()));
+                    OutlierRecord {
+                        lot: u.lot,
+                        row,
+                        labels,
+                        d2: u.d2,
+                        p_value: u.p_value,
+                    }
+                })
+                .collect(),
+        });
         Record {
             schema: SCHEMA.into(),
             software: Software {
@@ -138,6 +209,13 @@ impl Record {
             per_characteristic: c.per_characteristic.clone(),
             pooled_covariance: c.pooled_covariance.clone(),
             condition_number: c.condition_number,
+            box_m: c.box_m.clone(),
+            mardia: c.mardia.clone(),
+            normality: c.normality.clone(),
+            outliers,
+            unequal_covariance: c.unequal_covariance.clone(),
+            permutation: c.permutation.clone(),
+            favoured: c.favoured.clone(),
             verdict: c.verdict.clone(),
             warnings: c.warnings.clone(),
             caution: CAUTION.into(),

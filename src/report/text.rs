@@ -158,6 +158,103 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
             100.0 * rate
         );
     }
+    checks_text(&mut s, c);
     let _ = writeln!(s, "\n{CAUTION}");
     s
+}
+
+fn checks_text(s: &mut String, c: &Comparison) {
+    let any = c.box_m.is_some()
+        || !c.mardia.is_empty()
+        || c.unequal_covariance.is_some()
+        || c.permutation.is_some();
+    if !any {
+        return;
+    }
+    let _ = writeln!(s, "\nAssumption checks and alternatives");
+    if let Some(b) = &c.box_m {
+        let _ = writeln!(
+            s,
+            "  Box's M (equal covariance matrices): M = {}, chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {}; reading the {} form: {}",
+            format_sig(b.m, 5),
+            format_sig(b.chi2, 5),
+            b.df,
+            format_p(b.p_value),
+            format_sig(b.f, 5),
+            b.f_df1,
+            format_sig(b.f_df2, 5),
+            format_p(b.f_p_value),
+            b.preferred,
+            b.why
+        );
+    }
+    for m in &c.mardia {
+        let _ = writeln!(
+            s,
+            "  Mardia, \"{}\": skewness b1 = {} (chi-square {} on {} df, p = {}), kurtosis b2 = {} (z = {}, p = {})",
+            m.lot,
+            format_sig(m.skewness, 4),
+            format_sig(m.skewness_stat, 4),
+            m.skewness_df,
+            format_p(m.skewness_p),
+            format_sig(m.kurtosis, 4),
+            format_sig(m.kurtosis_z, 3),
+            format_p(m.kurtosis_p)
+        );
+    }
+    for row in &c.normality {
+        let cell = |r: &Option<crate::stats::normality::ShapiroWilk>| match r {
+            Some(r) => format!(
+                "W = {}, p = {}{}",
+                format_sig(r.w, 4),
+                format_p(r.p_value),
+                if r.p_value_validated {
+                    ""
+                } else {
+                    " (n > 5000: p not validated)"
+                }
+            ),
+            None => "n/a".into(),
+        };
+        let _ = writeln!(
+            s,
+            "  Shapiro-Wilk {:<20} lot 1: {:<28} lot 2: {}",
+            row.characteristic,
+            cell(&row.lots[0]),
+            cell(&row.lots[1])
+        );
+    }
+    if let Some(o) = &c.outliers {
+        let count = |g: usize| o.units.iter().filter(|u| u.lot == g).count();
+        let _ = writeln!(
+            s,
+            "  Outliers (squared Mahalanobis distance beyond the Beta cutoff at alpha/n): {} in lot 1 (cutoff {}), {} in lot 2 (cutoff {})",
+            count(0),
+            format_sig(o.cutoff[0], 4),
+            count(1),
+            format_sig(o.cutoff[1], 4)
+        );
+    }
+    if let Some(u) = &c.unequal_covariance {
+        let _ = writeln!(
+            s,
+            "  Unequal covariances (Krishnamoorthy-Yu): T² = {}, F = {} on ({}, {}) df, p = {}",
+            format_sig(u.t2, 5),
+            format_sig(u.f, 5),
+            u.df1,
+            format_sig(u.df2, 5),
+            format_p(u.p_value)
+        );
+    }
+    if let Some(p) = &c.permutation {
+        let _ = writeln!(
+            s,
+            "  Permutation p-value: {} ({} of {} relabellings reached T², seed {})",
+            format_p(p.p_value),
+            p.at_least_observed,
+            p.permutations,
+            p.seed
+        );
+    }
+    let _ = writeln!(s, "  Favoured: {} — {}", c.favoured.test, c.favoured.why);
 }

@@ -13,7 +13,7 @@ use super::moments::LotMoments;
 pub fn ln_det(a: &DMatrix<f64>) -> Option<f64> {
     let p = a.nrows();
     let d: Vec<f64> = (0..p).map(|k| a[(k, k)]).collect();
-    if d.iter().any(|&v| !(v > 0.0)) {
+    if d.iter().any(|&v| !crate::stats::positive(v)) {
         return None;
     }
     let scaled = DMatrix::from_fn(p, p, |i, j| a[(i, j)] / (d[i] * d[j]).sqrt());
@@ -21,7 +21,7 @@ pub fn ln_det(a: &DMatrix<f64>) -> Option<f64> {
     let mut s: f64 = d.iter().map(|v| v.ln()).sum();
     for k in 0..p {
         let v = l[(k, k)];
-        if !(v > 0.0) {
+        if !crate::stats::positive(v) {
             return None;
         }
         s += 2.0 * v.ln();
@@ -174,7 +174,7 @@ pub fn whiten(centred: &DMatrix<f64>) -> Option<Vec<f64>> {
     }
     let cov = centred.tr_mul(centred) / n as f64;
     let sd: Vec<f64> = (0..p).map(|k| cov[(k, k)].sqrt()).collect();
-    if sd.iter().any(|&s| !(s > 0.0)) {
+    if sd.iter().any(|&s| !crate::stats::positive(s)) {
         return None;
     }
     let corr = DMatrix::from_fn(p, p, |i, j| cov[(i, j)] / (sd[i] * sd[j]));
@@ -339,7 +339,7 @@ pub fn unequal_covariance(m1: &LotMoments, m2: &LotMoments) -> Option<UnequalCov
     let v2 = m2.covariance() / n2;
     let s = &v1 + &v2;
     let sd: Vec<f64> = (0..p).map(|k| s[(k, k)].sqrt()).collect();
-    if sd.iter().any(|&v| !(v > 0.0)) {
+    if sd.iter().any(|&v| !crate::stats::positive(v)) {
         return None;
     }
     let scale = |m: &DMatrix<f64>| DMatrix::from_fn(p, p, |i, j| m[(i, j)] / (sd[i] * sd[j]));
@@ -362,7 +362,7 @@ pub fn unequal_covariance(m1: &LotMoments, m2: &LotMoments) -> Option<UnequalCov
     let pf = p as f64;
     let nu = (pf + pf * pf) / denom;
     let df2 = nu - pf + 1.0;
-    if !(df2 > 0.0) {
+    if !crate::stats::positive(df2) {
         return None;
     }
     let f = df2 / (nu * pf) * t2;

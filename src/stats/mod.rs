@@ -8,6 +8,8 @@ pub mod ellipse;
 pub mod hotelling;
 pub mod moments;
 pub mod normality;
+pub mod permutation;
+pub mod power;
 
 /// Why the engine could not compare two lots.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -64,6 +66,11 @@ pub enum EngineError {
     /// The run was cancelled through its progress hook.
     #[error("cancelled")]
     Cancelled,
+}
+
+/// True for a number greater than zero (false for NaN).
+pub fn positive(v: f64) -> bool {
+    v > 0.0
 }
 
 /// `"a"`, `"a" and "b"`, `"a", "b" and "c"`.

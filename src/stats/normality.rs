@@ -54,7 +54,7 @@ pub fn shapiro_wilk(values: &[f64]) -> Option<ShapiroWilk> {
     let mut x = values.to_vec();
     x.sort_by(f64::total_cmp);
     let range = x[n - 1] - x[0];
-    if !(range > 0.0) {
+    if !crate::stats::positive(range) {
         return None;
     }
     let an = n as f64;
