@@ -273,3 +273,45 @@ fn help_lists_the_subcommands() {
         assert!(out.contains(s), "{s}");
     }
 }
+
+#[test]
+fn plan_gives_power_and_lot_size() {
+    // Cohen (1988), Table 2.4.1 (from memory): d = 0.5, alpha 0.05, power 0.80 needs 64 per
+    // group; with one characteristic T² is the squared t, so lotshift must say 64.
+    let o = run(&[
+        "plan",
+        "--characteristics",
+        "1",
+        "--distance",
+        "0.5",
+        "--target-power",
+        "0.8",
+        "--units",
+        "64",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(out.contains("units per lot for power 0.8   64"), "{out}");
+    assert!(out.contains("power with 64 units per lot"), "{out}");
+    // From summary statistics (J&W Example 6.3's soap lots, from memory): a large shift needs
+    // few units.
+    let dir = tmpdir("plan");
+    let spec = dir.join("soap.json");
+    std::fs::write(
+        &spec,
+        r#"{"characteristics": ["lather", "mildness"],
+            "lots": [{"name": "1", "n": 50, "mean": [8.3, 4.1], "covariance": [[2, 1], [1, 6]]},
+                     {"name": "2", "n": 50, "mean": [10.2, 3.9], "covariance": [[2, 1], [1, 4]]}]}"#,
+    )
+    .unwrap();
+    let o = run(&["plan", "--from-summary", spec.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(
+        stdout(&o).contains("Mahalanobis distance       1.449"),
+        "{}",
+        stdout(&o)
+    );
+    let o = run(&["plan", "--characteristics", "3"]);
+    assert_eq!(o.status.code(), Some(2));
+    std::fs::remove_dir_all(dir).unwrap();
+}

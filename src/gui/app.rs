@@ -730,10 +730,24 @@ impl LotshiftApp {
             )
             .labelled_by(label.id);
         });
-        ui.weak(
-            "Not yet in this version: Box's M, Mardia's tests, outliers, the unequal-covariance \
-             test and the permutation p-value.",
-        );
+        changed |= ui
+            .checkbox(&mut self.saved.settings.checks, "assumption checks")
+            .on_hover_text(
+                "Box's M, Mardia's tests, Shapiro–Wilk, outliers and the unequal-covariance test",
+            )
+            .changed();
+        ui.horizontal(|ui| {
+            let label = ui.label("permutations");
+            changed |= ui
+                .add(
+                    egui::DragValue::new(&mut self.saved.settings.permutations)
+                        .range(0..=999_999)
+                        .speed(100.0),
+                )
+                .labelled_by(label.id)
+                .on_hover_text("Relabellings for the permutation p-value; 0 skips it")
+                .changed();
+        });
         if changed {
             self.rerun();
         }

@@ -1,12 +1,12 @@
 //! The per-characteristic table: both lots side by side, the difference and the univariate
 //! tests; sortable, and copyable as tab-separated text for a spreadsheet.
 
-use crate::analysis::{CharacteristicResult, format_p, format_sig};
+use crate::analysis::{format_p, format_sig};
 
 use super::app::Saved;
 use super::shown::Shown;
 
-const HEADERS: [&str; 15] = [
+const HEADERS: [&str; 17] = [
     "characteristic",
     "unit",
     "n ref",
@@ -22,10 +22,23 @@ const HEADERS: [&str; 15] = [
     "pooled t",
     "p (pooled t)",
     "p (Welch)",
+    "Shapiro–Wilk p ref",
+    "Shapiro–Wilk p cand",
 ];
 
-fn sort_key(r: &CharacteristicResult, col: usize) -> f64 {
+fn shapiro_p(s: &Shown, k: usize, g: usize) -> f64 {
+    s.comparison
+        .normality
+        .get(k)
+        .and_then(|r| r.lots[g])
+        .map_or(f64::NAN, |t| t.p_value)
+}
+
+fn sort_key(s: &Shown, k: usize, col: usize) -> f64 {
+    let r = &s.comparison.per_characteristic[k];
     match col {
+        15 => shapiro_p(s, k, 0),
+        16 => shapiro_p(s, k, 1),
         2 => r.lots[0].n as f64,
         3 => r.lots[0].mean,
         4 => r.lots[0].sd,
@@ -43,7 +56,16 @@ fn sort_key(r: &CharacteristicResult, col: usize) -> f64 {
     }
 }
 
-fn cells(r: &CharacteristicResult) -> [String; 15] {
+fn cells(s: &Shown, k: usize) -> [String; 17] {
+    let r = &s.comparison.per_characteristic[k];
+    let sw = |g: usize| {
+        let p = shapiro_p(s, k, g);
+        if p.is_nan() {
+            "n/a".to_string()
+        } else {
+            format_p(p)
+        }
+    };
     [
         r.characteristic.clone(),
         r.unit.clone().unwrap_or_default(),
@@ -60,6 +82,8 @@ fn cells(r: &CharacteristicResult) -> [String; 15] {
         format_sig(r.pooled_t, 4),
         format_p(r.pooled_p),
         format_p(r.welch_p),
+        sw(0),
+        sw(1),
     ]
 }
 
@@ -67,7 +91,7 @@ fn cells(r: &CharacteristicResult) -> [String; 15] {
 pub fn table_tsv(s: &Shown) -> String {
     let mut out = HEADERS.join("\t");
     out.push('\n');
-    for r in &s.comparison.per_characteristic {
+    for (k, r) in s.comparison.per_characteristic.iter().enumerate() {
         let row = [
             r.characteristic.clone(),
             r.unit.clone().unwrap_or_default(),
@@ -84,6 +108,8 @@ pub fn table_tsv(s: &Shown) -> String {
             r.pooled_t.to_string(),
             r.pooled_p.to_string(),
             r.welch_p.to_string(),
+            shapiro_p(s, k, 0).to_string(),
+            shapiro_p(s, k, 1).to_string(),
         ];
         out.push_str(&row.join("\t"));
         out.push('\n');
@@ -110,7 +136,7 @@ pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
             let o = if col == 0 {
                 rows[a].characteristic.cmp(&rows[b].characteristic)
             } else {
-                sort_key(&rows[a], col).total_cmp(&sort_key(&rows[b], col))
+                sort_key(s, a, col).total_cmp(&sort_key(s, b, col))
             };
             if asc { o } else { o.reverse() }
         });
@@ -135,7 +161,7 @@ pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                 }
                 ui.end_row();
                 for &i in &order {
-                    for cell in cells(&s.comparison.per_characteristic[i]) {
+                    for cell in cells(s, i) {
                         ui.label(cell);
                     }
                     ui.end_row();

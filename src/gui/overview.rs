@@ -103,14 +103,7 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown) {
                 }
             });
         ui.add_space(8.0);
-        ui.strong("Assumption checks");
-        ui.label(
-            "This version computes the T² test under its textbook assumptions (multivariate \
-             normal lots with equal covariance matrices) and does not yet test them: Box's M, \
-             Mardia's tests, outlier screening, the unequal-covariance test and the permutation \
-             p-value are planned. Until then, look at the pair plots for outliers and for very \
-             different spreads.",
-        );
+        checks_ui(ui, s);
         ui.add_space(8.0);
         ui.strong("Lots");
         for (i, lot) in s.lots.iter().enumerate() {
@@ -140,4 +133,118 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown) {
         ui.add_space(8.0);
         ui.label(RichText::new(CAUTION).italics());
     });
+}
+
+fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
+    let c = &s.comparison;
+    ui.strong("Assumption checks and alternatives");
+    if c.box_m.is_none() && c.mardia.is_empty() && c.permutation.is_none() {
+        ui.label("The checks were not run (see Settings).");
+        return;
+    }
+    ui.label(
+        RichText::new(format!(
+            "Favoured: {} (p = {}) — {}",
+            c.favoured.test,
+            format_p(c.favoured.p_value),
+            c.favoured.why
+        ))
+        .strong(),
+    );
+    egui::Grid::new("checks").striped(true).num_columns(2).show(ui, |ui| {
+        if let Some(b) = &c.box_m {
+            ui.label("Box's M, equal covariance matrices");
+            ui.label(format!(
+                "M = {}; chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {} — reading the {} form",
+                format_sig(b.m, 5),
+                format_sig(b.chi2, 5),
+                b.df,
+                format_p(b.p_value),
+                format_sig(b.f, 5),
+                b.f_df1,
+                format_sig(b.f_df2, 5),
+                format_p(b.f_p_value),
+                b.preferred
+            ))
+            .on_hover_text(&b.why);
+            ui.end_row();
+        }
+        if let Some(u) = &c.unequal_covariance {
+            ui.label("Test without equal covariances (Krishnamoorthy–Yu)");
+            ui.label(format!(
+                "T² = {}, F = {} on ({}, {}) df, p = {}",
+                format_sig(u.t2, 5),
+                format_sig(u.f, 5),
+                u.df1,
+                format_sig(u.df2, 5),
+                format_p(u.p_value)
+            ));
+            ui.end_row();
+        }
+        if let Some(p) = &c.permutation {
+            ui.label("Permutation p-value");
+            ui.label(format!(
+                "{} ({} of {} relabellings reached the observed T², seed {})",
+                format_p(p.p_value),
+                p.at_least_observed,
+                p.permutations,
+                p.seed
+            ));
+            ui.end_row();
+        }
+        for m in &c.mardia {
+            ui.label(format!("Mardia, {}", m.lot));
+            ui.label(format!(
+                "skewness {} (p = {}), kurtosis {} (p = {})",
+                format_sig(m.skewness, 4),
+                format_p(m.skewness_p),
+                format_sig(m.kurtosis, 4),
+                format_p(m.kurtosis_p)
+            ));
+            ui.end_row();
+        }
+        if !c.normality.is_empty() {
+            for g in 0..2 {
+                let low: Vec<String> = c
+                    .normality
+                    .iter()
+                    .filter(|r| r.lots[g].is_some_and(|t| t.p_value < c.alpha))
+                    .map(|r| r.characteristic.clone())
+                    .collect();
+                ui.label(format!("Shapiro–Wilk, {}", c.lots[g].name));
+                ui.label(if low.is_empty() {
+                    format!("no characteristic below p = {}", c.alpha)
+                } else {
+                    format!("below p = {}: {}", c.alpha, low.join(", "))
+                });
+                ui.end_row();
+            }
+        }
+    });
+    if let Some(o) = &s.record.outliers {
+        let count = |g: usize| o.units.iter().filter(|u| u.lot == g).count();
+        ui.label(format!(
+            "Outliers (squared Mahalanobis distance from the unit's own lot mean beyond the Beta \
+             cutoff at alpha/n): {} in the reference lot, {} in the candidate lot.",
+            count(0),
+            count(1)
+        ));
+        for u in o.units.iter().take(20) {
+            let labels: Vec<String> = u.labels.iter().map(|(h, v)| format!("{h} {v}")).collect();
+            ui.label(format!(
+                "  {} lot, row {}: {} — d² = {}, p = {}",
+                if u.lot == 0 { "reference" } else { "candidate" },
+                u.row.map_or("?".into(), |r| r.to_string()),
+                labels.join(", "),
+                format_sig(u.d2, 4),
+                format_p(u.p_value)
+            ));
+        }
+        if o.units.len() > 20 {
+            ui.label(format!(
+                "  … and {} more (all are in the exported record)",
+                o.units.len() - 20
+            ));
+        }
+    }
 }

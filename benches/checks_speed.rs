@@ -1,0 +1,107 @@
+//! Speed of the assumption checks against their straightforward forms, in the same run:
+//! Mardia's skewness through the third-moment tensor (O(n·p³)) against the pair-sum
+//! definition (O(n²·p), run on a subsample and extrapolated by (n/m)², stated in the table),
+//! and the permutation test by group sums against refitting T² for every relabelling (run on
+//! the first relabellings and extrapolated linearly; both give identical counts on them).
+//!
+//! Run: `cargo bench --bench checks_speed`.
+
+use std::time::Instant;
+
+use lotshift::stats::checks::{mardia, whiten};
+use lotshift::stats::permutation::{SplitMix64, permutation_test, permutation_test_refit};
+use nalgebra::DMatrix;
+
+fn normal_matrix(n: usize, p: usize, seed: u64) -> DMatrix<f64> {
+    let mut rng = SplitMix64(seed);
+    let mut u = || ((rng.next_u64() >> 11) as f64 + 0.5) / (1u64 << 53) as f64;
+    DMatrix::from_fn(n, p, |_, _| {
+        let (a, b) = (u(), u());
+        (-2.0 * a.ln()).sqrt() * (std::f64::consts::TAU * b).cos()
+    })
+}
+
+fn centred(x: &DMatrix<f64>) -> DMatrix<f64> {
+    let mut c = x.clone();
+    for mut col in c.column_iter_mut() {
+        let m = col.mean();
+        col.add_scalar_mut(-m);
+    }
+    c
+}
+
+/// b1 by the definition: (1/n²) Σᵢ Σⱼ (zᵢᵀ zⱼ)³ over whitened rows.
+fn b1_pairs(z: &[f64], n: usize, p: usize) -> f64 {
+    let mut s = 0.0;
+    for i in 0..n {
+        let zi = &z[i * p..(i + 1) * p];
+        for j in 0..n {
+            let zj = &z[j * p..(j + 1) * p];
+            let g: f64 = zi.iter().zip(zj).map(|(a, b)| a * b).sum();
+            s += g * g * g;
+        }
+    }
+    s / (n * n) as f64
+}
+
+fn main() {
+    println!(
+        "{:<58} {:>12} {:>14} {:>9} {:>8}",
+        "check", "lotshift s", "baseline s", "ratio", "target"
+    );
+    // Mardia on 10^5 x 10.
+    let (n, p, m) = (100_000, 10, 2_000);
+    let x = normal_matrix(n, p, 1);
+    let c = centred(&x);
+    let t = Instant::now();
+    let z = whiten(&c).expect("whitened");
+    let fast = mardia("bench", &z, n, p);
+    let fast_s = t.elapsed().as_secs_f64();
+    let sub = centred(&x.rows(0, m).into_owned());
+    let zs = whiten(&sub).expect("whitened");
+    let t = Instant::now();
+    let b1_sub = b1_pairs(&zs, m, p);
+    let pair_s = t.elapsed().as_secs_f64() * (n as f64 / m as f64).powi(2);
+    let check = mardia("sub", &zs, m, p).skewness;
+    assert!(
+        (check - b1_sub).abs() < 1e-9 * b1_sub.max(1e-6),
+        "tensor and pair sum agree on the subsample"
+    );
+    let ratio = pair_s / fast_s;
+    println!(
+        "{:<58} {:>12.3} {:>14.1} {:>9.0} {:>8}",
+        format!("Mardia skewness, 1e5 x 10 (pair sum: {m} units, x(n/m)^2)"),
+        fast_s,
+        pair_s,
+        ratio,
+        if ratio >= 100.0 { ">=100 ok" } else { "MISSED" }
+    );
+    let _ = fast;
+    // Permutation test, 2 x 5000 x 10, 9,999 relabellings.
+    let a = normal_matrix(5_000, 10, 2);
+    let b = normal_matrix(5_000, 10, 3).add_scalar(0.02);
+    let t = Instant::now();
+    let perm = permutation_test(&a, &b, 9_999, 11, &|_| true).expect("permutation");
+    let fast_s = t.elapsed().as_secs_f64();
+    let k = 100;
+    let t = Instant::now();
+    let slow = permutation_test_refit(&a, &b, k, 11).expect("refit");
+    let slow_s = t.elapsed().as_secs_f64() * 9_999.0 / k as f64;
+    let same = permutation_test(&a, &b, k, 11, &|_| true).expect("permutation");
+    assert_eq!(
+        same.at_least_observed, slow.at_least_observed,
+        "identical counts for the same seed"
+    );
+    let ratio = slow_s / fast_s;
+    println!(
+        "{:<58} {:>12.3} {:>14.1} {:>9.0} {:>8}",
+        format!(
+            "permutation p ({}), 2 x 5000 x 10, 9999 (refit: {k}, scaled)",
+            perm.p_value
+        ),
+        fast_s,
+        slow_s,
+        ratio,
+        if ratio >= 20.0 { ">=20 ok" } else { "MISSED" }
+    );
+}
