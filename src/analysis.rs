@@ -173,9 +173,66 @@ pub struct Discriminant {
     pub leave_one_out_misclassified: Option<[usize; 2]>,
     /// Leave-one-out misclassification rate over all units.
     pub leave_one_out_rate: Option<f64>,
+    /// Histogram of the scores on common bins (for charts; absent for summary input).
+    pub score_histogram: Option<ScoreHistogram>,
     /// Each unit's score `aᵀ(x − midpoint)`, per lot (not written to the record).
     #[serde(skip)]
     pub scores: Option<[Vec<f64>; 2]>,
+}
+
+/// Most bins of a score histogram (Rice's rule, 2·n^(1/3), chooses fewer for small lots).
+pub const MAX_SCORE_BINS: usize = 60;
+
+/// Both lots' discriminant scores counted on common bins.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ScoreHistogram {
+    /// Left edge of the first bin.
+    pub start: f64,
+    /// Bin width.
+    pub width: f64,
+    /// Units per bin, per lot.
+    pub counts: [Vec<usize>; 2],
+}
+
+impl ScoreHistogram {
+    /// Counts scores on `2·n^(1/3)` common bins (8 to [`MAX_SCORE_BINS`]); `None` when all
+    /// scores are equal.
+    pub fn new(scores: &[Vec<f64>; 2]) -> Option<Self> {
+        let (lo, hi) = scores
+            .iter()
+            .flatten()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+                (a.min(v), b.max(v))
+            });
+        if !(lo.is_finite() && hi.is_finite()) || hi <= lo {
+            return None;
+        }
+        let n = scores.iter().map(Vec::len).sum::<usize>() as f64;
+        let bins = ((2.0 * n.cbrt()).ceil() as usize).clamp(8, MAX_SCORE_BINS);
+        let width = (hi - lo) / bins as f64;
+        let mut counts = [vec![0; bins], vec![0; bins]];
+        for (g, s) in scores.iter().enumerate() {
+            for &v in s {
+                let b = (((v - lo) / width) as usize).min(bins - 1);
+                counts[g][b] += 1;
+            }
+        }
+        Some(ScoreHistogram {
+            start: lo,
+            width,
+            counts,
+        })
+    }
+
+    /// Density of bin `b` in lot `g` (count / (n · width)).
+    pub fn density(&self, g: usize, b: usize) -> f64 {
+        let n: usize = self.counts[g].iter().sum();
+        if n == 0 {
+            0.0
+        } else {
+            self.counts[g][b] as f64 / (n as f64 * self.width)
+        }
+    }
 }
 
 /// How much one characteristic drives the shift (record key `ranking`).
@@ -236,6 +293,8 @@ pub struct LotResult {
 pub struct Comparison {
     /// Significance level used.
     pub alpha: f64,
+    /// Everything the comparison was computed with.
+    pub settings: Settings,
     /// Characteristic names, in column order.
     pub characteristics: Vec<String>,
     /// Units of measure.
@@ -437,7 +496,9 @@ pub fn compare(
         s2.iter().filter(|&&s| s >= 0.0).count(),
     ];
     out.discriminant.apparent_misclassified = Some(apparent);
-    out.discriminant.scores = Some([s1, s2]);
+    let scores = [s1, s2];
+    out.discriminant.score_histogram = ScoreHistogram::new(&scores);
+    out.discriminant.scores = Some(scores);
     if settings.checks {
         progress.report("assumption checks", 0.3);
         unit_checks(
@@ -672,6 +733,7 @@ fn finish(
     };
     let mut out = Comparison {
         alpha,
+        settings: settings.clone(),
         characteristics: characteristics.to_vec(),
         units: units.to_vec(),
         lots: [
@@ -700,6 +762,7 @@ fn finish(
             apparent_misclassified: None,
             leave_one_out_misclassified: None,
             leave_one_out_rate: None,
+            score_histogram: None,
             scores: None,
         },
         ranking,

@@ -7,7 +7,7 @@ use clap::{Args, Parser, Subcommand};
 
 use crate::analysis::{self, LotData, Settings, Silent, SummaryLot, format_sig};
 use crate::data::{self, ColumnData, LoadOptions, Lot, Selection};
-use crate::report::{self, Record};
+use crate::report::{self, Record, html, sign};
 
 /// Writes a line to standard output; a closed pipe (`lotshift ... | head`) is not an error
 /// worth a panic, so write failures are ignored.
@@ -49,6 +49,8 @@ pub struct Cli {
 }
 
 /// Subcommands.
+// Parsed once per run: the size of the largest variant does not matter.
+#[allow(clippy::large_enum_variant)]
 #[derive(Debug, Subcommand)]
 pub enum Command {
     /// Compare two lots (two files, or one file split by a lot column).
@@ -59,6 +61,52 @@ pub enum Command {
     Inspect(InspectArgs),
     /// Power of the test for a given shift and lot size, or the lot size for a target power.
     Plan(PlanArgs),
+    /// Make an Ed25519 signing key pair for signed summaries.
+    Keygen(KeygenArgs),
+    /// Check a signed summary: its signature, and with the lot files, every number.
+    Verify(VerifyArgs),
+    /// Render a record or signed summary as a self-contained HTML page.
+    Report(ReportArgs),
+}
+
+/// Arguments of `keygen`.
+#[derive(Debug, Args)]
+pub struct KeygenArgs {
+    /// Printed name of the person the key belongs to.
+    #[arg(long, value_name = "NAME")]
+    pub signer: String,
+    /// Folder to write the key files into.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// Base name of the key files.
+    #[arg(long, default_value = "lotshift-signing-key")]
+    pub name: String,
+}
+
+/// Arguments of `verify`.
+#[derive(Debug, Args)]
+pub struct VerifyArgs {
+    /// The signed summary.
+    #[arg(value_name = "FILE")]
+    pub file: PathBuf,
+    /// The lot files (reference, candidate; or the one file both lots were split from):
+    /// checks their SHA-256 and recomputes every number.
+    #[arg(long, value_name = "FILE", num_args = 1..=2)]
+    pub lots: Vec<PathBuf>,
+    /// The expected signer's public key (PEM).
+    #[arg(long, value_name = "PUB")]
+    pub key: Option<PathBuf>,
+}
+
+/// Arguments of `report`.
+#[derive(Debug, Args)]
+pub struct ReportArgs {
+    /// A comparison record or signed summary (JSON).
+    #[arg(value_name = "FILE")]
+    pub file: PathBuf,
+    /// The HTML file to write.
+    #[arg(long, value_name = "HTML")]
+    pub out: PathBuf,
 }
 
 /// Arguments of `plan`.
@@ -139,6 +187,21 @@ pub struct CompareArgs {
     /// Seed of the permutation draws (the same seed gives the same p-value).
     #[arg(long, default_value_t = analysis::DEFAULT_SEED)]
     pub seed: u64,
+    /// Sign the summary with this private key (PEM); needs --meaning and --out.
+    #[arg(long, value_name = "KEY", requires_all = ["meaning", "out"])]
+    pub sign: Option<PathBuf>,
+    /// Meaning of the signature: review, approval or authorship.
+    #[arg(long, value_name = "MEANING", requires = "sign")]
+    pub meaning: Option<String>,
+    /// Printed name of the signer (default: the name stored beside the key by keygen).
+    #[arg(long, value_name = "NAME", requires = "sign")]
+    pub signer: Option<String>,
+    /// Where to write the signed summary (JSON).
+    #[arg(long, value_name = "FILE", requires = "sign")]
+    pub out: Option<PathBuf>,
+    /// Also write a self-contained HTML report of the comparison.
+    #[arg(long, value_name = "HTML")]
+    pub html: Option<PathBuf>,
 }
 
 /// Arguments of `compare-stats`.
@@ -195,6 +258,9 @@ pub fn run(command: Command) -> ExitCode {
         Command::CompareStats(a) => compare_stats(a),
         Command::Inspect(a) => inspect(a),
         Command::Plan(a) => plan(a),
+        Command::Keygen(a) => keygen(a),
+        Command::Verify(a) => verify(a),
+        Command::Report(a) => report_html(a),
     };
     match result {
         Ok(code) => code,
@@ -262,7 +328,30 @@ fn compare(a: CompareArgs) -> CliResult {
         &Silent,
     )
     .map_err(|e| e.to_string())?;
-    let record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
+    let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
+    record.analysed_at = Some(sign::now_rfc3339());
+    // Sign before printing anything, so a bad key or meaning stops with nothing written.
+    let signed = match &a.sign {
+        Some(key_path) => {
+            let meaning_text = a.meaning.as_deref().unwrap_or_default();
+            let meaning = sign::Meaning::parse(meaning_text).ok_or_else(|| {
+                format!("--meaning must be review, approval or authorship (got \"{meaning_text}\")")
+            })?;
+            let key = sign::read_signing_key(key_path).map_err(|e| e.to_string())?;
+            let signer = a.signer.clone().or_else(|| sign::signer_beside(key_path)).ok_or_else(|| {
+                format!(
+                    "no printed name for the signer: give --signer, or keep the .signer.json file \
+                     keygen wrote beside {}",
+                    key_path.display()
+                )
+            })?;
+            Some(
+                sign::sign(&record, &key, &signer, meaning, &sign::now_rfc3339())
+                    .map_err(|e| e.to_string())?,
+            )
+        }
+        None => None,
+    };
     if a.json.as_deref() != Some("-") {
         let files = [
             lots[0].provenance.file_name.as_str(),
@@ -271,11 +360,220 @@ fn compare(a: CompareArgs) -> CliResult {
         out(&report::render_text(&c, Some(&prepared), files));
     }
     emit_json(&a.json, &record)?;
+    if let (Some(summary), Some(out_path)) = (&signed, &a.out) {
+        sign::write_summary(out_path, summary)
+            .map_err(|e| format!("the signed summary was not written: {e}"))?;
+        if a.json.as_deref() != Some("-") {
+            outln!(
+                "Signed summary written to {} (signed by {}, meaning {}, key {})",
+                out_path.display(),
+                summary.signature.signer,
+                summary.signature.meaning,
+                summary.signature.key_fingerprint
+            );
+        }
+    }
+    if let Some(html_path) = &a.html {
+        let value = serde_json::to_value(&record).map_err(|e| e.to_string())?;
+        let sig = signed
+            .as_ref()
+            .map(|s| serde_json::to_value(&s.signature).unwrap_or_default());
+        let html = html::render_html(&value, sig.as_ref());
+        report::write_atomic(html_path, html.as_bytes())
+            .map_err(|e| format!("the report was not written: {e}"))?;
+    }
     Ok(if a.fail_on_shift && c.hotelling.differ {
         ExitCode::from(EXIT_SHIFT)
     } else {
         ExitCode::SUCCESS
     })
+}
+
+fn keygen(a: KeygenArgs) -> CliResult {
+    if a.signer.trim().is_empty() {
+        return Err("--signer needs the printed name of the key's owner".into());
+    }
+    let private = sign::keygen(&a.out, &a.name, a.signer.trim()).map_err(|e| e.to_string())?;
+    let (public, signer) = sign::key_companions(&private);
+    outln!(
+        "private key  {} (keep it to yourself; mode 0600)",
+        private.display()
+    );
+    outln!(
+        "public key   {} (give it to reviewers: lotshift verify --key)",
+        public.display()
+    );
+    outln!("signer       {} ({})", a.signer.trim(), signer.display());
+    Ok(ExitCode::SUCCESS)
+}
+
+/// Exit status when a signed summary does not verify.
+pub const EXIT_NOT_VERIFIED: u8 = 1;
+
+fn verify(a: VerifyArgs) -> CliResult {
+    let text =
+        std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let expected = match &a.key {
+        Some(k) => Some(sign::read_verifying_key(k).map_err(|e| e.to_string())?),
+        None => None,
+    };
+    let fail = |why: String| -> CliResult {
+        outln!("NOT VERIFIED: {why}");
+        eprintln!("lotshift: {}: not verified: {why}", a.file.display());
+        Ok(ExitCode::from(EXIT_NOT_VERIFIED))
+    };
+    let summary = match sign::verify_signature(&text, expected.as_ref()) {
+        Ok(s) => s,
+        Err(e) => return fail(e.to_string()),
+    };
+    let sig = &summary.signature;
+    outln!(
+        "signature    valid: signed by {} on {} (UTC), meaning {}, key {}",
+        sig.signer,
+        sig.signed_at,
+        sig.meaning,
+        sig.key_fingerprint
+    );
+    if expected.is_some() {
+        outln!("signer key   matches the expected public key");
+    } else {
+        outln!(
+            "signer key   not checked against an expected key (give --key PUB to check who signed)"
+        );
+    }
+    if a.lots.is_empty() {
+        outln!("lot files    not checked (give --lots to check them and recompute every number)");
+        outln!("VERIFIED (signature only)");
+        return Ok(ExitCode::SUCCESS);
+    }
+    let rec = &summary.record;
+    let lots_rec = rec["lots"].as_array().cloned().unwrap_or_default();
+    if lots_rec.len() != 2 {
+        return fail("the record does not describe two lots".into());
+    }
+    let split = lots_rec[0]["split"].as_array().map(|s| {
+        s.iter()
+            .map(|v| v.as_str().unwrap_or_default().to_string())
+            .collect::<Vec<_>>()
+    });
+    let files: Vec<PathBuf> = match (a.lots.len(), &split) {
+        (1, Some(_)) => vec![a.lots[0].clone()],
+        (2, Some(_)) if std::fs::read(&a.lots[0]).ok() == std::fs::read(&a.lots[1]).ok() => {
+            vec![a.lots[0].clone()]
+        }
+        (2, _) => a.lots.clone(),
+        _ => {
+            return fail(
+                "give the two lot files (or the one file both lots were split from)".into(),
+            );
+        }
+    };
+    for (i, f) in files.iter().enumerate() {
+        let bytes = std::fs::read(f).map_err(|e| format!("{}: {e}", f.display()))?;
+        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+        let want = lots_rec[i]["sha256"].as_str().unwrap_or_default();
+        if got != want {
+            return fail(format!(
+                "lot file {} is not the file analysed: its SHA-256 is {got}, the record has {want}",
+                f.display()
+            ));
+        }
+        outln!("lot file     {} matches (SHA-256 {got})", f.display());
+    }
+    let options = LoadOptions {
+        sheet: lots_rec[0]["sheet"].as_str().map(str::to_string),
+        labels: lots_rec[0]["forced_labels"]
+            .as_array()
+            .map(|l| {
+                l.iter()
+                    .filter_map(|v| v.as_str().map(str::to_string))
+                    .collect()
+            })
+            .unwrap_or_default(),
+    };
+    let lots = match &split {
+        Some(s) if s.len() == 2 => {
+            let value1 = lots_rec[1]["split"][1]
+                .as_str()
+                .unwrap_or_default()
+                .to_string();
+            data::load_two(
+                &files,
+                Some(&s[0]),
+                Some([s[1].as_str(), value1.as_str()]),
+                &options,
+            )
+        }
+        _ => data::load_two(&files, None, None, &options),
+    }
+    .map_err(|e| e.to_string())?;
+    let characteristics: Vec<String> = rec["characteristics"]
+        .as_array()
+        .map(|c| {
+            c.iter()
+                .filter_map(|v| v.as_str().map(str::to_string))
+                .collect()
+        })
+        .unwrap_or_default();
+    let settings: Settings = serde_json::from_value(rec["settings"].clone())
+        .map_err(|e| format!("record settings: {e}"))?;
+    let selection = Selection {
+        only: Some(characteristics),
+        exclude: Vec::new(),
+    };
+    let prepared = data::prepare(&lots[0], &lots[1], &selection).map_err(|e| e.to_string())?;
+    let c = analysis::compare(
+        &prepared.characteristics,
+        &prepared.units,
+        [
+            LotData {
+                name: &prepared.lots[0].name,
+                data: &prepared.lots[0].data,
+            },
+            LotData {
+                name: &prepared.lots[1].name,
+                data: &prepared.lots[1].data,
+            },
+        ],
+        &settings,
+        &Silent,
+    )
+    .map_err(|e| e.to_string())?;
+    let recomputed = serde_json::to_value(Record::new(&c, Some((&prepared, [&lots[0], &lots[1]]))))
+        .map_err(|e| e.to_string())?;
+    if let Some(diff) = sign::first_difference(rec, &recomputed) {
+        return fail(format!("a recomputed number differs: {diff}"));
+    }
+    outln!("recomputed   every number in the record matches the lot files");
+    outln!("VERIFIED");
+    Ok(ExitCode::SUCCESS)
+}
+
+fn report_html(a: ReportArgs) -> CliResult {
+    let text =
+        std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let doc: serde_json::Value =
+        serde_json::from_str(&text).map_err(|e| format!("{}: not JSON: {e}", a.file.display()))?;
+    let html = if doc.get("signature").is_some() && doc.get("record").is_some() {
+        match sign::verify_signature(&text, None) {
+            Ok(_) => eprintln!(
+                "lotshift: the signature verifies (use lotshift verify to check the lot files too)"
+            ),
+            Err(e) => eprintln!("lotshift: warning: {e}"),
+        }
+        html::render_html(&doc["record"], Some(&doc["signature"]))
+    } else if doc.get("schema").and_then(|s| s.as_str()) == Some(report::SCHEMA) {
+        html::render_html(&doc, None)
+    } else {
+        return Err(format!(
+            "{}: neither a comparison record nor a signed summary",
+            a.file.display()
+        ));
+    };
+    report::write_atomic(&a.out, html.as_bytes())
+        .map_err(|e| format!("the report was not written: {e}"))?;
+    outln!("report written to {}", a.out.display());
+    Ok(ExitCode::SUCCESS)
 }
 
 fn compare_stats(a: StatsArgs) -> CliResult {

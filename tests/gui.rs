@@ -111,3 +111,51 @@ fn swapping_makes_the_candidate_the_reference() {
     assert_eq!(c.lots[0].name, "candidate-route-b");
     assert!((c.intervals[2].difference + d).abs() < 1e-12 * d.abs());
 }
+
+#[test]
+fn a_signed_summary_is_checked_against_the_loaded_lots() {
+    use lotshift::report::sign::{self, Meaning};
+    let mut h = harness();
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-sign-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    // Sign the record the window shows, with a throwaway key.
+    let key = ed25519_key();
+    let record = h.state().shown.as_ref().unwrap().record.clone();
+    let summary = sign::sign(
+        &record,
+        &key,
+        "Dana Whitfield",
+        Meaning::Review,
+        "2026-12-02T03:30:00Z",
+    )
+    .unwrap();
+    let path = dir.join("summary.json");
+    std::fs::write(&path, summary.to_json()).unwrap();
+    h.state_mut().check_summary(&path);
+    h.run_steps(2);
+    h.get_by_label_contains("signature valid — signed by Dana Whitfield");
+    h.get_by_label_contains("every number matches the current result");
+    // A tampered copy is reported as not verified.
+    let bad = dir.join("bad.json");
+    std::fs::write(&bad, summary.to_json().replacen("Dana", "Dan", 1)).unwrap();
+    h.state_mut().check_summary(&bad);
+    h.run_steps(2);
+    h.get_by_label_contains("NOT VERIFIED");
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+fn ed25519_key() -> ed25519_dalek::SigningKey {
+    ed25519_dalek::SigningKey::from_bytes(&[9u8; 32])
+}
+
+#[test]
+fn the_signing_form_offers_to_create_a_key_first() {
+    let mut h = harness();
+    h.get_by_label("Sign and export…").click();
+    h.run_steps(2);
+    h.get_by_label_contains("No signing key yet");
+    h.get_by_label("Create a key in a folder…");
+    h.get_by_label("Cancel").click();
+    h.run_steps(2);
+    assert!(h.state().signing.is_none());
+}

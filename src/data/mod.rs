@@ -51,6 +51,9 @@ pub struct Provenance {
     pub rows_read: usize,
     /// Things worth knowing about how the file was read.
     pub notes: Vec<String>,
+    /// Columns the user asked to read as labels.
+    #[serde(default)]
+    pub forced_labels: Vec<String>,
 }
 
 /// Compact storage for a text column: one buffer and the end offset of each cell.
@@ -283,6 +286,7 @@ pub fn load_bytes(path: &str, bytes: &[u8], options: &LoadOptions) -> Result<Lot
         split: None,
         rows_read: 0,
         notes: Vec::new(),
+        forced_labels: options.labels.clone(),
     };
     let ext = Path::new(path)
         .extension()
@@ -331,7 +335,13 @@ pub fn load_two(
     match (files, split_by) {
         ([one], Some(column)) => {
             let mut opts = options.clone();
-            opts.labels.push(column.to_string());
+            if !opts
+                .labels
+                .iter()
+                .any(|l| match_key(l) == match_key(column))
+            {
+                opts.labels.push(column.to_string());
+            }
             let lot = load(one, &opts)?;
             split_lot(&lot, column, lots)
         }

@@ -12,8 +12,10 @@ use crate::analysis::{Settings, format_p, format_sig};
 use crate::data::{self, ColumnData, Lot, Selection, match_key};
 
 use super::shown::Shown;
-use super::worker::{Outcome, Slot, Source, Worker};
+use super::worker::{Outcome, Purpose, Slot, Source, Worker};
 use super::{characteristics, direction, intervals, overview, pairs};
+use crate::report::CAUTION;
+use crate::report::sign::{self, Meaning};
 
 /// The bundled sample lots (invented; see sample-lots/README.md).
 pub const SAMPLE_REFERENCE: (&str, &[u8]) = (
@@ -108,6 +110,10 @@ pub struct Saved {
     pub difference_shadow: bool,
     /// Sort of the characteristics table: column and whether ascending.
     pub table_sort: Option<(usize, bool)>,
+    /// Where the user's private signing key is (its location only, never its content).
+    pub signing_key: Option<String>,
+    /// Printed name used for the last signature.
+    pub signer_name: String,
 }
 
 impl Default for Saved {
@@ -121,6 +127,8 @@ impl Default for Saved {
             pair_grid: true,
             difference_shadow: true,
             table_sort: None,
+            signing_key: None,
+            signer_name: String::new(),
         }
     }
 }
@@ -169,6 +177,19 @@ pub struct LotshiftApp {
     /// Short confirmations (export written...).
     pub notice: Option<String>,
     screenshot: Option<ScreenshotPlan>,
+    /// The signing form, while open.
+    pub signing: Option<SignForm>,
+}
+
+/// The "Sign and export" form.
+#[derive(Debug, Clone)]
+pub struct SignForm {
+    /// Printed name of the signer.
+    pub signer: String,
+    /// Meaning of the signature.
+    pub meaning: Meaning,
+    /// Last problem, shown in the form.
+    pub problem: Option<String>,
 }
 
 impl LotshiftApp {
@@ -186,6 +207,7 @@ impl LotshiftApp {
             messages: Vec::new(),
             notice: None,
             screenshot: None,
+            signing: None,
         }
     }
 
@@ -318,12 +340,256 @@ impl LotshiftApp {
                     }
                 },
                 Outcome::Picked { slot, paths } => self.load_paths(slot, paths),
+                Outcome::Chosen { purpose, path } => {
+                    if let Some(p) = path {
+                        self.chosen(purpose, p);
+                    }
+                }
                 Outcome::Exported(r) => match r {
                     Ok(p) => self.notice = Some(format!("Record written to {}", p.display())),
                     Err(e) => self.messages.push(e),
                 },
             }
         }
+    }
+
+    fn chosen(&mut self, purpose: Purpose, path: PathBuf) {
+        match purpose {
+            Purpose::SigningKey => match sign::read_signing_key(&path) {
+                Ok(_) => {
+                    if let Some(name) = sign::signer_beside(&path)
+                        && let Some(f) = &mut self.signing
+                    {
+                        f.signer = name;
+                    }
+                    self.saved.signing_key = Some(path.display().to_string());
+                }
+                Err(e) => self.form_problem(e.to_string()),
+            },
+            Purpose::KeyFolder => {
+                let name = self
+                    .signing
+                    .as_ref()
+                    .map(|f| f.signer.trim().to_string())
+                    .unwrap_or_default();
+                if name.is_empty() {
+                    self.form_problem(
+                        "Type your printed name first: it is stored with the key.".into(),
+                    );
+                    return;
+                }
+                match sign::keygen(&path, "lotshift-signing-key", &name) {
+                    Ok(p) => {
+                        self.notice = Some(format!(
+                            "Signing key created: {} (private, keep it to yourself) and its public half beside it for reviewers",
+                            p.display()
+                        ));
+                        self.saved.signing_key = Some(p.display().to_string());
+                    }
+                    Err(e) => self.form_problem(e.to_string()),
+                }
+            }
+            Purpose::Summary => self.check_summary(&path),
+        }
+    }
+
+    fn form_problem(&mut self, why: String) {
+        match &mut self.signing {
+            Some(f) => f.problem = Some(why),
+            None => self.messages.push(why),
+        }
+    }
+
+    /// Checks a signed summary's signature and, when the loaded lots are the files it names,
+    /// that their SHA-256 match; the outcome goes to the message bar.
+    pub fn check_summary(&mut self, path: &std::path::Path) {
+        let text = match std::fs::read_to_string(path) {
+            Ok(t) => t,
+            Err(e) => {
+                self.messages.push(format!("{}: {e}", path.display()));
+                return;
+            }
+        };
+        match sign::verify_signature(&text, None) {
+            Err(e) => self
+                .messages
+                .push(format!("{}: NOT VERIFIED: {e}", path.display())),
+            Ok(s) => {
+                let sig = &s.signature;
+                let mut note = format!(
+                    "{}: signature valid — signed by {} on {} UTC, meaning {}, key {}.",
+                    path.display(),
+                    sig.signer,
+                    sig.signed_at,
+                    sig.meaning,
+                    sig.key_fingerprint
+                );
+                let recorded: Vec<String> = s.record["lots"]
+                    .as_array()
+                    .into_iter()
+                    .flatten()
+                    .map(|l| l["sha256"].as_str().unwrap_or_default().to_string())
+                    .collect();
+                let loaded: Vec<String> = self
+                    .slots
+                    .iter()
+                    .flatten()
+                    .map(|l| l.provenance.sha256.clone())
+                    .collect();
+                if loaded.len() == 2 && recorded == loaded {
+                    match self.shown.as_ref().filter(|_| self.shown_current) {
+                        Some(shown) => {
+                            let now = serde_json::to_value(&shown.record).unwrap_or_default();
+                            match sign::first_difference(&s.record, &now) {
+                                None => note.push_str(" The loaded lots are the files it names, and every number matches the current result."),
+                                Some(d) => note.push_str(&format!(" The loaded lots are the files it names, but the current result differs (check the settings and characteristics): {d}")),
+                            }
+                        }
+                        None => note
+                            .push_str(" The loaded lots are the files it names (SHA-256 match)."),
+                    }
+                } else {
+                    note.push_str(" The loaded lots are not the files it names; load them to compare the numbers, or use lotshift verify.");
+                }
+                self.notice = Some(note);
+            }
+        }
+    }
+
+    /// Signs the current record with the remembered key and asks where to save it.
+    fn sign_and_export(&mut self) {
+        let (Some(form), Some(shown)) = (&self.signing, &self.shown) else {
+            return;
+        };
+        let Some(key_path) = self.saved.signing_key.clone() else {
+            self.form_problem("Choose or create a signing key first.".into());
+            return;
+        };
+        if form.signer.trim().is_empty() {
+            self.form_problem("Type your printed name.".into());
+            return;
+        }
+        let key = match sign::read_signing_key(std::path::Path::new(&key_path)) {
+            Ok(k) => k,
+            Err(e) => {
+                self.form_problem(e.to_string());
+                return;
+            }
+        };
+        let mut record = shown.record.clone();
+        record.analysed_at = Some(sign::now_rfc3339());
+        match sign::sign(
+            &record,
+            &key,
+            form.signer.trim(),
+            form.meaning,
+            &sign::now_rfc3339(),
+        ) {
+            Ok(summary) => {
+                self.saved.signer_name = form.signer.trim().to_string();
+                let name = format!(
+                    "signed-comparison-{}-vs-{}.json",
+                    sanitize(&shown.comparison.lots[0].name),
+                    sanitize(&shown.comparison.lots[1].name)
+                );
+                self.worker.export(name, summary.to_json());
+                self.signing = None;
+            }
+            Err(e) => self.form_problem(e.to_string()),
+        }
+    }
+
+    fn signing_ui(&mut self, ctx: &egui::Context) {
+        let Some(mut form) = self.signing.take() else {
+            return;
+        };
+        let mut open = true;
+        let mut action: Option<&str> = None;
+        let key = self
+            .saved
+            .signing_key
+            .clone()
+            .filter(|k| std::path::Path::new(k).exists());
+        egui::Window::new("Sign and export the comparison")
+            .open(&mut open)
+            .collapsible(false)
+            .resizable(false)
+            .show(ctx, |ui| {
+                ui.label("A signed summary holds the whole comparison record and your signature: your printed name, the time of signing (UTC), the meaning of the signature, and an Ed25519 signature over it, so a reviewer can check it with lotshift verify.");
+                ui.add_space(6.0);
+                ui.horizontal(|ui| {
+                    let label = ui.label("printed name");
+                    ui.text_edit_singleline(&mut form.signer).labelled_by(label.id);
+                });
+                ui.horizontal(|ui| {
+                    ui.label("meaning");
+                    ui.radio_value(&mut form.meaning, Meaning::Review, "review");
+                    ui.radio_value(&mut form.meaning, Meaning::Approval, "approval");
+                    ui.radio_value(&mut form.meaning, Meaning::Authorship, "authorship");
+                });
+                match &key {
+                    Some(k) => {
+                        ui.label(format!("signing key: {k}"));
+                        if ui.small_button("Use another key…").clicked() {
+                            action = Some("choose");
+                        }
+                    }
+                    None => {
+                        ui.label("No signing key yet. Create one (stored in a folder you choose; lotshift remembers only where it is), or use an existing one.");
+                        ui.horizontal(|ui| {
+                            if ui.button("Create a key in a folder…").clicked() {
+                                action = Some("create");
+                            }
+                            if ui.button("Use an existing key…").clicked() {
+                                action = Some("choose");
+                            }
+                        });
+                    }
+                }
+                if let Some(p) = &form.problem {
+                    ui.label(RichText::new(p).color(ui.visuals().error_fg_color));
+                }
+                ui.add_space(6.0);
+                ui.horizontal(|ui| {
+                    if ui.add_enabled(key.is_some(), egui::Button::new("Sign and save…")).clicked() {
+                        action = Some("sign");
+                    }
+                    if ui.button("Cancel").clicked() {
+                        action = Some("cancel");
+                    }
+                });
+                ui.label(RichText::new(CAUTION).italics().small());
+            });
+        form.problem = if action.is_some() { None } else { form.problem };
+        self.signing = Some(form);
+        match action {
+            Some("create") => self.worker.choose(Purpose::KeyFolder),
+            Some("choose") => self.worker.choose(Purpose::SigningKey),
+            Some("sign") => self.sign_and_export(),
+            Some("cancel") => self.signing = None,
+            _ => {}
+        }
+        if !open {
+            self.signing = None;
+        }
+    }
+
+    /// Opens the signing form.
+    pub fn open_signing(&mut self) {
+        if self.shown.is_none() {
+            return;
+        }
+        let signer = self
+            .saved
+            .signing_key
+            .as_deref()
+            .and_then(|k| sign::signer_beside(std::path::Path::new(k)))
+            .unwrap_or_else(|| self.saved.signer_name.clone());
+        self.signing = Some(SignForm {
+            signer,
+            meaning: Meaning::Review,
+            problem: None,
+        });
     }
 
     fn set_combined(&mut self, table: Lot) {
@@ -437,6 +703,7 @@ impl LotshiftApp {
                 egui::ScrollArea::vertical().show(ui, |ui| self.side_ui(ui));
             });
         egui::CentralPanel::default().show(ui, |ui| self.central_ui(ui));
+        self.signing_ui(&ctx);
         if self.worker.busy() {
             ctx.request_repaint_after(std::time::Duration::from_millis(50));
         }
@@ -476,6 +743,20 @@ impl LotshiftApp {
                 .clicked()
             {
                 self.swap();
+            }
+            if ui
+                .add_enabled(self.shown.is_some(), egui::Button::new("Sign and export…"))
+                .on_hover_text("Sign the comparison with your key and save the signed summary")
+                .clicked()
+            {
+                self.open_signing();
+            }
+            if ui
+                .button("Check a signed summary…")
+                .on_hover_text("Open a signed summary and check its signature (and, with its lots loaded, its numbers)")
+                .clicked()
+            {
+                self.worker.choose(Purpose::Summary);
             }
             if ui
                 .add_enabled(self.shown.is_some(), egui::Button::new("Export record…"))

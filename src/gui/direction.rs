@@ -84,15 +84,13 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         ));
     }
     ui.label(line);
-    let Some(h) = &s.scores else {
+    let Some(h) = &c.discriminant.score_histogram else {
         ui.weak("No unit scores to draw.");
         return;
     };
     let chart = |g: usize, color: Color32, name: &str| {
-        let bars = h.density[g]
-            .iter()
-            .enumerate()
-            .map(|(b, &v)| Bar::new(h.start + (b as f64 + 0.5) * h.width, v).width(h.width))
+        let bars = (0..h.counts[g].len())
+            .map(|b| Bar::new(h.start + (b as f64 + 0.5) * h.width, h.density(g, b)).width(h.width))
             .collect();
         BarChart::new(name.to_string(), bars).color(color)
     };

@@ -14,8 +14,6 @@ use crate::report::Record;
 pub const MAX_POINTS: usize = 4000;
 /// Units drawn per lot in each small-multiples cell.
 pub const SMALL_POINTS: usize = 300;
-/// Most bins of the score histograms (Rice's rule, 2·n^(1/3), chooses fewer for small lots).
-pub const MAX_SCORE_BINS: usize = 60;
 
 /// One pair's plot data.
 pub struct PairView {
@@ -23,16 +21,6 @@ pub struct PairView {
     pub geometry: PairGeometry,
     /// Sampled units of each lot, as plot points.
     pub points: [Vec<PlotPoint>; 2],
-}
-
-/// Score histogram of both lots on common bins, as densities.
-pub struct ScoreHistogram {
-    /// Left edge of the first bin.
-    pub start: f64,
-    /// Bin width.
-    pub width: f64,
-    /// Density of each bin, per lot.
-    pub density: [Vec<f64>; 2],
 }
 
 /// Everything the views show for one result.
@@ -47,8 +35,6 @@ pub struct Shown {
     pub record: Record,
     /// Indices (into the prepared lot) of the units drawn, per lot.
     pub sample: [Vec<usize>; 2],
-    /// Score histograms.
-    pub scores: Option<ScoreHistogram>,
     /// Hover text ("lot: row 17, serial ...") of each drawn unit, per lot.
     pub unit_text: Arc<[Vec<String>; 2]>,
     pairs: HashMap<(usize, usize, u64), Arc<PairView>>,
@@ -76,37 +62,6 @@ pub fn stable_sample(n: usize, max: usize) -> Vec<usize> {
     out
 }
 
-fn histogram(scores: &[Vec<f64>; 2]) -> Option<ScoreHistogram> {
-    let all = scores.iter().flatten().copied();
-    let (lo, hi) = all.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
-        (a.min(v), b.max(v))
-    });
-    if !(lo.is_finite() && hi.is_finite()) || hi <= lo {
-        return None;
-    }
-    let n = scores.iter().map(Vec::len).sum::<usize>() as f64;
-    let bins = ((2.0 * n.cbrt()).ceil() as usize).clamp(8, MAX_SCORE_BINS);
-    let width = (hi - lo) / bins as f64;
-    let mut density = [vec![0.0; bins], vec![0.0; bins]];
-    for (g, s) in scores.iter().enumerate() {
-        for &v in s {
-            let b = (((v - lo) / width) as usize).min(bins - 1);
-            density[g][b] += 1.0;
-        }
-        let total = s.len() as f64 * width;
-        if total > 0.0 {
-            for d in &mut density[g] {
-                *d /= total;
-            }
-        }
-    }
-    Some(ScoreHistogram {
-        start: lo,
-        width,
-        density,
-    })
-}
-
 impl Shown {
     /// Builds the plot caches of a result.
     pub fn new(
@@ -119,14 +74,12 @@ impl Shown {
             stable_sample(prepared.lots[0].data.nrows(), MAX_POINTS),
             stable_sample(prepared.lots[1].data.nrows(), MAX_POINTS),
         ];
-        let scores = comparison.discriminant.scores.as_ref().and_then(histogram);
         let mut shown = Shown {
             comparison,
             prepared,
             lots,
             record,
             sample,
-            scores,
             unit_text: Arc::new([Vec::new(), Vec::new()]),
             pairs: HashMap::new(),
         };

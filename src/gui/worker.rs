@@ -27,6 +27,17 @@ pub enum Slot {
     Combined,
 }
 
+/// What a non-lot file dialog is for.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Purpose {
+    /// Choose an existing private signing key.
+    SigningKey,
+    /// Choose a folder to create a signing key in.
+    KeyFolder,
+    /// Choose a signed summary to check.
+    Summary,
+}
+
 /// What a file to load is.
 #[derive(Debug, Clone)]
 pub enum Source {
@@ -54,6 +65,13 @@ pub enum Outcome {
     },
     /// The record was written (or not).
     Exported(Result<PathBuf, String>),
+    /// A dialog for something other than lots closed.
+    Chosen {
+        /// What the dialog was for.
+        purpose: Purpose,
+        /// The chosen path (none when cancelled).
+        path: Option<PathBuf>,
+    },
     /// The file dialog closed.
     Picked {
         /// Slot the dialog was for.
@@ -185,6 +203,28 @@ impl Worker {
         });
     }
 
+    /// Opens a dialog for a key, a key folder or a summary, in the background.
+    pub fn choose(&mut self, purpose: Purpose) {
+        let tx = self.tx.clone();
+        let ctx = self.ctx.clone();
+        std::thread::spawn(move || {
+            let path = match purpose {
+                Purpose::SigningKey => rfd::FileDialog::new()
+                    .set_title("Choose your private signing key")
+                    .add_filter("PEM key", &["pem"])
+                    .pick_file(),
+                Purpose::KeyFolder => rfd::FileDialog::new()
+                    .set_title("Folder for the new signing key")
+                    .pick_folder(),
+                Purpose::Summary => rfd::FileDialog::new()
+                    .set_title("Open a signed summary")
+                    .add_filter("JSON", &["json"])
+                    .pick_file(),
+            };
+            Self::send(&tx, &ctx, Outcome::Chosen { purpose, path });
+        });
+    }
+
     /// Asks where to save `contents` (a native dialog, in the background) and writes it there
     /// atomically.
     pub fn export(&mut self, suggested_name: String, contents: String) {
@@ -276,7 +316,7 @@ impl Worker {
                     self.active = None;
                 }
                 Outcome::Loaded { .. } => self.loads_pending = self.loads_pending.saturating_sub(1),
-                Outcome::Picked { .. } | Outcome::Exported(_) => {}
+                Outcome::Picked { .. } | Outcome::Exported(_) | Outcome::Chosen { .. } => {}
             }
             out.push(o);
         }

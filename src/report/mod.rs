@@ -1,8 +1,12 @@
 //! The comparison record (JSON, versioned), its readable text form, and safe writing.
 
+mod canonical;
+pub mod html;
 mod record;
+pub mod sign;
 mod text;
 
+pub use canonical::{CanonicalError, canonical_bytes};
 pub use record::{CAUTION, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, Software};
 pub use text::render_text;
 

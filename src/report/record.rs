@@ -41,6 +41,8 @@ pub struct LotRecord {
     pub sheet: Option<String>,
     /// Lot column and value for a split file.
     pub split: Option<(String, String)>,
+    /// Columns read as labels on request.
+    pub forced_labels: Vec<String>,
     /// Units compared.
     pub n: usize,
     /// Units read.
@@ -86,6 +88,10 @@ pub struct Record {
     pub schema: String,
     /// Program and version.
     pub software: Software,
+    /// When the comparison was made (RFC 3339, UTC), set by the program that ran it.
+    pub analysed_at: Option<String>,
+    /// Everything the comparison was computed with (alpha, checks, permutations, seed).
+    pub settings: crate::analysis::Settings,
     /// Significance level.
     pub alpha: f64,
     /// Compared characteristics.
@@ -149,6 +155,7 @@ impl Record {
                     size_bytes: src.map(|s| s.size_bytes),
                     sheet: src.and_then(|s| s.sheet.clone()),
                     split: src.and_then(|s| s.split.clone()),
+                    forced_labels: src.map(|s| s.forced_labels.clone()).unwrap_or_default(),
                     n: lot.n,
                     n_read: prep.map_or(lot.n, |p| p.n_read),
                     n_excluded: prep.map_or(0, |p| p.n_excluded),
@@ -197,6 +204,8 @@ impl Record {
                 name: env!("CARGO_PKG_NAME").into(),
                 version: env!("CARGO_PKG_VERSION").into(),
             },
+            analysed_at: None,
+            settings: c.settings.clone(),
             alpha: c.alpha,
             characteristics: c.characteristics.clone(),
             units: c.units.clone(),

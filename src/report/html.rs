@@ -1,0 +1,588 @@
+//! A self-contained HTML rendering of a comparison record or signed summary: the verdict, the
+//! tables, inline SVG charts (intervals, discriminant scores, the most separating pair's
+//! ellipses), the signature manifestation and the caution; print styles for A4 and Letter.
+//!
+//! It reads the record as JSON, so it renders any record of this schema, signed or not.
+
+use std::fmt::Write as _;
+
+use nalgebra::Matrix2;
+use serde_json::Value;
+
+use super::CAUTION;
+use crate::analysis::{format_confidence, format_p, format_sig};
+use crate::stats::ellipse;
+
+fn esc(s: &str) -> String {
+    s.replace('&', "&amp;")
+        .replace('<', "&lt;")
+        .replace('>', "&gt;")
+        .replace('"', "&quot;")
+}
+
+fn num(v: &Value) -> f64 {
+    v.as_f64().unwrap_or(f64::NAN)
+}
+
+fn text(v: &Value) -> String {
+    v.as_str().map(str::to_string).unwrap_or_default()
+}
+
+fn nums(v: &Value) -> Vec<f64> {
+    v.as_array()
+        .map(|a| a.iter().map(num).collect())
+        .unwrap_or_default()
+}
+
+fn matrix2(v: &Value, i: usize, j: usize) -> Matrix2<f64> {
+    let g = |a: usize, b: usize| num(&v[a][b]);
+    Matrix2::new(g(i, i), g(i, j), g(j, i), g(j, j))
+}
+
+const STYLE: &str = r#"
+body { font-family: "DejaVu Sans", Arial, sans-serif; color: #1b1b1b; margin: 24px auto; max-width: 1000px; line-height: 1.4; }
+h1 { font-size: 22px; margin-bottom: 4px; } h2 { font-size: 16px; margin: 22px 0 6px; border-bottom: 1px solid #999; }
+.verdict { font-size: 15px; padding: 10px 12px; border-left: 5px solid #555; background: #f3f3f3; }
+.differ { border-left-color: #b5561a; } .same { border-left-color: #2e6fc4; }
+table { border-collapse: collapse; font-size: 12px; margin: 6px 0; }
+th, td { border: 1px solid #bbb; padding: 3px 6px; text-align: right; } th { background: #eee; }
+td.name, th.name { text-align: left; }
+.caution { font-style: italic; margin-top: 18px; }
+.signature { border: 2px solid #333; padding: 10px 14px; margin-top: 18px; }
+.muted { color: #555; font-size: 12px; }
+svg { display: block; margin: 8px 0; }
+.chart { break-inside: avoid; page-break-inside: avoid; }
+@page { margin: 14mm; }
+@media print {
+  body { margin: 0; max-width: none; font-size: 10pt; }
+  h2 { break-after: avoid; page-break-after: avoid; }
+  table, .signature, .verdict { break-inside: avoid; page-break-inside: avoid; }
+  svg { max-width: 100%; height: auto; }
+}
+"#;
+
+/// Renders a record (`signature` absent) or a signed summary as one HTML page.
+pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
+    let r = record;
+    let mut h = String::new();
+    let lots = r["lots"].as_array().cloned().unwrap_or_default();
+    let lot_name = |i: usize| lots.get(i).map(|l| text(&l["name"])).unwrap_or_default();
+    let _ = write!(
+        h,
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>lotshift comparison: {} vs {}</title><style>{STYLE}</style></head><body>\n",
+        esc(&lot_name(0)),
+        esc(&lot_name(1))
+    );
+    let _ = writeln!(
+        h,
+        "<h1>Lot comparison: {} (reference) vs {} (candidate)</h1><div class=\"muted\">{} {}; analysed {}; difference = reference minus candidate</div>",
+        esc(&lot_name(0)),
+        esc(&lot_name(1)),
+        esc(&text(&r["software"]["name"])),
+        esc(&text(&r["software"]["version"])),
+        esc(r["analysed_at"].as_str().unwrap_or("(time not recorded)"))
+    );
+    let differ = r["hotelling"]["differ"].as_bool().unwrap_or(false);
+    let _ = writeln!(
+        h,
+        "<h2>Verdict</h2><div class=\"verdict {}\" id=\"verdict\">{}</div>",
+        if differ { "differ" } else { "same" },
+        esc(&text(&r["verdict"]))
+    );
+    for w in r["warnings"].as_array().into_iter().flatten() {
+        let _ = writeln!(h, "<p><b>Warning:</b> {}</p>", esc(&text(w)));
+    }
+    lots_section(&mut h, r);
+    test_section(&mut h, r);
+    characteristics_section(&mut h, r);
+    let _ = writeln!(
+        h,
+        "<h2>Intervals for the mean differences ({}% confidence)</h2>",
+        format_confidence(num(&r["alpha"]))
+    );
+    intervals_table(&mut h, r);
+    h.push_str(&interval_chart(r));
+    let _ = writeln!(h, "<h2>What drives the shift</h2>");
+    ranking_table(&mut h, r);
+    h.push_str(&score_chart(r));
+    h.push_str(&pair_chart(r));
+    checks_section(&mut h, r);
+    let _ = writeln!(h, "<p class=\"caution\">{}</p>", esc(CAUTION));
+    match signature {
+        Some(s) => {
+            let _ = writeln!(
+                h,
+                "<div class=\"signature\" id=\"signature\"><b>Electronically signed</b><br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b><br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of the record and this signature manifestation. Check it with <code>lotshift verify SUMMARY.json --lots REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
+                esc(&text(&s["signer"])),
+                esc(&text(&s["signed_at"])),
+                esc(&text(&s["meaning"])),
+                esc(&text(&s["key_fingerprint"])),
+                esc(&text(&s["algorithm"])),
+                esc(&text(&s["canonicalization"]))
+            );
+        }
+        None => {
+            let _ = writeln!(
+                h,
+                "<div class=\"signature\" id=\"signature\">Not signed.</div>"
+            );
+        }
+    }
+    h.push_str("</body></html>\n");
+    h
+}
+
+fn lots_section(h: &mut String, r: &Value) {
+    let _ = writeln!(
+        h,
+        "<h2>Lots</h2><table><tr><th class=\"name\">lot</th><th class=\"name\">file</th><th class=\"name\">SHA-256</th><th>units read</th><th>left out (missing cells)</th><th>compared</th></tr>"
+    );
+    for l in r["lots"].as_array().into_iter().flatten() {
+        let _ = writeln!(
+            h,
+            "<tr><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\"><code>{}</code></td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            esc(&text(&l["name"])),
+            esc(&text(&l["file"])),
+            esc(&text(&l["sha256"])),
+            l["n_read"],
+            l["n_excluded"],
+            l["n"]
+        );
+    }
+    h.push_str("</table>\n");
+    for u in r["unmatched"].as_array().into_iter().flatten() {
+        let _ = writeln!(
+            h,
+            "<div class=\"muted\">Not compared: \"{}\" ({})</div>",
+            esc(&text(&u["column"])),
+            esc(&text(&u["why"]))
+        );
+    }
+}
+
+fn test_section(h: &mut String, r: &Value) {
+    let t = &r["hotelling"];
+    let _ = writeln!(
+        h,
+        "<h2>Hotelling's two-sample T² test (alpha {})</h2><table><tr><th class=\"name\">T²</th><td>{}</td></tr><tr><th class=\"name\">F</th><td>{} on ({}, {}) df</td></tr><tr><th class=\"name\">p-value</th><td>{}</td></tr><tr><th class=\"name\">critical T²</th><td>{} (critical F {})</td></tr><tr><th class=\"name\">Mahalanobis D²</th><td>{}</td></tr></table>",
+        num(&r["alpha"]),
+        format_sig(num(&t["t2"]), 6),
+        format_sig(num(&t["f"]), 6),
+        num(&t["df1"]),
+        num(&t["df2"]),
+        format_p(num(&t["p_value"])),
+        format_sig(num(&t["critical_t2"]), 6),
+        format_sig(num(&t["critical_f"]), 6),
+        format_sig(num(&t["mahalanobis_d2"]), 6)
+    );
+}
+
+fn characteristics_section(h: &mut String, r: &Value) {
+    h.push_str("<h2>Per characteristic</h2><table><tr><th class=\"name\">characteristic</th><th>mean ref</th><th>SD ref</th><th>mean cand</th><th>SD cand</th><th>difference</th><th>std. difference</th><th>p (pooled t)</th><th>p (Welch)</th></tr>\n");
+    for c in r["per_characteristic"].as_array().into_iter().flatten() {
+        let unit = c["unit"]
+            .as_str()
+            .map(|u| format!(" ({})", esc(u)))
+            .unwrap_or_default();
+        let _ = writeln!(
+            h,
+            "<tr><td class=\"name\">{}{unit}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            esc(&text(&c["characteristic"])),
+            format_sig(num(&c["lots"][0]["mean"]), 7),
+            format_sig(num(&c["lots"][0]["sd"]), 4),
+            format_sig(num(&c["lots"][1]["mean"]), 7),
+            format_sig(num(&c["lots"][1]["sd"]), 4),
+            format_sig(num(&c["difference"]), 4),
+            format_sig(num(&c["standardized_difference"]), 3),
+            format_p(num(&c["pooled_p"])),
+            format_p(num(&c["welch_p"]))
+        );
+    }
+    h.push_str("</table>\n");
+}
+
+fn intervals_table(h: &mut String, r: &Value) {
+    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>difference</th><th>simultaneous (T²)</th><th>Bonferroni</th><th>one at a time</th></tr>\n");
+    for iv in r["intervals"].as_array().into_iter().flatten() {
+        let cell = |key: &str, k: usize| {
+            let x = nums(&iv[key]);
+            let flag = iv["excludes_zero"][k].as_bool().unwrap_or(false);
+            format!(
+                "[{}, {}]{}",
+                format_sig(x.first().copied().unwrap_or(f64::NAN), 4),
+                format_sig(x.get(1).copied().unwrap_or(f64::NAN), 4),
+                if flag { " <b>excludes 0</b>" } else { "" }
+            )
+        };
+        let _ = writeln!(
+            h,
+            "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            esc(&text(&iv["characteristic"])),
+            format_sig(num(&iv["difference"]), 4),
+            cell("simultaneous", 0),
+            cell("bonferroni", 1),
+            cell("one_at_a_time", 2)
+        );
+    }
+    h.push_str("</table>\n");
+}
+
+fn ranking_table(h: &mut String, r: &Value) {
+    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>T² lost without it</th><th>standardized coefficient</th></tr>\n");
+    for c in r["ranking"].as_array().into_iter().flatten() {
+        let _ = writeln!(
+            h,
+            "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td></tr>",
+            esc(&text(&c["characteristic"])),
+            format_sig(num(&c["t2_drop"]), 4),
+            format_sig(num(&c["standardized_coefficient"]), 3)
+        );
+    }
+    h.push_str("</table>\n");
+}
+
+/// Maps `[lo, hi]` onto `[a, b]` pixels.
+fn scale(lo: f64, hi: f64, a: f64, b: f64) -> impl Fn(f64) -> f64 {
+    move |v| a + (v - lo) / (hi - lo) * (b - a)
+}
+
+fn interval_chart(r: &Value) -> String {
+    let ivs = r["intervals"].as_array().cloned().unwrap_or_default();
+    let pcs = r["per_characteristic"]
+        .as_array()
+        .cloned()
+        .unwrap_or_default();
+    if ivs.is_empty() {
+        return String::new();
+    }
+    let sd: Vec<f64> = pcs.iter().map(|c| num(&c["pooled_sd"])).collect();
+    let mut lo: f64 = 0.0;
+    let mut hi: f64 = 0.0;
+    for (k, iv) in ivs.iter().enumerate() {
+        for v in nums(&iv["simultaneous"]) {
+            lo = lo.min(v / sd[k]);
+            hi = hi.max(v / sd[k]);
+        }
+    }
+    let pad = 0.05 * (hi - lo).max(1e-9);
+    let (lo, hi) = (lo - pad, hi + pad);
+    let (w, left, right) = (900.0, 170.0, 880.0);
+    let row = 34.0;
+    let height = 40.0 + row * ivs.len() as f64;
+    let x = scale(lo, hi, left, right);
+    let mut s = format!(
+        "<div class=\"chart\"><svg id=\"interval-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{height}\" viewBox=\"0 0 {w} {height}\" font-size=\"12\">"
+    );
+    let _ = write!(
+        s,
+        "<line x1=\"{0}\" x2=\"{0}\" y1=\"8\" y2=\"{1}\" stroke=\"#888\" stroke-dasharray=\"4 3\"/>",
+        x(0.0),
+        height - 26.0
+    );
+    for (k, iv) in ivs.iter().enumerate() {
+        let y = 22.0 + row * k as f64;
+        let _ = write!(
+            s,
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"end\">{}</text>",
+            left - 8.0,
+            y + 4.0,
+            esc(&text(&iv["characteristic"]))
+        );
+        for (key, dy, width, color) in [
+            ("simultaneous", -7.0, 6.0, "#9a9acd"),
+            ("bonferroni", 0.0, 3.5, "#505aaa"),
+            ("one_at_a_time", 7.0, 1.8, "#141e5a"),
+        ] {
+            let v = nums(&iv[key]);
+            if v.len() == 2 {
+                let _ = write!(
+                    s,
+                    "<line x1=\"{:.1}\" x2=\"{:.1}\" y1=\"{2:.1}\" y2=\"{2:.1}\" stroke=\"{color}\" stroke-width=\"{width}\"/>",
+                    x(v[0] / sd[k]),
+                    x(v[1] / sd[k]),
+                    y + dy
+                );
+            }
+        }
+        let _ = write!(
+            s,
+            "<circle cx=\"{:.1}\" cy=\"{y:.1}\" r=\"4\" fill=\"#c83c3c\"/>",
+            x(num(&iv["difference"]) / sd[k])
+        );
+    }
+    let _ = write!(
+        s,
+        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">difference / pooled SD (thick: simultaneous, middle: Bonferroni, thin: one at a time; dashed: zero)</text><text x=\"{left}\" y=\"{}\" text-anchor=\"middle\">{}</text><text x=\"{right}\" y=\"{}\" text-anchor=\"middle\">{}</text></svg></div>",
+        (left + right) / 2.0,
+        height - 4.0,
+        height - 18.0,
+        format_sig(lo, 3),
+        height - 18.0,
+        format_sig(hi, 3)
+    );
+    s
+}
+
+fn score_chart(r: &Value) -> String {
+    let hgram = &r["discriminant"]["score_histogram"];
+    let counts: Vec<Vec<f64>> = (0..2).map(|g| nums(&hgram["counts"][g])).collect();
+    if counts[0].is_empty() {
+        return String::new();
+    }
+    let (start, width) = (num(&hgram["start"]), num(&hgram["width"]));
+    let bins = counts[0].len();
+    let dens: Vec<Vec<f64>> = counts
+        .iter()
+        .map(|c| {
+            let n: f64 = c.iter().sum();
+            c.iter().map(|v| v / (n * width)).collect()
+        })
+        .collect();
+    let top = dens.iter().flatten().fold(0.0_f64, |a, &b| a.max(b));
+    let (w, h, left, right, bottom) = (900.0, 240.0, 40.0, 880.0, 205.0);
+    let x = scale(start, start + width * bins as f64, left, right);
+    let y = scale(0.0, top * 1.05, bottom, 12.0);
+    let mut s = format!(
+        "<div class=\"chart\"><svg id=\"score-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-size=\"12\">"
+    );
+    for (g, color) in [(0, "#2e70c4"), (1, "#d66e20")] {
+        for (b, &d) in dens[g].iter().enumerate() {
+            let x0 = x(start + width * b as f64);
+            let x1 = x(start + width * (b + 1) as f64);
+            let y0 = y(d);
+            let _ = write!(
+                s,
+                "<rect x=\"{x0:.1}\" y=\"{y0:.1}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"{color}\" fill-opacity=\"0.45\" stroke=\"{color}\"/>",
+                (x1 - x0).max(0.5),
+                (bottom - y0).max(0.0)
+            );
+        }
+    }
+    let _ = write!(
+        s,
+        "<line x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"8\" y2=\"{bottom}\" stroke=\"#333\" stroke-dasharray=\"4 3\"/><line x1=\"{left}\" x2=\"{right}\" y1=\"{bottom}\" y2=\"{bottom}\" stroke=\"#333\"/><text x=\"{1}\" y=\"{2}\" text-anchor=\"middle\">discriminant score (blue: reference, orange: candidate; dashed: allocation cut-off)</text></svg></div>",
+        x(0.0),
+        (left + right) / 2.0,
+        h - 12.0
+    );
+    s
+}
+
+fn pair_chart(r: &Value) -> String {
+    let names: Vec<String> = r["characteristics"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .map(text)
+        .collect();
+    let ranking: Vec<String> = r["ranking"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .map(|c| text(&c["characteristic"]))
+        .collect();
+    if names.len() < 2 || ranking.len() < 2 {
+        return String::new();
+    }
+    let (Some(i), Some(j)) = (
+        names.iter().position(|n| *n == ranking[0]),
+        names.iter().position(|n| *n == ranking[1]),
+    ) else {
+        return String::new();
+    };
+    let alpha = num(&r["alpha"]);
+    let lots = &r["lots"];
+    let mut shapes: Vec<(usize, Vec<[f64; 2]>, bool)> = Vec::new();
+    let mut means = Vec::new();
+    for g in 0..2 {
+        let l = &lots[g];
+        let n = l["n"].as_u64().unwrap_or(0) as usize;
+        let mean = nums(&l["mean"]);
+        if mean.len() <= i.max(j) {
+            return String::new();
+        }
+        let c = [mean[i], mean[j]];
+        means.push(c);
+        let cov = matrix2(&l["covariance"], i, j);
+        if let Some(o) = ellipse::outline(c, cov, ellipse::mean_region_r2(n, alpha), 90) {
+            shapes.push((g, o, false));
+        }
+        if let Some(o) = ellipse::outline(c, cov, ellipse::data_r2(0.95), 90) {
+            shapes.push((g, o, true));
+        }
+    }
+    let pts = shapes.iter().flat_map(|s| s.1.iter());
+    let (mut x0, mut x1, mut y0, mut y1) = (
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+        f64::INFINITY,
+        f64::NEG_INFINITY,
+    );
+    for p in pts {
+        x0 = x0.min(p[0]);
+        x1 = x1.max(p[0]);
+        y0 = y0.min(p[1]);
+        y1 = y1.max(p[1]);
+    }
+    if !(x1 > x0 && y1 > y0) {
+        return String::new();
+    }
+    let (w, h) = (560.0, 460.0);
+    let x = scale(x0, x1, 70.0, w - 20.0);
+    let y = scale(y0, y1, h - 60.0, 15.0);
+    let mut s = format!(
+        "<div class=\"chart\"><h2>The pair that separates the lots most: {} and {}</h2><svg id=\"pair-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-size=\"12\">",
+        esc(&names[i]),
+        esc(&names[j])
+    );
+    for (g, o, dashed) in &shapes {
+        let color = if *g == 0 { "#2e70c4" } else { "#d66e20" };
+        let d: Vec<String> = o
+            .iter()
+            .map(|p| format!("{:.1},{:.1}", x(p[0]), y(p[1])))
+            .collect();
+        let _ = write!(
+            s,
+            "<polyline points=\"{}\" fill=\"none\" stroke=\"{color}\" stroke-width=\"{}\"{}/>",
+            d.join(" "),
+            if *dashed { 1.2 } else { 2.2 },
+            if *dashed {
+                " stroke-dasharray=\"5 4\""
+            } else {
+                ""
+            }
+        );
+    }
+    for (g, m) in means.iter().enumerate() {
+        let color = if g == 0 { "#2e70c4" } else { "#d66e20" };
+        let _ = write!(
+            s,
+            "<circle cx=\"{:.1}\" cy=\"{:.1}\" r=\"4\" fill=\"{color}\"/>",
+            x(m[0]),
+            y(m[1])
+        );
+    }
+    let _ = write!(
+        s,
+        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">{} ({} to {})</text><text x=\"14\" y=\"{}\" transform=\"rotate(-90 14 {})\" text-anchor=\"middle\">{} ({} to {})</text></svg><div class=\"muted\">Solid: each lot's {}% confidence ellipse for its mean (this pair alone). Dashed: normal-theory data ellipses holding 95% of a lot's units. Blue: reference; orange: candidate.</div></div>",
+        w / 2.0,
+        h - 30.0,
+        esc(&names[i]),
+        format_sig(x0, 5),
+        format_sig(x1, 5),
+        h / 2.0,
+        h / 2.0,
+        esc(&names[j]),
+        format_sig(y0, 5),
+        format_sig(y1, 5),
+        format_confidence(alpha)
+    );
+    s
+}
+
+fn checks_section(h: &mut String, r: &Value) {
+    let f = &r["favoured"];
+    if r["box_m"].is_null()
+        && r["mardia"].as_array().is_none_or(Vec::is_empty)
+        && r["permutation"].is_null()
+    {
+        return;
+    }
+    let _ = writeln!(
+        h,
+        "<h2>Assumption checks</h2><p><b>Favoured: {}</b> (p = {}) — {}</p><table>",
+        esc(&text(&f["test"])),
+        format_p(num(&f["p_value"])),
+        esc(&text(&f["why"]))
+    );
+    let b = &r["box_m"];
+    if !b.is_null() {
+        let _ = writeln!(
+            h,
+            "<tr><th class=\"name\">Box's M</th><td class=\"name\">M = {}; chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {}</td></tr>",
+            format_sig(num(&b["m"]), 5),
+            format_sig(num(&b["chi2"]), 5),
+            num(&b["df"]),
+            format_p(num(&b["p_value"])),
+            format_sig(num(&b["f"]), 5),
+            num(&b["f_df1"]),
+            format_sig(num(&b["f_df2"]), 5),
+            format_p(num(&b["f_p_value"]))
+        );
+    }
+    let u = &r["unequal_covariance"];
+    if !u.is_null() {
+        let _ = writeln!(
+            h,
+            "<tr><th class=\"name\">Unequal covariances (Krishnamoorthy–Yu)</th><td class=\"name\">F = {} on ({}, {}) df, p = {}</td></tr>",
+            format_sig(num(&u["f"]), 5),
+            num(&u["df1"]),
+            format_sig(num(&u["df2"]), 5),
+            format_p(num(&u["p_value"]))
+        );
+    }
+    let p = &r["permutation"];
+    if !p.is_null() {
+        let _ = writeln!(
+            h,
+            "<tr><th class=\"name\">Permutation p-value</th><td class=\"name\">{} ({} relabellings, seed {})</td></tr>",
+            format_p(num(&p["p_value"])),
+            p["permutations"],
+            p["seed"]
+        );
+    }
+    for m in r["mardia"].as_array().into_iter().flatten() {
+        let _ = writeln!(
+            h,
+            "<tr><th class=\"name\">Mardia, {}</th><td class=\"name\">skewness p = {}, kurtosis p = {}</td></tr>",
+            esc(&text(&m["lot"])),
+            format_p(num(&m["skewness_p"])),
+            format_p(num(&m["kurtosis_p"]))
+        );
+    }
+    if let Some(units) = r["outliers"]["units"].as_array() {
+        let _ = writeln!(
+            h,
+            "<tr><th class=\"name\">Outliers</th><td class=\"name\">{} unit(s) flagged{}</td></tr>",
+            units.len(),
+            if units.is_empty() {
+                String::new()
+            } else {
+                let list: Vec<String> = units
+                    .iter()
+                    .take(20)
+                    .map(|u| {
+                        let labels: Vec<String> = u["labels"]
+                            .as_array()
+                            .into_iter()
+                            .flatten()
+                            .map(|l| format!("{} {}", text(&l[0]), text(&l[1])))
+                            .collect();
+                        format!(
+                            "lot {}, row {}: {}",
+                            num(&u["lot"]) + 1.0,
+                            u["row"],
+                            labels.join(", ")
+                        )
+                    })
+                    .collect();
+                format!(": {}", esc(&list.join("; ")))
+            }
+        );
+    }
+    h.push_str("</table>\n");
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn names_are_escaped() {
+        let r = serde_json::json!({"lots": [{"name": "<script>"}, {"name": "b&c"}], "verdict": "x < y"});
+        let html = render_html(&r, None);
+        assert!(!html.contains("<script>"));
+        assert!(html.contains("&lt;script&gt;"));
+        assert!(html.contains("x &lt; y"));
+    }
+}
