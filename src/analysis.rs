@@ -452,6 +452,12 @@ pub fn compare(
             return Err(EngineError::EmptyLot(lot.name.to_string()));
         }
     }
+    // Checked before any cross-product: with thousands of characteristics and a few units the
+    // p × p matrices alone would be large.
+    let (n1, n2) = (lots[0].data.nrows(), lots[1].data.nrows());
+    if n1 + n2 < p + 2 {
+        return Err(EngineError::TooFewUnits { n1, n2, p });
+    }
     progress.report("moments", 0.0);
     // Common origin: the first unit of the first lot.
     let origin: DVector<f64> = lots[0].data.row(0).transpose();
@@ -527,26 +533,46 @@ pub fn compare(
         }
     }
     drop((c1, c2));
-    if settings.permutations > 0 {
-        progress.report("permutations", 0.6);
-        let keep_going = |f: f64| {
-            progress.report("permutations", 0.6 + 0.4 * f);
-            !progress.cancelled()
-        };
-        out.permutation = permutation_test(
-            lots[0].data,
-            lots[1].data,
-            settings.permutations,
-            settings.seed,
-            &keep_going,
-        );
-        if progress.cancelled() {
-            return Err(EngineError::Cancelled);
-        }
-    }
+    add_permutation(&mut out, [lots[0].data, lots[1].data], settings, progress)?;
     conclude(&mut out);
     progress.report("done", 1.0);
     Ok(out)
+}
+
+/// Adds the permutation p-value (when `settings.permutations > 0`) to a comparison of the
+/// same unit data, and updates the favoured test and the verdict. Split out so the window can
+/// show a result first and the permutation p-value when it is ready.
+///
+/// # Errors
+/// Cancellation.
+pub fn add_permutation(
+    out: &mut Comparison,
+    data: [&DMatrix<f64>; 2],
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<(), EngineError> {
+    if settings.permutations == 0 {
+        return Ok(());
+    }
+    progress.report("permutations", 0.6);
+    let keep_going = |f: f64| {
+        progress.report("permutations", 0.6 + 0.4 * f);
+        !progress.cancelled()
+    };
+    out.permutation = permutation_test(
+        data[0],
+        data[1],
+        settings.permutations,
+        settings.seed,
+        &keep_going,
+    );
+    if progress.cancelled() {
+        return Err(EngineError::Cancelled);
+    }
+    out.settings.permutations = settings.permutations;
+    out.settings.seed = settings.seed;
+    conclude(out);
+    Ok(())
 }
 
 /// Mardia's tests, Shapiro–Wilk and the outlier screen: the checks that need unit data.

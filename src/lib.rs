@@ -7,6 +7,7 @@
 pub mod analysis;
 pub mod cli;
 pub mod data;
+#[cfg(feature = "gui")]
 pub mod gui;
 pub mod report;
 pub mod stats;

@@ -8,6 +8,15 @@ fn main() -> ExitCode {
     let cli = lotshift::cli::Cli::parse();
     match cli.command {
         Some(command) => lotshift::cli::run(command),
+        #[cfg(feature = "gui")]
         None => lotshift::gui::run(cli.files, cli.screenshot, cli.view),
+        #[cfg(not(feature = "gui"))]
+        None => {
+            let _ = (cli.files, cli.screenshot, cli.view);
+            eprintln!(
+                "lotshift: this build has no window (built without the \"gui\" feature); see lotshift --help"
+            );
+            std::process::ExitCode::from(lotshift::cli::EXIT_BAD_INPUT)
+        }
     }
 }

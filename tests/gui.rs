@@ -159,3 +159,53 @@ fn the_signing_form_offers_to_create_a_key_first() {
     h.run_steps(2);
     assert!(h.state().signing.is_none());
 }
+
+#[test]
+fn a_failed_or_cancelled_run_keeps_the_previous_result() {
+    let mut h = harness();
+    // Untick all but one characteristic, then the last: that run fails (nothing to compare).
+    for name in [
+        "bore diameter (mm)",
+        "outer diameter (mm)",
+        "hub length (mm)",
+        "flange thickness (mm)",
+    ] {
+        h.get_by_label(name).click();
+        h.run_steps(3);
+    }
+    settle(&mut h);
+    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    assert_eq!(
+        h.state().shown.as_ref().unwrap().comparison.characteristics,
+        vec!["mass"]
+    );
+    h.get_by_label("mass (g)").click();
+    h.run_steps(3);
+    settle(&mut h);
+    let state = h.state();
+    assert_eq!(
+        state.shown.as_ref().unwrap().comparison.hotelling.t2,
+        t2,
+        "previous result kept"
+    );
+    assert!(!state.shown_current, "marked as not current");
+    assert!(
+        state
+            .run_error
+            .as_deref()
+            .unwrap_or_default()
+            .contains("no characteristics"),
+        "{:?}",
+        state.run_error
+    );
+    h.get_by_label_contains("results shown are from a previous run");
+    // Tick one back and cancel at once: the old result stays until a run finishes.
+    h.get_by_label("mass (g)").click();
+    h.run_steps(1);
+    h.state_mut().worker.cancel();
+    settle(&mut h);
+    assert_eq!(
+        h.state().shown.as_ref().unwrap().comparison.hotelling.t2,
+        t2
+    );
+}

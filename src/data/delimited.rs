@@ -10,6 +10,8 @@ use super::{
 
 /// Rows used to decide each column's role.
 const CLASSIFY_ROWS: usize = 1000;
+/// Longest header cell accepted, in bytes.
+const MAX_HEADER_CELL: usize = 4096;
 /// Lines used to detect the delimiter.
 const SNIFF_LINES: usize = 50;
 
@@ -98,12 +100,40 @@ pub(super) fn read(
     options: &LoadOptions,
     mut provenance: Provenance,
 ) -> Result<Lot, LoadError> {
-    if bytes.starts_with(&[0xFF, 0xFE]) || bytes.starts_with(&[0xFE, 0xFF]) {
-        return Err(LoadError::new(
-            path,
-            LoadErrorKind::Encoding("the file is UTF-16 text".into()),
-        ));
+    // UTF-16 with a byte-order mark (some spreadsheet "Unicode text" exports): decode it.
+    let utf16 = if bytes.starts_with(&[0xFF, 0xFE]) || bytes.starts_with(&[0xFE, 0xFF]) {
+        let little = bytes[0] == 0xFF;
+        let units: Vec<u16> = bytes[2..]
+            .chunks(2)
+            .map(|c| {
+                let pair = [c[0], c.get(1).copied().unwrap_or(0)];
+                if little {
+                    u16::from_le_bytes(pair)
+                } else {
+                    u16::from_be_bytes(pair)
+                }
+            })
+            .collect();
+        match String::from_utf16(&units) {
+            Ok(text) => Some(text.into_bytes()),
+            Err(_) => {
+                return Err(LoadError::new(
+                    path,
+                    LoadErrorKind::Encoding(
+                        "the file starts like UTF-16 text but is not valid UTF-16".into(),
+                    ),
+                ));
+            }
+        }
+    } else {
+        None
+    };
+    if utf16.is_some() {
+        provenance
+            .notes
+            .push("the file is UTF-16 text; it was decoded".into());
     }
+    let bytes = utf16.as_deref().unwrap_or(bytes);
     let head = &bytes[..bytes.len().min(8192)];
     if head.contains(&0) {
         return Err(LoadError::new(path, LoadErrorKind::Binary));
@@ -114,12 +144,14 @@ pub(super) fn read(
     }
     let latin1 = std::str::from_utf8(body).is_err();
     let sample_end = {
-        let mut end = body.len().min(64 * 1024);
-        // Extend to the end of a line so the sample holds whole records.
-        while end < body.len() && body[end - 1] != b'\n' {
-            end += 1;
-        }
-        end
+        let end = body.len().min(64 * 1024);
+        // Extend to the end of a line so the sample holds whole records (up to 1 MiB: a longer
+        // line is sniffed from its start).
+        let limit = body.len().min(1024 * 1024);
+        body[end..limit]
+            .iter()
+            .position(|&b| b == b'\n')
+            .map_or(limit.max(end), |i| end + i + 1)
     };
     let delim = sniff_delimiter(&body[..sample_end]);
     let decimal_comma = sniff_decimal_comma(&body[..sample_end], delim);
@@ -146,7 +178,14 @@ pub(super) fn read(
     };
     let forced: Vec<String> = options.labels.iter().map(|l| match_key(l)).collect();
     let mut columns: Vec<Builder> = Vec::with_capacity(header.len());
+    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
     for (pos, raw) in header.iter().enumerate() {
+        if raw.len() > MAX_HEADER_CELL {
+            return Err(LoadError {
+                position: Some(pos),
+                ..LoadError::at_row(path, 1, LoadErrorKind::HeaderTooLong { length: raw.len() })
+            });
+        }
         let text = decode(raw, latin1).trim().to_string();
         let (name, unit) = if text.is_empty() {
             (format!("column {}", column_letter(pos)), None)
@@ -154,7 +193,7 @@ pub(super) fn read(
             split_header(&text)
         };
         let key = match_key(&name);
-        if let Some(prev) = columns.iter().find(|c| match_key(&c.name) == key) {
+        if let Some(prev) = seen.get(&key).map(|&i| &columns[i]) {
             return Err(LoadError::at_cell(
                 path,
                 1,
@@ -169,6 +208,7 @@ pub(super) fn read(
                 },
             ));
         }
+        seen.insert(key, columns.len());
         columns.push(Builder {
             header: text,
             name,
@@ -267,7 +307,7 @@ pub(super) fn read(
                                 &col.header,
                                 col.position,
                                 LoadErrorKind::NotFinite {
-                                    text: text.trim().to_string(),
+                                    text: super::error::shorten(text.trim()),
                                 },
                             ));
                         }
@@ -278,7 +318,7 @@ pub(super) fn read(
                                 &col.header,
                                 col.position,
                                 LoadErrorKind::NotNumeric {
-                                    text: text.trim().to_string(),
+                                    text: super::error::shorten(text.trim()),
                                 },
                             ));
                         }

@@ -12,6 +12,11 @@ pub enum LoadErrorKind {
     Empty,
     /// A header row and no data rows.
     HeaderOnly,
+    /// A header cell too long to be a column name (the file is probably not a table).
+    HeaderTooLong {
+        /// Its length in bytes.
+        length: usize,
+    },
     /// A row with fewer fields than the header.
     Ragged {
         /// Fields in the row.
@@ -26,7 +31,7 @@ pub enum LoadErrorKind {
     },
     /// Text in a numeric column.
     NotNumeric {
-        /// The text found.
+        /// The text found (cut to 80 characters).
         text: String,
     },
     /// An infinite or overflowing number.
@@ -127,6 +132,9 @@ impl LoadError {
             LoadErrorKind::Io(e) => format!("cannot read the file: {e}"),
             LoadErrorKind::Empty => "the file is empty".into(),
             LoadErrorKind::HeaderOnly => "the file has a header row but no data rows".into(),
+            LoadErrorKind::HeaderTooLong { length } => format!(
+                "a header cell of {length} bytes cannot be a column name; is the first row a header?"
+            ),
             LoadErrorKind::Ragged { found, expected } => format!(
                 "the row has {found} field{} but the header has {expected}",
                 if *found == 1 { "" } else { "s" }
@@ -135,8 +143,9 @@ impl LoadError {
                 format!("the column name repeats {first}; column names must be unique")
             }
             LoadErrorKind::NotNumeric { text } => format!(
-                "\"{text}\" is not a number in a numeric column (missing values may be blank, \
-                 NA, NaN, - or #N/A)"
+                "\"{}\" is not a number in a numeric column (missing values may be blank, \
+                 NA, NaN, - or #N/A)",
+                text
             ),
             LoadErrorKind::NotFinite { text } => {
                 format!("\"{text}\" is not a finite number")
@@ -173,6 +182,17 @@ impl LoadError {
             ),
         };
         format!("{place}: {what}")
+    }
+}
+
+/// Cuts a text found in a file to 80 characters for a message.
+pub fn shorten(text: &str) -> String {
+    const MAX: usize = 80;
+    if text.chars().count() <= MAX {
+        text.to_string()
+    } else {
+        let cut: String = text.chars().take(MAX).collect();
+        format!("{cut}… ({} characters)", text.chars().count())
     }
 }
 

@@ -65,9 +65,21 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
     let mut unmatched = Vec::new();
     // Pairs of column indices of numeric columns present in both lots.
     let mut pairs: Vec<(usize, usize)> = Vec::new();
+    let keys_b: std::collections::HashMap<String, usize> = b
+        .columns
+        .iter()
+        .enumerate()
+        .map(|(i, c)| (match_key(&c.name), i))
+        .collect();
+    let keys_a: std::collections::HashMap<String, usize> = a
+        .columns
+        .iter()
+        .enumerate()
+        .map(|(i, c)| (match_key(&c.name), i))
+        .collect();
     for (ia, ca) in a.columns.iter().enumerate() {
         let key = match_key(&ca.name);
-        let found = b.columns.iter().position(|cb| match_key(&cb.name) == key);
+        let found = keys_b.get(&key).copied();
         match (found, ca.is_numeric()) {
             (Some(ib), true) if b.columns[ib].is_numeric() => pairs.push((ia, ib)),
             (Some(ib), true) => unmatched.push(Unmatched {
@@ -85,7 +97,7 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
     }
     for cb in &b.columns {
         let key = match_key(&cb.name);
-        let found = a.columns.iter().find(|ca| match_key(&ca.name) == key);
+        let found = keys_a.get(&key).map(|&i| &a.columns[i]);
         match found {
             None if cb.is_numeric() => unmatched.push(Unmatched {
                 lot: 1,

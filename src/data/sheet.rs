@@ -125,6 +125,7 @@ pub(super) fn read(
     }
     let forced: Vec<String> = options.labels.iter().map(|l| match_key(l)).collect();
     let mut columns: Vec<Column> = Vec::new();
+    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
     for (k, h) in header.iter().enumerate() {
         let pos = col0 as usize + k;
         let text = cell_text(h);
@@ -140,10 +141,7 @@ pub(super) fn read(
         if text.is_empty() && all_empty {
             continue;
         }
-        if let Some(prev) = columns
-            .iter()
-            .find(|c| match_key(&c.name) == match_key(&name))
-        {
+        if let Some(prev) = seen.get(&match_key(&name)).map(|&i| &columns[i]) {
             return Err(LoadError::at_cell(
                 path,
                 header_row,
@@ -186,7 +184,7 @@ pub(super) fn read(
                             &text,
                             pos,
                             LoadErrorKind::NotFinite {
-                                text: cell_text(cell),
+                                text: super::error::shorten(&cell_text(cell)),
                             },
                         ));
                     }
@@ -197,7 +195,7 @@ pub(super) fn read(
                             &text,
                             pos,
                             LoadErrorKind::NotNumeric {
-                                text: cell_text(cell),
+                                text: super::error::shorten(&cell_text(cell)),
                             },
                         ));
                     }
@@ -215,6 +213,7 @@ pub(super) fn read(
             }
             ColumnData::Text(tc)
         };
+        seen.insert(match_key(&name), columns.len());
         columns.push(Column {
             header: text,
             name,

@@ -836,26 +836,29 @@ impl LotshiftApp {
             Some(lot) => {
                 let p = &lot.provenance;
                 ui.label(format!("{} — \"{}\"", p.file_name, lot.name));
+                // Always two lines, so the panel does not jump while a run is under way.
+                ui.label(format!("{} rows read", lot.len()));
                 let used = self
                     .shown
                     .as_ref()
                     .filter(|_| self.shown_current)
                     .map(|s| &s.prepared.lots[i]);
                 match used {
-                    Some(pl) => {
+                    Some(pl) if pl.n_excluded > 0 => {
+                        let why: Vec<String> = s_missing(self.shown.as_deref(), i);
                         ui.label(format!(
-                            "{} units used of {} read",
+                            "{} units used; {} left out for missing cells ({})",
                             pl.data.nrows(),
-                            pl.n_read
-                        ));
-                        if pl.n_excluded > 0 {
-                            let why: Vec<String> = s_missing(self.shown.as_deref(), i);
-                            ui.label(format!("{} left out for missing cells ({})", pl.n_excluded, why.join(", ")))
-                                .on_hover_text("A unit with a missing cell in any compared characteristic is left out of the whole analysis (listwise).");
-                        }
+                            pl.n_excluded,
+                            why.join(", ")
+                        ))
+                        .on_hover_text("A unit with a missing cell in any compared characteristic is left out of the whole analysis (listwise).");
+                    }
+                    Some(pl) => {
+                        ui.label(format!("{} units used", pl.data.nrows()));
                     }
                     None => {
-                        ui.label(format!("{} rows read", lot.len()));
+                        ui.weak("units used: when the comparison is done");
                     }
                 }
                 for n in &p.notes {

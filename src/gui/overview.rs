@@ -181,6 +181,11 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
             ));
             ui.end_row();
         }
+        if c.permutation.is_none() && c.settings.permutations == 0 && s.requested_permutations > 0 {
+            ui.label("Permutation p-value");
+            ui.label(format!("computing {} relabellings… (the rest of the result is final)", s.requested_permutations));
+            ui.end_row();
+        }
         if let Some(p) = &c.permutation {
             ui.label("Permutation p-value");
             ui.label(format!(

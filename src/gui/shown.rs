@@ -28,13 +28,15 @@ pub struct Shown {
     /// The comparison.
     pub comparison: Comparison,
     /// The unit data it was computed from.
-    pub prepared: Prepared,
+    pub prepared: Arc<Prepared>,
     /// The lots as read (for labels and rows).
     pub lots: [Arc<Lot>; 2],
     /// The record for export.
     pub record: Record,
     /// Indices (into the prepared lot) of the units drawn, per lot.
     pub sample: [Vec<usize>; 2],
+    /// Relabellings asked for (the permutation p-value may still be on its way).
+    pub requested_permutations: usize,
     /// Hover text ("lot: row 17, serial ...") of each drawn unit, per lot.
     pub unit_text: Arc<[Vec<String>; 2]>,
     pairs: HashMap<(usize, usize, u64), Arc<PairView>>,
@@ -66,7 +68,7 @@ impl Shown {
     /// Builds the plot caches of a result.
     pub fn new(
         comparison: Comparison,
-        prepared: Prepared,
+        prepared: Arc<Prepared>,
         lots: [Arc<Lot>; 2],
         record: Record,
     ) -> Self {
@@ -81,6 +83,7 @@ impl Shown {
             record,
             sample,
             unit_text: Arc::new([Vec::new(), Vec::new()]),
+            requested_permutations: 0,
             pairs: HashMap::new(),
         };
         let text = [0, 1].map(|g| {

@@ -8,7 +8,7 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender, channel};
 use std::sync::{Arc, Mutex};
 
-use crate::analysis::{self, LotData, Progress, Settings};
+use crate::analysis::{self, Comparison, LotData, Progress, Settings};
 use crate::data::{self, LoadOptions, Lot, Selection};
 use crate::report::Record;
 
@@ -62,6 +62,8 @@ pub enum Outcome {
         run: u64,
         /// The result bundle or the reason there is none.
         result: Result<Box<Shown>, String>,
+        /// False for the first delivery of a run that still computes its permutation p-value.
+        last: bool,
     },
     /// The record was written (or not).
     Exported(Result<PathBuf, String>),
@@ -264,8 +266,21 @@ impl Worker {
         let tx = self.tx.clone();
         let ctx = self.ctx.clone();
         std::thread::spawn(move || {
-            let result = catch_unwind(AssertUnwindSafe(|| {
-                run_comparison(&lots, &selection, &settings, &*handle)
+            let deliver = |result: Result<Box<Shown>, String>, last: bool| {
+                Self::send(
+                    &tx,
+                    &ctx,
+                    Outcome::Compared {
+                        run: handle.id,
+                        result,
+                        last,
+                    },
+                );
+            };
+            let outcome = catch_unwind(AssertUnwindSafe(|| {
+                run_comparison_staged(&lots, &selection, &settings, &*handle, &|first| {
+                    deliver(Ok(first), false)
+                })
             }))
             .unwrap_or_else(|e| {
                 Err(format!(
@@ -273,14 +288,7 @@ impl Worker {
                     panic_text(&e)
                 ))
             });
-            Self::send(
-                &tx,
-                &ctx,
-                Outcome::Compared {
-                    run: handle.id,
-                    result,
-                },
-            );
+            deliver(outcome, true);
         });
         self.latest_run
     }
@@ -309,11 +317,13 @@ impl Worker {
         let mut out = Vec::new();
         while let Ok(o) = self.rx.try_recv() {
             match &o {
-                Outcome::Compared { run, .. } => {
+                Outcome::Compared { run, last, .. } => {
                     if *run != self.latest_run {
                         continue;
                     }
-                    self.active = None;
+                    if *last {
+                        self.active = None;
+                    }
                 }
                 Outcome::Loaded { .. } => self.loads_pending = self.loads_pending.saturating_sub(1),
                 Outcome::Picked { .. } | Outcome::Exported(_) | Outcome::Chosen { .. } => {}
@@ -336,16 +346,39 @@ impl Worker {
     }
 }
 
-/// Prepares, compares and builds everything the views draw.
+/// Prepares, compares and builds everything the views draw, in one go.
+///
+/// # Errors
+/// The reason in words (bad selection, engine error, cancellation).
 pub fn run_comparison(
     lots: &[Arc<Lot>; 2],
     selection: &Selection,
     settings: &Settings,
     progress: &dyn Progress,
 ) -> Result<Box<Shown>, String> {
+    run_comparison_staged(lots, selection, settings, progress, &|_| {})
+}
+
+/// As [`run_comparison`], but when a permutation p-value is asked for, hands the result
+/// without it to `first` as soon as it exists, then computes the permutations.
+///
+/// # Errors
+/// As [`run_comparison`].
+pub fn run_comparison_staged(
+    lots: &[Arc<Lot>; 2],
+    selection: &Selection,
+    settings: &Settings,
+    progress: &dyn Progress,
+    first: &dyn Fn(Box<Shown>),
+) -> Result<Box<Shown>, String> {
     progress.report("matching columns", 0.0);
-    let prepared = data::prepare(&lots[0], &lots[1], selection).map_err(|e| e.to_string())?;
-    let c = analysis::compare(
+    let prepared =
+        Arc::new(data::prepare(&lots[0], &lots[1], selection).map_err(|e| e.to_string())?);
+    let quick = Settings {
+        permutations: 0,
+        ..settings.clone()
+    };
+    let mut c = analysis::compare(
         &prepared.characteristics,
         &prepared.units,
         [
@@ -358,12 +391,28 @@ pub fn run_comparison(
                 data: &prepared.lots[1].data,
             },
         ],
+        &quick,
+        progress,
+    )
+    .map_err(|e| e.to_string())?;
+    let bundle = |c: Comparison| {
+        let record = Record::new(&c, Some((&*prepared, [&lots[0], &lots[1]])));
+        let mut shown = Shown::new(c, prepared.clone(), lots.clone(), record);
+        shown.requested_permutations = settings.permutations;
+        Box::new(shown)
+    };
+    if settings.permutations == 0 {
+        return Ok(bundle(c));
+    }
+    first(bundle(c.clone()));
+    analysis::add_permutation(
+        &mut c,
+        [&prepared.lots[0].data, &prepared.lots[1].data],
         settings,
         progress,
     )
     .map_err(|e| e.to_string())?;
-    let record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
-    Ok(Box::new(Shown::new(c, prepared, lots.clone(), record)))
+    Ok(bundle(c))
 }
 
 #[cfg(test)]
@@ -406,16 +455,22 @@ mod tests {
         let deadline = std::time::Instant::now() + Duration::from_secs(20);
         while got.is_empty() && std::time::Instant::now() < deadline {
             for o in w.wait(Duration::from_millis(200)) {
-                if let Outcome::Compared { run, result } = o {
-                    got.push((run, result.map(|s| s.comparison.alpha)));
+                if let Outcome::Compared { run, result, last } = o {
+                    assert_eq!(run, second, "only the newest run is delivered");
+                    if last {
+                        got.push((run, result.map(|s| s.comparison.alpha)));
+                    }
                 }
             }
         }
         // Give the first run's thread time to deliver too: it must still be dropped.
         std::thread::sleep(Duration::from_millis(200));
         for o in w.poll() {
-            if let Outcome::Compared { run, result } = o {
-                got.push((run, result.map(|s| s.comparison.alpha)));
+            if let Outcome::Compared { run, result, last } = o {
+                assert_eq!(run, second, "only the newest run is delivered");
+                if last {
+                    got.push((run, result.map(|s| s.comparison.alpha)));
+                }
             }
         }
         assert_eq!(got.len(), 1, "exactly one result delivered");

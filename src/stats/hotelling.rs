@@ -51,6 +51,27 @@ impl Pooled {
             });
         }
         let covariance = (&m1.ssp + &m2.ssp) / (n_total - 2) as f64;
+        let overflow: Vec<String> = (0..p)
+            .filter(|&k| {
+                !(covariance[(k, k)].is_finite()
+                    && m1.offset[k].is_finite()
+                    && m2.offset[k].is_finite())
+            })
+            .map(|k| names[k].clone())
+            .collect();
+        if !overflow.is_empty() {
+            return Err(EngineError::Overflow { names: overflow });
+        }
+        let underflow: Vec<String> = (0..p)
+            .filter(|&k| {
+                covariance[(k, k)] == 0.0 && m1.spread_scale[k].max(m2.spread_scale[k]) > 0.0
+            })
+            .filter(|&k| m1.spread_scale[k].max(m2.spread_scale[k]) < 1e-150)
+            .map(|k| names[k].clone())
+            .collect();
+        if !underflow.is_empty() {
+            return Err(EngineError::Underflow { names: underflow });
+        }
         let sd = DVector::from_iterator(p, (0..p).map(|k| covariance[(k, k)].max(0.0).sqrt()));
         let constant: Vec<String> = (0..p)
             .filter(|&k| {

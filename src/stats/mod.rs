@@ -51,6 +51,26 @@ pub enum EngineError {
         /// Condition number of the pooled correlation matrix.
         condition: f64,
     },
+    /// Values so large that their squares do not fit in double precision.
+    #[error(
+        "{} {} values too large to compute with in double precision (their squares overflow): \
+         rescale, for example by changing the unit",
+        quote_list(names), if names.len() == 1 { "has" } else { "have" }
+    )]
+    Overflow {
+        /// The characteristics involved.
+        names: Vec<String>,
+    },
+    /// Spreads so small that their squares vanish in double precision.
+    #[error(
+        "the spread of {} is too small to compute with in double precision (its square \
+         underflows to zero): rescale, for example by changing the unit",
+        quote_list(names)
+    )]
+    Underflow {
+        /// The characteristics involved.
+        names: Vec<String>,
+    },
     /// The two lots do not describe the same characteristics.
     #[error("the lots have {0} and {1} characteristics; they must have the same")]
     DimensionMismatch(usize, usize),
