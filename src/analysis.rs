@@ -505,22 +505,10 @@ pub fn compare(
     let scores = [s1, s2];
     out.discriminant.score_histogram = ScoreHistogram::new(&scores);
     out.discriminant.scores = Some(scores);
-    if settings.checks {
-        progress.report("assumption checks", 0.3);
-        unit_checks(
-            &mut out,
-            [lots[0].data, lots[1].data],
-            [&c1, &c2],
-            settings.alpha,
-        );
-        if progress.cancelled() {
-            return Err(EngineError::Cancelled);
-        }
-    }
     if settings.leave_one_out {
-        progress.report("leave-one-out", 0.4);
+        progress.report("leave-one-out", 0.3);
         let loo = discriminant::leave_one_out([&c1, &c2], &d, &pooled, |f| {
-            progress.report("leave-one-out", 0.4 + 0.2 * f);
+            progress.report("leave-one-out", 0.3 + 0.2 * f);
             !progress.cancelled()
         });
         if progress.cancelled() {
@@ -532,7 +520,21 @@ pub fn compare(
                 Some((wrong[0] + wrong[1]) as f64 / (m1.n + m2.n) as f64);
         }
     }
-    drop((c1, c2));
+    if settings.checks {
+        progress.report("assumption checks", 0.5);
+        // The centred copies are whitened in place: no further copy of the units.
+        unit_checks(
+            &mut out,
+            [lots[0].data, lots[1].data],
+            [c1, c2],
+            settings.alpha,
+        );
+        if progress.cancelled() {
+            return Err(EngineError::Cancelled);
+        }
+    } else {
+        drop((c1, c2));
+    }
     add_permutation(&mut out, [lots[0].data, lots[1].data], settings, progress)?;
     conclude(&mut out);
     progress.report("done", 1.0);
@@ -579,17 +581,16 @@ pub fn add_permutation(
 fn unit_checks(
     out: &mut Comparison,
     data: [&DMatrix<f64>; 2],
-    centred: [&DMatrix<f64>; 2],
+    centred: [DMatrix<f64>; 2],
     alpha: f64,
 ) {
     let p = out.characteristics.len();
     let mut cutoff = [f64::NAN; 2];
     let mut flagged = Vec::new();
-    for g in 0..2 {
-        let n = centred[g].nrows();
-        if let Some(z) = checks::whiten(centred[g]) {
-            out.mardia.push(checks::mardia(&out.lots[g].name, &z, n, p));
-            let (cut, units) = checks::outliers(g, &z, n, p, alpha);
+    for (g, mut c) in centred.into_iter().enumerate() {
+        if checks::whiten_in_place(&mut c) {
+            out.mardia.push(checks::mardia(&out.lots[g].name, &c));
+            let (cut, units) = checks::outliers(g, &c, alpha);
             cutoff[g] = cut;
             flagged.extend(units);
         }

@@ -298,12 +298,16 @@ fn emit_json(target: &Option<String>, record: &Record) -> Result<(), String> {
 }
 
 fn compare(a: CompareArgs) -> CliResult {
-    let lots = load_lots(&a.lots)?;
+    let mut lots = load_lots(&a.lots)?;
     let selection = Selection {
         only: a.lots.characteristics.clone(),
         exclude: a.lots.exclude.clone(),
     };
     let prepared = data::prepare(&lots[0], &lots[1], &selection).map_err(|e| e.to_string())?;
+    // The unit matrices hold the numbers from here on.
+    for lot in &mut lots {
+        lot.release_numbers();
+    }
     let settings = Settings {
         alpha: a.alpha,
         leave_one_out: !a.no_holdout,

@@ -341,6 +341,11 @@ fn fuzz_regressions_never_panic() {
         }
         if let Ok(text) = std::str::from_utf8(&bytes) {
             let _ = lotshift::report::sign::verify_signature(text, None);
+            if let Ok(v) = serde_json::from_str::<serde_json::Value>(text) {
+                let _ = lotshift::report::canonical_bytes(&v);
+                let _ = lotshift::report::html::render_html(&v, None);
+                let _ = lotshift::report::html::render_html(&v["record"], Some(&v["signature"]));
+            }
         }
     }
     let _ = data::match_key("");

@@ -370,3 +370,53 @@ fn explicit_characteristics_keep_the_order_given() {
     let p = prepare(&a, &a, &sel).unwrap();
     assert_eq!(p.characteristics, vec!["z".to_string(), "x".to_string()]);
 }
+
+#[test]
+fn a_file_read_in_chunks_equals_the_same_bytes_in_memory() {
+    // Lines cross the 1 MiB chunk boundaries; CRLF line ends, a BOM, a blank line, and a last
+    // line without a line end.
+    let mut text = String::from("\u{feff}serial,x (mm),y (mm)\r\n");
+    for i in 0..120_000 {
+        text.push_str(&format!(
+            "S{i},{}.{:03},{}\r\n",
+            i % 97,
+            i % 1000,
+            (i * 7) % 1013
+        ));
+        if i == 50_000 {
+            text.push_str("\r\n");
+        }
+    }
+    text.push_str("last,1.5,2.5");
+    let dir = std::env::temp_dir().join(format!("lotshift-chunks-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("chunks.csv");
+    std::fs::write(&path, &text).unwrap();
+    let from_file = load(&path, &LoadOptions::default()).unwrap();
+    let from_memory = load_bytes(
+        &path.display().to_string(),
+        text.as_bytes(),
+        &LoadOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(from_file, from_memory);
+    assert_eq!(from_file.len(), 120_001);
+    assert_eq!(
+        *from_file.rows.last().unwrap(),
+        120_003,
+        "the blank line keeps its row number"
+    );
+    assert_eq!(numbers(&from_file, "x").last(), Some(&1.5));
+    // A quoted file takes the csv path; the result is the same as in memory too.
+    let quoted = text.replacen("S7,", "\"S,7\",", 1);
+    std::fs::write(&path, &quoted).unwrap();
+    let from_file = load(&path, &LoadOptions::default()).unwrap();
+    let from_memory = load_bytes(
+        &path.display().to_string(),
+        quoted.as_bytes(),
+        &LoadOptions::default(),
+    )
+    .unwrap();
+    assert_eq!(from_file, from_memory);
+    std::fs::remove_dir_all(dir).unwrap();
+}

@@ -2,10 +2,11 @@
 //! UTF-8 with or without BOM (Latin-1 accepted for headers and labels), CRLF, quoted fields.
 
 use std::borrow::Cow;
+use std::path::Path;
 
 use super::{
     Cell, Column, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot, Provenance, TextColumn,
-    classify, column_letter, match_key, parse_cell, split_header,
+    classify, column_letter, match_key, parse_cell_bytes, split_header,
 };
 
 /// Rows used to decide each column's role.
@@ -83,6 +84,285 @@ fn sniff_decimal_comma(sample: &[u8], delim: u8) -> bool {
     comma > 0 && point == 0
 }
 
+/// True when the fast splitter reads the text exactly as the CSV parser would: no quote
+/// characters, and no carriage return that is not part of a CRLF.
+fn quote_free(body: &[u8]) -> bool {
+    memchr::memchr(b'"', body).is_none()
+        && memchr::memchr_iter(b'\r', body).all(|i| body.get(i + 1) == Some(&b'\n'))
+}
+
+/// Where the text is: in memory (BOM already removed), or in a file read in chunks.
+#[derive(Clone, Copy)]
+enum Source<'a> {
+    Memory(&'a [u8]),
+    /// A file; `skip` bytes (a byte-order mark) are not part of the text.
+    File(&'a Path, u64),
+}
+
+/// What receives each record: its row and fields; returns whether to go on.
+type RecordFn<'a> = dyn FnMut(usize, &[&[u8]]) -> Result<bool, LoadError> + 'a;
+
+/// Bytes read from a file at a time.
+const CHUNK: usize = 1 << 20;
+
+/// Calls `f(row, fields)` for each record, the row numbered as a spreadsheet shows it, until
+/// `f` returns `Ok(false)`. Quote-free text is split directly (lines on `\n`, fields on the
+/// delimiter), a file a chunk at a time so memory stays flat; anything else goes through the
+/// csv crate. Empty lines are skipped by both.
+fn for_each_record(
+    path: &str,
+    source: Source<'_>,
+    delim: u8,
+    fast: bool,
+    f: &mut RecordFn<'_>,
+) -> Result<(), LoadError> {
+    let io = |e: std::io::Error| LoadError::new(path, LoadErrorKind::Io(e.to_string()));
+    if fast {
+        let mut line_no = 1usize;
+        match source {
+            Source::Memory(body) => {
+                split_lines(body, delim, &mut line_no, true, f)?;
+            }
+            Source::File(p, skip) => {
+                use std::io::{Read as _, Seek as _};
+                let mut file = std::fs::File::open(p).map_err(io)?;
+                file.seek(std::io::SeekFrom::Start(skip)).map_err(io)?;
+                let mut buf: Vec<u8> = Vec::with_capacity(CHUNK * 2);
+                loop {
+                    let old = buf.len();
+                    buf.resize(old + CHUNK, 0);
+                    let got = file.read(&mut buf[old..]).map_err(io)?;
+                    buf.truncate(old + got);
+                    let at_end = got == 0;
+                    // Whole lines only, except at the end of the file.
+                    let upto = if at_end {
+                        buf.len()
+                    } else {
+                        match memchr::memrchr(b'\n', &buf) {
+                            Some(i) => i + 1,
+                            None => continue,
+                        }
+                    };
+                    if !split_lines(&buf[..upto], delim, &mut line_no, at_end, f)? {
+                        return Ok(());
+                    }
+                    buf.drain(..upto);
+                    if at_end {
+                        return Ok(());
+                    }
+                }
+            }
+        }
+        return Ok(());
+    }
+    let reader: Box<dyn std::io::Read + '_> = match source {
+        Source::Memory(body) => Box::new(body),
+        Source::File(p, skip) => {
+            use std::io::{Read as _, Seek as _};
+            let mut file = std::fs::File::open(p).map_err(io)?;
+            file.seek(std::io::SeekFrom::Start(skip)).map_err(io)?;
+            Box::new(std::io::BufReader::with_capacity(CHUNK, file).take(u64::MAX))
+        }
+    };
+    let mut rdr = csv::ReaderBuilder::new()
+        .has_headers(false)
+        .flexible(true)
+        .delimiter(delim)
+        .from_reader(reader);
+    let mut rec = csv::ByteRecord::new();
+    loop {
+        match rdr.read_byte_record(&mut rec) {
+            Ok(false) => return Ok(()),
+            Ok(true) => {}
+            Err(e) => {
+                let row = e.position().map_or(0, |p| p.line() as usize);
+                return Err(LoadError::at_row(
+                    path,
+                    row,
+                    LoadErrorKind::Io(e.to_string()),
+                ));
+            }
+        }
+        let row = rec.position().map_or(0, |p| p.line() as usize);
+        let quoted: Vec<&[u8]> = rec.iter().collect();
+        if !f(row, &quoted)? {
+            return Ok(());
+        }
+    }
+}
+
+/// Splits quote-free text into records; `last` marks the end of the text (a final line
+/// without a line end). Returns false when `f` asked to stop.
+fn split_lines(
+    text: &[u8],
+    delim: u8,
+    line_no: &mut usize,
+    last: bool,
+    f: &mut RecordFn<'_>,
+) -> Result<bool, LoadError> {
+    let mut fields: Vec<&[u8]> = Vec::new();
+    let mut field_start = 0usize;
+    let mut emit = |fields: &mut Vec<&[u8]>, line_no: usize| -> Result<bool, LoadError> {
+        if let Some(last) = fields.last_mut()
+            && let Some(l) = last.strip_suffix(b"\r")
+        {
+            *last = l;
+        }
+        let blank = fields.len() == 1 && fields[0].is_empty();
+        let go_on = blank || f(line_no, fields)?;
+        fields.clear();
+        Ok(go_on)
+    };
+    // One pass over the text for both the delimiter and the line end.
+    for i in memchr::memchr2_iter(delim, b'\n', text) {
+        fields.push(&text[field_start..i]);
+        field_start = i + 1;
+        if text[i] == b'\n' {
+            let go_on = emit(&mut fields, *line_no)?;
+            *line_no += 1;
+            if !go_on {
+                return Ok(false);
+            }
+        }
+    }
+    if last && (field_start < text.len() || !fields.is_empty()) {
+        fields.push(&text[field_start..]);
+        let go_on = emit(&mut fields, *line_no)?;
+        *line_no += 1;
+        return Ok(go_on);
+    }
+    Ok(true)
+}
+
+/// What one pass over a text file learns: its hash and size, its first megabyte, whether it
+/// is UTF-8, and whether the fast splitter reads it exactly.
+struct Scan {
+    sha256: String,
+    size: u64,
+    head: Vec<u8>,
+    utf8: bool,
+    quote_free: bool,
+}
+
+fn scan_file(path: &str, p: &Path) -> Result<Scan, LoadError> {
+    use sha2::Digest as _;
+    use std::io::Read as _;
+    let io = |e: std::io::Error| LoadError::new(path, LoadErrorKind::Io(e.to_string()));
+    let mut file = std::fs::File::open(p).map_err(io)?;
+    let mut hasher = sha2::Sha256::new();
+    let mut head = Vec::new();
+    let mut buf = vec![0u8; CHUNK];
+    let mut carry: Vec<u8> = Vec::new();
+    let (mut size, mut utf8, mut quote_free, mut prev_cr) = (0u64, true, true, false);
+    let mut first = true;
+    loop {
+        let got = file.read(&mut buf).map_err(io)?;
+        if got == 0 {
+            break;
+        }
+        let chunk = &buf[..got];
+        hasher.update(chunk);
+        size += got as u64;
+        if head.len() < CHUNK {
+            head.extend_from_slice(&chunk[..(CHUNK - head.len()).min(got)]);
+        }
+        if quote_free {
+            if prev_cr && chunk[0] != b'\n' || memchr::memchr(b'"', chunk).is_some() {
+                quote_free = false;
+            } else {
+                quote_free = memchr::memchr_iter(b'\r', chunk)
+                    .all(|i| i + 1 == got || chunk[i + 1] == b'\n');
+            }
+            prev_cr = chunk[got - 1] == b'\r';
+        }
+        if utf8 {
+            let body = if std::mem::take(&mut first) {
+                chunk.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(chunk)
+            } else {
+                chunk
+            };
+            utf8 = validate_utf8_chunk(&mut carry, body);
+        }
+    }
+    Ok(Scan {
+        sha256: super::hex(&hasher.finalize()),
+        size,
+        head,
+        utf8: utf8 && carry.is_empty(),
+        quote_free,
+    })
+}
+
+/// Checks one chunk of a text for UTF-8, carrying an incomplete final character (at most
+/// three bytes) over to the next chunk. Returns false at the first invalid byte.
+fn validate_utf8_chunk(carry: &mut Vec<u8>, mut data: &[u8]) -> bool {
+    if !carry.is_empty() {
+        // Complete the pending character with the first bytes of this chunk.
+        let take = data.len().min(4 - carry.len().min(3));
+        let mut joined = carry.clone();
+        joined.extend_from_slice(&data[..take]);
+        match std::str::from_utf8(&joined) {
+            Ok(_) => {}
+            Err(e) if e.valid_up_to() >= carry.len() => {
+                // The pending character is complete; the rest is checked with the chunk.
+                let used = e.valid_up_to() - carry.len();
+                carry.clear();
+                data = &data[used..];
+                return validate_utf8_chunk(carry, data);
+            }
+            Err(e) if e.error_len().is_none() && take == data.len() => {
+                *carry = joined;
+                return true;
+            }
+            Err(_) => return false,
+        }
+        carry.clear();
+        data = &data[take..];
+    }
+    match std::str::from_utf8(data) {
+        Ok(_) => true,
+        Err(e) if e.error_len().is_none() => {
+            carry.extend_from_slice(&data[e.valid_up_to()..]);
+            true
+        }
+        Err(_) => false,
+    }
+}
+
+/// Reads a CSV/TSV lot file from disk in chunks: one pass to hash and check it, then the
+/// passes of [`read`], so memory holds the numbers, not the file.
+pub(super) fn read_file(
+    path: &str,
+    p: &Path,
+    options: &LoadOptions,
+    mut provenance: Provenance,
+) -> Result<Lot, LoadError> {
+    let scan = scan_file(path, p)?;
+    provenance.sha256 = scan.sha256.clone();
+    provenance.size_bytes = scan.size;
+    if scan.head.starts_with(&[0xFF, 0xFE]) || scan.head.starts_with(&[0xFE, 0xFF]) {
+        // UTF-16 is rare and must be converted whole: read it into memory.
+        let bytes =
+            std::fs::read(p).map_err(|e| LoadError::new(path, LoadErrorKind::Io(e.to_string())))?;
+        return read(path, &bytes, options, provenance);
+    }
+    let skip = if scan.head.starts_with(b"\xEF\xBB\xBF") {
+        3
+    } else {
+        0
+    };
+    read_source(
+        path,
+        Source::File(p, skip),
+        &scan.head[skip as usize..],
+        scan.utf8,
+        scan.quote_free,
+        scan.size,
+        options,
+        provenance,
+    )
+}
+
 struct Builder {
     header: String,
     name: String,
@@ -134,27 +414,52 @@ pub(super) fn read(
             .push("the file is UTF-16 text; it was decoded".into());
     }
     let bytes = utf16.as_deref().unwrap_or(bytes);
-    let head = &bytes[..bytes.len().min(8192)];
-    if head.contains(&0) {
+    let body = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
+    let utf8 = std::str::from_utf8(body).is_ok();
+    let fast = quote_free(body);
+    let head = &body[..body.len().min(CHUNK)];
+    read_source(
+        path,
+        Source::Memory(body),
+        head,
+        utf8,
+        fast,
+        bytes.len() as u64,
+        options,
+        provenance,
+    )
+}
+
+/// The shared reader: `head` is the first megabyte of the text (after any byte-order mark).
+#[allow(clippy::too_many_arguments)]
+fn read_source(
+    path: &str,
+    source: Source<'_>,
+    head: &[u8],
+    utf8: bool,
+    fast: bool,
+    size: u64,
+    options: &LoadOptions,
+    mut provenance: Provenance,
+) -> Result<Lot, LoadError> {
+    if head[..head.len().min(8192)].contains(&0) {
         return Err(LoadError::new(path, LoadErrorKind::Binary));
     }
-    let body = bytes.strip_prefix(b"\xEF\xBB\xBF").unwrap_or(bytes);
-    if body.iter().all(|b| b.is_ascii_whitespace()) {
+    if head.iter().all(|b| b.is_ascii_whitespace()) && (head.len() as u64) + 3 >= size {
         return Err(LoadError::new(path, LoadErrorKind::Empty));
     }
-    let latin1 = std::str::from_utf8(body).is_err();
+    let latin1 = !utf8;
     let sample_end = {
-        let end = body.len().min(64 * 1024);
+        let end = head.len().min(64 * 1024);
         // Extend to the end of a line so the sample holds whole records (up to 1 MiB: a longer
         // line is sniffed from its start).
-        let limit = body.len().min(1024 * 1024);
-        body[end..limit]
+        head[end..]
             .iter()
             .position(|&b| b == b'\n')
-            .map_or(limit.max(end), |i| end + i + 1)
+            .map_or(head.len(), |i| end + i + 1)
     };
-    let delim = sniff_delimiter(&body[..sample_end]);
-    let decimal_comma = sniff_decimal_comma(&body[..sample_end], delim);
+    let delim = sniff_delimiter(&head[..sample_end]);
+    let decimal_comma = sniff_decimal_comma(&head[..sample_end], delim);
     provenance.format = if delim == b'\t' { "tsv" } else { "csv" }.into();
     provenance.delimiter = Some(delim as char);
     provenance.decimal_comma = decimal_comma;
@@ -164,18 +469,21 @@ pub(super) fn read(
             .notes
             .push("the file is not valid UTF-8; text was read as Latin-1".into());
     }
-
-    let mut rdr = csv::ReaderBuilder::new()
-        .has_headers(false)
-        .flexible(true)
-        .delimiter(delim)
-        .from_reader(body);
-    let mut records = rdr.byte_records();
-    let header = match records.next() {
-        Some(Ok(h)) => h,
-        Some(Err(e)) => return Err(LoadError::at_row(path, 1, LoadErrorKind::Io(e.to_string()))),
-        None => return Err(LoadError::new(path, LoadErrorKind::Empty)),
+    // A guess at the number of rows, to size the columns once.
+    let line_guess = {
+        let lines = memchr::memchr_iter(b'\n', head).count().max(1);
+        ((size as f64 / head.len().max(1) as f64) * lines as f64 * 1.05) as usize + 16
     };
+
+    let mut header_fields: Vec<Vec<u8>> = Vec::new();
+    for_each_record(path, source, delim, fast, &mut |_, fields| {
+        header_fields = fields.iter().map(|f| f.to_vec()).collect();
+        Ok(false)
+    })?;
+    if header_fields.is_empty() {
+        return Err(LoadError::new(path, LoadErrorKind::Empty));
+    }
+    let header = header_fields;
     let forced: Vec<String> = options.labels.iter().map(|l| match_key(l)).collect();
     let mut columns: Vec<Builder> = Vec::with_capacity(header.len());
     let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
@@ -222,127 +530,117 @@ pub(super) fn read(
     }
     let width = columns.len();
 
-    // Buffer the first rows to decide each column's role.
-    let mut sample: Vec<(csv::ByteRecord, usize)> = Vec::new();
-    let next_record = |records: &mut csv::ByteRecordsIter<'_, &[u8]>| -> Result<Option<(csv::ByteRecord, usize)>, LoadError> {
-        match records.next() {
-            None => Ok(None),
-            Some(Err(e)) => {
-                let row = e.position().map(|p| p.line() as usize).unwrap_or(0);
-                Err(LoadError::at_row(path, row, LoadErrorKind::Io(e.to_string())))
-            }
-            Some(Ok(r)) => {
-                let row = r.position().map(|p| p.line() as usize).unwrap_or(0);
-                Ok(Some((r, row)))
-            }
+    // Decide each column's role from the first rows (read again in the full pass below).
+    let mut counts = vec![(0usize, 0usize); width];
+    let mut sampled = 0usize;
+    let mut first = true;
+    for_each_record(path, source, delim, fast, &mut |_, fields| {
+        if std::mem::take(&mut first) {
+            return Ok(true);
         }
-    };
-    while sample.len() < CLASSIFY_ROWS {
-        match next_record(&mut records)? {
-            Some(rec) => sample.push(rec),
-            None => break,
-        }
-    }
-    if sample.is_empty() {
-        return Err(LoadError::at_row(path, 1, LoadErrorKind::HeaderOnly));
-    }
-    for (k, col) in columns.iter_mut().enumerate() {
-        let (mut num, mut txt) = (0, 0);
-        for (rec, _) in &sample {
-            match rec
-                .get(k)
-                .map(|b| parse_cell(&decode(b, latin1), decimal_comma))
-            {
-                Some(Cell::Number(_) | Cell::Infinite) => num += 1,
-                Some(Cell::Text) => txt += 1,
+        for (k, c) in counts.iter_mut().enumerate() {
+            match fields.get(k).map(|b| parse_cell_bytes(b, decimal_comma)) {
+                Some(Cell::Number(_) | Cell::Infinite) => c.0 += 1,
+                Some(Cell::Text) => c.1 += 1,
                 _ => {}
             }
         }
+        sampled += 1;
+        Ok(sampled < CLASSIFY_ROWS)
+    })?;
+    if sampled == 0 {
+        return Err(LoadError::at_row(path, 1, LoadErrorKind::HeaderOnly));
+    }
+    for (col, &(num, txt)) in columns.iter_mut().zip(&counts) {
         let forced_label =
             forced.contains(&match_key(&col.name)) || forced.contains(&match_key(&col.header));
         col.numeric = classify(num, txt, forced_label);
     }
 
-    let mut rows: Vec<u32> = Vec::with_capacity(sample.len());
-    let mut push =
-        |rec: &csv::ByteRecord, row: usize, columns: &mut [Builder]| -> Result<(), LoadError> {
-            if rec.len() < width {
-                // A blank line inside the data reads as one empty field: treat as no unit.
-                if rec.len() == 1 && rec.get(0).is_some_and(|f| f.trim_ascii().is_empty()) {
-                    return Ok(());
-                }
-                return Err(LoadError::at_row(
-                    path,
-                    row,
-                    LoadErrorKind::Ragged {
-                        found: rec.len(),
-                        expected: width,
-                    },
-                ));
+    for col in columns.iter_mut() {
+        if col.numeric {
+            col.values.reserve_exact(line_guess);
+        }
+    }
+    let mut rows: Vec<u32> = Vec::with_capacity(line_guess);
+    let mut push = |rec: &[&[u8]], row: usize, columns: &mut [Builder]| -> Result<(), LoadError> {
+        if rec.len() < width {
+            // A blank line inside the data reads as one empty field: treat as no unit.
+            if rec.len() == 1 && rec[0].trim_ascii().is_empty() {
+                return Ok(());
             }
-            if rec.len() > width && rec.iter().skip(width).any(|f| !f.trim_ascii().is_empty()) {
-                return Err(LoadError::at_row(
-                    path,
-                    row,
-                    LoadErrorKind::Ragged {
-                        found: rec.len(),
-                        expected: width,
-                    },
-                ));
-            }
-            for (k, col) in columns.iter_mut().enumerate() {
-                let raw = rec.get(k).unwrap_or_default();
-                if col.numeric {
-                    let text = decode(raw, latin1);
-                    let v = match parse_cell(&text, decimal_comma) {
-                        Cell::Number(v) => v,
-                        Cell::Missing => {
-                            col.missing += 1;
-                            f64::NAN
-                        }
-                        Cell::Infinite => {
-                            return Err(LoadError::at_cell(
-                                path,
-                                row,
-                                &col.header,
-                                col.position,
-                                LoadErrorKind::NotFinite {
-                                    text: super::error::shorten(text.trim()),
-                                },
-                            ));
-                        }
-                        Cell::Text => {
-                            return Err(LoadError::at_cell(
-                                path,
-                                row,
-                                &col.header,
-                                col.position,
-                                LoadErrorKind::NotNumeric {
-                                    text: super::error::shorten(text.trim()),
-                                },
-                            ));
-                        }
-                    };
-                    col.values.push(v);
-                } else {
-                    let text = decode(raw, latin1);
-                    let t = text.trim();
-                    if t.is_empty() {
+            return Err(LoadError::at_row(
+                path,
+                row,
+                LoadErrorKind::Ragged {
+                    found: rec.len(),
+                    expected: width,
+                },
+            ));
+        }
+        if rec.len() > width && rec[width..].iter().any(|f| !f.trim_ascii().is_empty()) {
+            return Err(LoadError::at_row(
+                path,
+                row,
+                LoadErrorKind::Ragged {
+                    found: rec.len(),
+                    expected: width,
+                },
+            ));
+        }
+        for (col, &raw) in columns.iter_mut().zip(rec) {
+            if col.numeric {
+                let text = || decode(raw, latin1);
+                let v = match parse_cell_bytes(raw, decimal_comma) {
+                    Cell::Number(v) => v,
+                    Cell::Missing => {
                         col.missing += 1;
+                        f64::NAN
                     }
-                    col.text.push(t);
+                    Cell::Infinite => {
+                        return Err(LoadError::at_cell(
+                            path,
+                            row,
+                            &col.header,
+                            col.position,
+                            LoadErrorKind::NotFinite {
+                                text: super::error::shorten(text().trim()),
+                            },
+                        ));
+                    }
+                    Cell::Text => {
+                        return Err(LoadError::at_cell(
+                            path,
+                            row,
+                            &col.header,
+                            col.position,
+                            LoadErrorKind::NotNumeric {
+                                text: super::error::shorten(text().trim()),
+                            },
+                        ));
+                    }
+                };
+                col.values.push(v);
+            } else {
+                let text = decode(raw, latin1);
+                let t = text.trim();
+                if t.is_empty() {
+                    col.missing += 1;
                 }
+                col.text.push(t);
             }
-            rows.push(u32::try_from(row).unwrap_or(u32::MAX));
-            Ok(())
-        };
-    for (rec, row) in &sample {
-        push(rec, *row, &mut columns)?;
-    }
-    drop(sample);
-    while let Some((rec, row)) = next_record(&mut records)? {
-        push(&rec, row, &mut columns)?;
-    }
+        }
+        rows.push(u32::try_from(row).unwrap_or(u32::MAX));
+        Ok(())
+    };
+    let mut first = true;
+    for_each_record(path, source, delim, fast, &mut |row, fields| {
+        if std::mem::take(&mut first) {
+            return Ok(true);
+        }
+        push(fields, row, &mut columns)?;
+        Ok(true)
+    })?;
     if rows.is_empty() {
         return Err(LoadError::at_row(path, 1, LoadErrorKind::HeaderOnly));
     }
@@ -375,4 +673,32 @@ pub(super) fn read(
         columns: out,
         rows,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn utf8_validation_across_any_chunk_split() {
+        // Property: splitting a valid text anywhere keeps it valid; an invalid byte is found
+        // wherever it falls.
+        let text = "a µ b € c 😀 d ü".repeat(3);
+        let bytes = text.as_bytes();
+        for size in 1..=9 {
+            let mut carry = Vec::new();
+            let ok = bytes
+                .chunks(size)
+                .all(|c| validate_utf8_chunk(&mut carry, c));
+            assert!(ok && carry.is_empty(), "chunk size {size}");
+        }
+        let mut bad = bytes.to_vec();
+        bad[7] = 0xFF;
+        for size in 1..=9 {
+            let mut carry = Vec::new();
+            let ok =
+                bad.chunks(size).all(|c| validate_utf8_chunk(&mut carry, c)) && carry.is_empty();
+            assert!(!ok, "chunk size {size}");
+        }
+    }
 }

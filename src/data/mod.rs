@@ -160,6 +160,16 @@ impl Lot {
     pub fn is_empty(&self) -> bool {
         self.rows.is_empty()
     }
+    /// Frees the numeric columns' values (kept: names, units, missing counts, labels, rows),
+    /// once the unit matrices are built and the numbers are no longer needed here.
+    pub fn release_numbers(&mut self) {
+        for c in &mut self.columns {
+            if let ColumnData::Numeric(v) = &mut c.data {
+                *v = Vec::new();
+            }
+        }
+    }
+
     /// Finds a column by name, ignoring case, spaces and any unit.
     pub fn column(&self, name: &str) -> Option<&Column> {
         let key = match_key(name);
@@ -219,6 +229,79 @@ pub(crate) enum Cell {
 /// Missing-value tokens (case-insensitive), besides an empty cell.
 pub const MISSING_TOKENS: [&str; 7] = ["na", "n/a", "nan", "-", "#n/a", "null", "#na"];
 
+/// Powers of ten exactly representable as f64.
+const POW10: [f64; 23] = [
+    1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
+    1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
+];
+
+/// Classifies a cell's raw bytes. Plain decimals (`-12.345`, `12,345` with a decimal comma)
+/// take a fast path: digits into an integer below 2⁵³ divided by an exact power of ten is one
+/// correctly rounded operation (Clinger 1990), so the result equals the standard parser's.
+/// Anything else goes through [`parse_cell`].
+pub(crate) fn parse_cell_bytes(raw: &[u8], decimal_comma: bool) -> Cell {
+    if let Some(v) = fast_decimal(raw, decimal_comma) {
+        return Cell::Number(v);
+    }
+    let s = raw.trim_ascii();
+    if s.is_empty() {
+        return Cell::Missing;
+    }
+    match std::str::from_utf8(s) {
+        Ok(text) => parse_cell(text, decimal_comma),
+        Err(_) => Cell::Text,
+    }
+}
+
+/// `[-+]digits[.digits]` with at most 15 digits in all, exactly; `None` for anything else.
+#[inline]
+fn fast_decimal(raw: &[u8], decimal_comma: bool) -> Option<f64> {
+    let mut i = 0usize;
+    let n = raw.len();
+    let neg = match raw.first() {
+        Some(b'-') => {
+            i = 1;
+            true
+        }
+        Some(b'+') => {
+            i = 1;
+            false
+        }
+        _ => false,
+    };
+    let mut mantissa: u64 = 0;
+    let int_start = i;
+    while i < n {
+        let d = raw[i].wrapping_sub(b'0');
+        if d > 9 {
+            break;
+        }
+        mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
+        i += 1;
+    }
+    let int_digits = i - int_start;
+    let mut frac = 0usize;
+    if i < n && (raw[i] == b'.' || decimal_comma && raw[i] == b',') {
+        i += 1;
+        let frac_start = i;
+        while i < n {
+            let d = raw[i].wrapping_sub(b'0');
+            if d > 9 {
+                break;
+            }
+            mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
+            i += 1;
+        }
+        frac = i - frac_start;
+    }
+    let digits = int_digits + frac;
+    if i != n || digits == 0 || digits > 15 {
+        return None;
+    }
+    let v = mantissa as f64 / POW10[frac];
+    Some(if neg { -v } else { v })
+}
+
 /// Classifies a cell's text, reading a decimal comma when `decimal_comma`.
 pub(crate) fn parse_cell(raw: &str, decimal_comma: bool) -> Cell {
     let s = raw.trim();
@@ -253,31 +336,54 @@ pub(crate) fn parse_cell(raw: &str, decimal_comma: bool) -> Cell {
 /// # Errors
 /// A [`LoadError`] naming the file, and where it applies the row and column.
 pub fn load(path: &Path, options: &LoadOptions) -> Result<Lot, LoadError> {
+    use std::io::Read as _;
     let display = path.display().to_string();
-    let bytes = std::fs::read(path)
-        .map_err(|e| LoadError::new(&display, LoadErrorKind::Io(e.to_string())))?;
-    load_bytes(&display, &bytes, options)
+    let io = |e: std::io::Error| LoadError::new(&display, LoadErrorKind::Io(e.to_string()));
+    let mut magic = [0u8; 4];
+    let got = std::fs::File::open(path)
+        .and_then(|mut f| f.read(&mut magic))
+        .map_err(io)?;
+    if is_spreadsheet(&display, &magic[..got]) {
+        let bytes = std::fs::read(path).map_err(io)?;
+        return load_bytes(&display, &bytes, options);
+    }
+    // Text is read from disk in chunks: memory holds the numbers, not the file.
+    let provenance = new_provenance(&display, String::new(), 0, options);
+    let lot = delimited::read_file(&display, path, options, provenance)?;
+    Ok(finish_lot(&display, lot))
 }
 
-/// Reads a lot from bytes already in memory (`path` names it in messages and provenance).
-///
-/// # Errors
-/// As [`load`].
-pub fn load_bytes(path: &str, bytes: &[u8], options: &LoadOptions) -> Result<Lot, LoadError> {
+fn extension(path: &str) -> String {
+    Path::new(path)
+        .extension()
+        .map(|e| e.to_string_lossy().to_ascii_lowercase())
+        .unwrap_or_default()
+}
+
+/// Spreadsheet by extension, or by the zip / OLE signature at the start of the file.
+fn is_spreadsheet(path: &str, head: &[u8]) -> bool {
+    matches!(
+        extension(path).as_str(),
+        "xlsx" | "xlsm" | "xlsb" | "xls" | "ods"
+    ) || head.starts_with(b"PK\x03\x04")
+        || head.starts_with(&[0xD0, 0xCF, 0x11, 0xE0])
+}
+
+fn new_provenance(
+    path: &str,
+    sha256: String,
+    size_bytes: u64,
+    options: &LoadOptions,
+) -> Provenance {
     let file_name = Path::new(path)
         .file_name()
         .map(|s| s.to_string_lossy().into_owned())
         .unwrap_or_else(|| path.to_string());
-    let stem = Path::new(path)
-        .file_stem()
-        .map(|s| s.to_string_lossy().into_owned())
-        .unwrap_or_else(|| file_name.clone());
-    let sha256 = hex(&Sha256::digest(bytes));
-    let provenance = Provenance {
+    Provenance {
         path: path.to_string(),
         file_name,
         sha256,
-        size_bytes: bytes.len() as u64,
+        size_bytes,
         format: String::new(),
         delimiter: None,
         decimal_comma: false,
@@ -287,22 +393,36 @@ pub fn load_bytes(path: &str, bytes: &[u8], options: &LoadOptions) -> Result<Lot
         rows_read: 0,
         notes: Vec::new(),
         forced_labels: options.labels.clone(),
-    };
-    let ext = Path::new(path)
-        .extension()
-        .map(|e| e.to_string_lossy().to_ascii_lowercase())
-        .unwrap_or_default();
-    let is_zip = bytes.starts_with(b"PK\x03\x04");
-    let is_ole = bytes.starts_with(&[0xD0, 0xCF, 0x11, 0xE0]);
-    let mut lot =
-        if matches!(ext.as_str(), "xlsx" | "xlsm" | "xlsb" | "xls" | "ods") || is_zip || is_ole {
-            sheet::read(path, bytes, &ext, options, provenance)?
-        } else {
-            delimited::read(path, bytes, options, provenance)?
-        };
-    lot.name = stem;
+    }
+}
+
+fn finish_lot(path: &str, mut lot: Lot) -> Lot {
+    lot.name = Path::new(path)
+        .file_stem()
+        .map(|s| s.to_string_lossy().into_owned())
+        .unwrap_or_else(|| lot.provenance.file_name.clone());
     lot.provenance.rows_read = lot.rows.len();
-    Ok(lot)
+    lot
+}
+
+/// Reads a lot from bytes already in memory (`path` names it in messages and provenance).
+///
+/// # Errors
+/// As [`load`].
+pub fn load_bytes(path: &str, bytes: &[u8], options: &LoadOptions) -> Result<Lot, LoadError> {
+    let provenance = new_provenance(
+        path,
+        hex(&Sha256::digest(bytes)),
+        bytes.len() as u64,
+        options,
+    );
+    let ext = extension(path);
+    let lot = if is_spreadsheet(path, bytes) {
+        sheet::read(path, bytes, &ext, options, provenance)?
+    } else {
+        delimited::read(path, bytes, options, provenance)?
+    };
+    Ok(finish_lot(path, lot))
 }
 
 /// Lower-case hex of bytes.
@@ -422,5 +542,48 @@ mod tests {
         assert_eq!(parse_cell("+3e-2", false), Cell::Number(0.03));
         assert_eq!(parse_cell("HB-001", false), Cell::Text);
         assert_eq!(match_key(" Bore  Diameter"), "borediameter");
+    }
+
+    #[test]
+    fn fast_path_equals_the_standard_parser() {
+        // Property: the fast path gives exactly what str::parse gives.
+        let mut state = 12345u64;
+        for _ in 0..20_000 {
+            state = state
+                .wrapping_mul(6364136223846793005)
+                .wrapping_add(1442695040888963407);
+            let digits = (state >> 33) % 10_000_000_000;
+            let frac = ((state >> 20) % 12) as usize;
+            let s = format!("{digits}");
+            let text = if frac > 0 && frac < s.len() {
+                format!("{}.{}", &s[..s.len() - frac], &s[s.len() - frac..])
+            } else {
+                s
+            };
+            let want: f64 = text.parse().unwrap();
+            assert_eq!(
+                parse_cell_bytes(text.as_bytes(), false),
+                Cell::Number(want),
+                "{text}"
+            );
+            let neg = format!("-{text}");
+            assert_eq!(
+                parse_cell_bytes(neg.as_bytes(), false),
+                Cell::Number(-want),
+                "{neg}"
+            );
+        }
+        assert_eq!(parse_cell_bytes(b" 12,5 ", true), Cell::Number(12.5));
+        assert_eq!(parse_cell_bytes(b"12,5", false), Cell::Text);
+        assert_eq!(parse_cell_bytes(b".5", false), Cell::Number(0.5));
+        assert_eq!(parse_cell_bytes(b"5.", false), Cell::Number(5.0));
+        assert_eq!(parse_cell_bytes(b"-", false), Cell::Missing);
+        assert_eq!(parse_cell_bytes(b".", false), Cell::Text);
+        assert_eq!(parse_cell_bytes(b"1e5", false), Cell::Number(1e5));
+        assert_eq!(parse_cell_bytes(b"NA", false), Cell::Missing);
+        assert_eq!(
+            parse_cell_bytes(b"12345678901234567890", false),
+            Cell::Number(12345678901234567890.0)
+        );
     }
 }

@@ -255,7 +255,10 @@ fn interval_chart(r: &Value) -> String {
     if ivs.is_empty() {
         return String::new();
     }
-    let sd: Vec<f64> = pcs.iter().map(|c| num(&c["pooled_sd"])).collect();
+    // A record edited by hand may disagree with itself: missing SDs draw nothing.
+    let sd: Vec<f64> = (0..ivs.len())
+        .map(|k| pcs.get(k).map_or(f64::NAN, |c| num(&c["pooled_sd"])))
+        .collect();
     let mut lo: f64 = 0.0;
     let mut hi: f64 = 0.0;
     for (k, iv) in ivs.iter().enumerate() {
@@ -263,6 +266,9 @@ fn interval_chart(r: &Value) -> String {
             lo = lo.min(v / sd[k]);
             hi = hi.max(v / sd[k]);
         }
+    }
+    if !(lo.is_finite() && hi.is_finite()) {
+        return String::new();
     }
     let pad = 0.05 * (hi - lo).max(1e-9);
     let (lo, hi) = (lo - pad, hi + pad);

@@ -2,7 +2,7 @@
 //! multivariate skewness and kurtosis, outliers by squared Mahalanobis distance, and the
 //! approximate-df test for unequal covariance matrices.
 
-use nalgebra::{Cholesky, DMatrix, DVector, Dyn};
+use nalgebra::{Cholesky, DMatrix, DVector};
 use serde::{Deserialize, Serialize};
 
 use super::dist;
@@ -165,41 +165,51 @@ pub struct Mardia {
     pub kurtosis_p: f64,
 }
 
-/// Whitens centred data by the divisor-n covariance: row-major `n × p` values of `zᵢ`.
-/// `None` when the covariance is singular.
-pub fn whiten(centred: &DMatrix<f64>) -> Option<Vec<f64>> {
-    let (n, p) = centred.shape();
+/// Whitens centred data in place by the divisor-n covariance `S̃ = L Lᵀ` (each row becomes
+/// `L⁻¹ xᵢ`, computed on the correlation scale). False, leaving the data unusable, when the
+/// covariance is singular.
+pub fn whiten_in_place(c: &mut DMatrix<f64>) -> bool {
+    let (n, p) = c.shape();
     if n == 0 {
-        return None;
+        return false;
     }
-    let cov = centred.tr_mul(centred) / n as f64;
+    let cov = c.tr_mul(c) / n as f64;
     let sd: Vec<f64> = (0..p).map(|k| cov[(k, k)].sqrt()).collect();
-    if sd.iter().any(|&s| !crate::stats::positive(s)) {
-        return None;
+    if sd.iter().any(|&s| !super::positive(s)) {
+        return false;
     }
     let corr = DMatrix::from_fn(p, p, |i, j| cov[(i, j)] / (sd[i] * sd[j]));
-    let chol: Cholesky<f64, Dyn> = Cholesky::new(corr)?;
+    let Some(chol) = Cholesky::new(corr) else {
+        return false;
+    };
     let l = chol.l();
-    let mut out = vec![0.0; n * p];
-    let mut y = DVector::zeros(p);
-    for i in 0..n {
-        for k in 0..p {
-            y[k] = centred[(i, k)] / sd[k];
-        }
-        // Forward substitution with the lower factor.
-        for a in 0..p {
-            let mut s = y[a];
-            for b in 0..a {
-                s -= l[(a, b)] * out[i * p + b];
+    for (k, s) in sd.iter().enumerate() {
+        c.column_mut(k).unscale_mut(*s);
+    }
+    // Forward substitution, a column at a time: z_a = (y_a − Σ_{b<a} L_ab z_b) / L_aa.
+    let data = c.as_mut_slice();
+    for a in 0..p {
+        let (done, rest) = data.split_at_mut(a * n);
+        let za = &mut rest[..n];
+        for b in 0..a {
+            let lab = l[(a, b)];
+            if lab != 0.0 {
+                for (x, y) in za.iter_mut().zip(&done[b * n..(b + 1) * n]) {
+                    *x -= lab * y;
+                }
             }
-            out[i * p + a] = s / l[(a, a)];
+        }
+        let laa = l[(a, a)];
+        for x in za.iter_mut() {
+            *x /= laa;
         }
     }
-    Some(out)
+    true
 }
 
-/// Mardia's statistics from whitened row-major data (`n` rows of `p`).
-pub fn mardia(lot: &str, z: &[f64], n: usize, p: usize) -> Mardia {
+/// Mardia's statistics from whitened units (`n × p`, one row per unit).
+pub fn mardia(lot: &str, z: &DMatrix<f64>) -> Mardia {
+    let (n, p) = z.shape();
     // Upper-triangle entries (a ≤ b ≤ c) of the symmetric tensor, with their multiplicity.
     let mut weights = Vec::new();
     for a in 0..p {
@@ -218,7 +228,11 @@ pub fn mardia(lot: &str, z: &[f64], n: usize, p: usize) -> Mardia {
     }
     let mut tensor = vec![0.0; weights.len()];
     let mut b2_sum = 0.0;
-    for row in z.chunks_exact(p) {
+    let mut row = vec![0.0; p];
+    for i in 0..n {
+        for (k, r) in row.iter_mut().enumerate() {
+            *r = z[(i, k)];
+        }
         let mut k = 0;
         for a in 0..p {
             let za = row[a];
@@ -274,7 +288,8 @@ pub struct Outlier {
 /// probability is below `alpha / n` (Bonferroni over the lot's units: common practice, so
 /// that a big lot does not flag alpha of its units by chance). Returns the cutoff on d² and
 /// the flagged units, largest distance first.
-pub fn outliers(lot: usize, z: &[f64], n: usize, p: usize, alpha: f64) -> (f64, Vec<Outlier>) {
+pub fn outliers(lot: usize, z: &DMatrix<f64>, alpha: f64) -> (f64, Vec<Outlier>) {
+    let (n, p) = z.shape();
     let nf = n as f64;
     let (a, b) = (p as f64 / 2.0, (nf - p as f64 - 1.0) / 2.0);
     if b <= 0.0 {
@@ -283,12 +298,19 @@ pub fn outliers(lot: usize, z: &[f64], n: usize, p: usize, alpha: f64) -> (f64, 
     let scale = (nf - 1.0) * (nf - 1.0) / nf;
     let q = dist::beta_isf(alpha / nf, a, b);
     let cutoff = q * scale;
-    let mut out: Vec<Outlier> = z
-        .chunks_exact(p)
+    // ‖zᵢ‖², accumulated a column at a time.
+    let mut norms = vec![0.0; n];
+    for col in z.column_iter() {
+        for (acc, v) in norms.iter_mut().zip(col.iter()) {
+            *acc += v * v;
+        }
+    }
+    let mut out: Vec<Outlier> = norms
+        .iter()
         .enumerate()
-        .filter_map(|(i, row)| {
+        .filter_map(|(i, &r2)| {
             // ‖z‖² is on the divisor-n scale; d² on the divisor-(n−1) scale is (n−1)/n of it.
-            let d2 = row.iter().map(|v| v * v).sum::<f64>() * (nf - 1.0) / nf;
+            let d2 = r2 * (nf - 1.0) / nf;
             (d2 > cutoff).then(|| {
                 let u = (d2 / scale).min(1.0);
                 Outlier {

@@ -37,8 +37,20 @@ pub fn qnorm(p: f64) -> f64 {
     -std::f64::consts::SQRT_2 * erf::erfc_inv(2.0 * p)
 }
 
-/// Shapiro–Wilk W and p-value; `None` for fewer than 3 units or no spread.
+/// Most units the test is computed for: Royston's approximation is validated up to 5000.
+pub const MAX_UNITS: usize = 5000;
+
+/// Shapiro–Wilk W and p-value; `None` for fewer than 3 units, more than [`MAX_UNITS`], or no
+/// spread.
 pub fn shapiro_wilk(values: &[f64]) -> Option<ShapiroWilk> {
+    if values.len() > MAX_UNITS {
+        return None;
+    }
+    shapiro_wilk_any(values)
+}
+
+/// Shapiro–Wilk for any number of units (the p-value is flagged beyond [`MAX_UNITS`]).
+pub fn shapiro_wilk_any(values: &[f64]) -> Option<ShapiroWilk> {
     const G: [f64; 2] = [-2.273, 0.459];
     const C1: [f64; 6] = [0.0, 0.221157, -0.147981, -2.07119, 4.434685, -2.706056];
     const C2: [f64; 6] = [0.0, 0.042981, -0.293762, -1.752461, 5.682633, -3.582633];

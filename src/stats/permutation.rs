@@ -3,9 +3,9 @@
 //! # Formula
 //! `p = (1 + #{T²* ≥ T²}) / (1 + B)` over `B` random relabellings of the units (seeded).
 //! The total cross-product matrix `T` of the pooled units does not change under relabelling,
-//! and T² is an increasing function of `dᵀ T⁻¹ d`. Whitening all units once by `T` (so that
-//! they sum to zero) makes `dᵀ T⁻¹ d` proportional to `‖s‖²`, with `s` the sum of the whitened
-//! units given to the smaller lot: each permutation costs one group sum. Permutation `k` draws
+//! and T² is an increasing function of `dᵀ T⁻¹ d`. With all units centred on their grand mean
+//! and `T = L Lᵀ`, `dᵀ T⁻¹ d` is proportional to `‖L⁻¹ s‖²`, `s` the sum of the units given to
+//! the smaller lot: each permutation costs one group sum and one small triangular solve. Permutation `k` draws
 //! its relabelling from its own seeded stream, so the p-value does not depend on how the work
 //! is split across threads. Exchangeability under the null is assumed: with unequal
 //! covariance matrices the permutation test is not exact for equal means (common practice:
@@ -16,7 +16,6 @@ use std::sync::atomic::{AtomicBool, AtomicUsize, Ordering};
 use nalgebra::{DMatrix, DVector};
 use serde::{Deserialize, Serialize};
 
-use super::checks::whiten;
 use super::hotelling::{Pooled, two_sample};
 use super::moments::LotMoments;
 
@@ -81,6 +80,11 @@ fn undo(idx: &mut [usize], swaps: &[(usize, usize)]) {
 
 /// Permutation p-value for two lots of unit data. `keep_going` receives the fraction done and
 /// returns false to cancel (then `None`).
+///
+/// The units are centred on their grand mean once, in a single row-major copy; the total
+/// cross-product matrix `T = L Lᵀ` is factored once. A relabelling's statistic is
+/// `‖L⁻¹ s‖²` with `s` the sum of the units given to the smaller lot — whitening is linear,
+/// so whitening the sum equals summing whitened units, without a second copy of the data.
 pub fn permutation_test(
     x: &DMatrix<f64>,
     y: &DMatrix<f64>,
@@ -94,41 +98,63 @@ pub fn permutation_test(
     if n1 == 0 || n2 == 0 || p == 0 || permutations == 0 {
         return None;
     }
-    // All units, shifted by the first one, centred on the grand mean.
-    let mut all = DMatrix::<f64>::zeros(n, p);
+    // All units, row-major, shifted by the first one, centred on the grand mean.
+    let mut rows = vec![0.0; n * p];
     for k in 0..p {
         let o = x[(0, k)];
         let mut sum = 0.0;
-        for i in 0..n1 {
-            all[(i, k)] = x[(i, k)] - o;
-            sum += all[(i, k)];
-        }
-        for i in 0..n2 {
-            all[(n1 + i, k)] = y[(i, k)] - o;
-            sum += all[(n1 + i, k)];
+        for (i, v) in x.column(k).iter().chain(y.column(k).iter()).enumerate() {
+            let s = v - o;
+            rows[i * p + k] = s;
+            sum += s;
         }
         let mean = sum / n as f64;
         for i in 0..n {
-            all[(i, k)] -= mean;
+            rows[i * p + k] -= mean;
         }
     }
-    let z = whiten(&all)?;
-    drop(all);
+    // Total cross-products, on the correlation scale for a well-conditioned factor.
+    let mut total = DMatrix::<f64>::zeros(p, p);
+    for r in rows.chunks_exact(p) {
+        for a in 0..p {
+            for b in 0..=a {
+                total[(a, b)] += r[a] * r[b];
+            }
+        }
+    }
+    for a in 0..p {
+        for b in 0..a {
+            total[(b, a)] = total[(a, b)];
+        }
+    }
+    let sd: Vec<f64> = (0..p).map(|k| total[(k, k)].sqrt()).collect();
+    if sd.iter().any(|&v| !super::positive(v)) {
+        return None;
+    }
+    let corr = DMatrix::from_fn(p, p, |a, b| total[(a, b)] / (sd[a] * sd[b]));
+    let l = nalgebra::Cholesky::new(corr)?.l();
+    let stat = |s: &[f64], w: &mut [f64]| -> f64 {
+        // ‖L⁻¹ D⁻¹ s‖² by forward substitution.
+        for a in 0..p {
+            let mut v = s[a] / sd[a];
+            for b in 0..a {
+                v -= l[(a, b)] * w[b];
+            }
+            w[a] = v / l[(a, a)];
+        }
+        w.iter().map(|v| v * v).sum()
+    };
     // Sum over the smaller lot: with the grand mean removed, the other lot's sum is −s.
     let (m, first_small) = if n1 <= n2 { (n1, true) } else { (n2, false) };
-    let stat = |rows: &mut dyn Iterator<Item = usize>| -> f64 {
+    let observed = {
+        let range = if first_small { 0..n1 } else { n1..n };
         let mut s = vec![0.0; p];
-        for r in rows {
-            for (acc, v) in s.iter_mut().zip(&z[r * p..(r + 1) * p]) {
+        for r in range {
+            for (acc, v) in s.iter_mut().zip(&rows[r * p..(r + 1) * p]) {
                 *acc += v;
             }
         }
-        s.iter().map(|v| v * v).sum()
-    };
-    let observed = if first_small {
-        stat(&mut (0..n1))
-    } else {
-        stat(&mut (n1..n))
+        stat(&s, &mut vec![0.0; p])
     };
     // Ties within rounding count as reaching the observed value.
     let threshold = observed * (1.0 - 1e-12);
@@ -140,11 +166,12 @@ pub fn permutation_test(
     let exceed = AtomicUsize::new(0);
     std::thread::scope(|scope| {
         for t in 0..threads {
-            let (z, done, stop, exceed) = (&z, &done, &stop, &exceed);
+            let (rows, done, stop, exceed, stat) = (&rows, &done, &stop, &exceed, &stat);
             scope.spawn(move || {
                 let mut idx: Vec<usize> = (0..n).collect();
                 let mut swaps = Vec::with_capacity(m);
                 let mut s = vec![0.0; p];
+                let mut w = vec![0.0; p];
                 let mut local = 0usize;
                 let mut k = t;
                 while k < permutations {
@@ -155,13 +182,12 @@ pub fn permutation_test(
                     draw(&mut idx, m, &mut rng, &mut swaps);
                     s.iter_mut().for_each(|v| *v = 0.0);
                     for &r in &idx[..m] {
-                        for (acc, v) in s.iter_mut().zip(&z[r * p..(r + 1) * p]) {
+                        for (acc, v) in s.iter_mut().zip(&rows[r * p..(r + 1) * p]) {
                             *acc += v;
                         }
                     }
                     undo(&mut idx, &swaps);
-                    let q: f64 = s.iter().map(|v| v * v).sum();
-                    if q >= threshold {
+                    if stat(&s, &mut w) >= threshold {
                         local += 1;
                     }
                     let d = done.fetch_add(1, Ordering::Relaxed) + 1;
