@@ -9,7 +9,7 @@
 use std::time::Instant;
 
 use lotshift::stats::checks::{mardia, whiten_in_place};
-use lotshift::stats::permutation::{SplitMix64, permutation_test, permutation_test_refit};
+use lotshift::stats::permutation::{SplitMix64, permutation_test_data, permutation_test_refit};
 use nalgebra::DMatrix;
 
 fn normal_matrix(n: usize, p: usize, seed: u64) -> DMatrix<f64> {
@@ -86,13 +86,13 @@ fn main() {
     let a = normal_matrix(5_000, 10, 2);
     let b = normal_matrix(5_000, 10, 3).add_scalar(0.02);
     let t = Instant::now();
-    let perm = permutation_test(&a, &b, 9_999, 11, &|_| true).expect("permutation");
+    let perm = permutation_test_data(&a, &b, 9_999, 11).expect("permutation");
     let fast_s = t.elapsed().as_secs_f64();
     let k = 100;
     let t = Instant::now();
     let slow = permutation_test_refit(&a, &b, k, 11).expect("refit");
     let slow_s = t.elapsed().as_secs_f64() * 9_999.0 / k as f64;
-    let same = permutation_test(&a, &b, k, 11, &|_| true).expect("permutation");
+    let same = permutation_test_data(&a, &b, k, 11).expect("permutation");
     assert_eq!(
         same.at_least_observed, slow.at_least_observed,
         "identical counts for the same seed"

@@ -433,7 +433,40 @@ fn check_common(names: &[String], p1: usize, p2: usize, alpha: f64) -> Result<()
     Ok(())
 }
 
-/// Compares two lots from their unit data.
+fn validate(
+    characteristics: &[String],
+    shapes: [(usize, usize); 2],
+    names: [&str; 2],
+    alpha: f64,
+) -> Result<(), EngineError> {
+    let p = shapes[0].1;
+    check_common(characteristics, p, shapes[1].1, alpha)?;
+    for (shape, name) in shapes.iter().zip(names) {
+        if shape.0 == 0 {
+            return Err(EngineError::EmptyLot(name.to_string()));
+        }
+    }
+    // Checked before any cross-product: with thousands of characteristics and a few units the
+    // p × p matrices alone would be large.
+    let (n1, n2) = (shapes[0].0, shapes[1].0);
+    if n1 + n2 < p + 2 {
+        return Err(EngineError::TooFewUnits { n1, n2, p });
+    }
+    Ok(())
+}
+
+fn summaries_of(data: [&DMatrix<f64>; 2], m: [&LotMoments; 2]) -> Vec<[ColumnSummary; 2]> {
+    (0..data[0].ncols())
+        .map(|k| {
+            [0, 1].map(|g| {
+                let mean = m[g].origin[k] + m[g].offset[k];
+                column_summary(data[g].column(k).as_slice(), mean, m[g].ssp[(k, k)])
+            })
+        })
+        .collect()
+}
+
+/// Compares two lots from their unit data (borrowed: the engine works on centred copies).
 ///
 /// # Errors
 /// Too few units for the number of characteristics, a constant characteristic, collinear
@@ -445,46 +478,109 @@ pub fn compare(
     settings: &Settings,
     progress: &dyn Progress,
 ) -> Result<Comparison, EngineError> {
-    let p = lots[0].data.ncols();
-    check_common(characteristics, p, lots[1].data.ncols(), settings.alpha)?;
-    for lot in &lots {
-        if lot.data.nrows() == 0 {
-            return Err(EngineError::EmptyLot(lot.name.to_string()));
-        }
-    }
-    // Checked before any cross-product: with thousands of characteristics and a few units the
-    // p × p matrices alone would be large.
-    let (n1, n2) = (lots[0].data.nrows(), lots[1].data.nrows());
-    if n1 + n2 < p + 2 {
-        return Err(EngineError::TooFewUnits { n1, n2, p });
-    }
+    validate(
+        characteristics,
+        [lots[0].data.shape(), lots[1].data.shape()],
+        [lots[0].name, lots[1].name],
+        settings.alpha,
+    )?;
     progress.report("moments", 0.0);
     // Common origin: the first unit of the first lot.
     let origin: DVector<f64> = lots[0].data.row(0).transpose();
     let (m1, c1) = LotMoments::from_data_centred(lots[0].data, &origin);
-    if progress.cancelled() {
-        return Err(EngineError::Cancelled);
-    }
     let (m2, c2) = LotMoments::from_data_centred(lots[1].data, &origin);
     if progress.cancelled() {
         return Err(EngineError::Cancelled);
     }
-    progress.report("summaries", 0.2);
-    let summaries: Vec<[ColumnSummary; 2]> = (0..p)
-        .map(|k| {
-            let mean1 = m1.origin[k] + m1.offset[k];
-            let mean2 = m2.origin[k] + m2.offset[k];
-            [
-                column_summary(lots[0].data.column(k).as_slice(), mean1, m1.ssp[(k, k)]),
-                column_summary(lots[1].data.column(k).as_slice(), mean2, m2.ssp[(k, k)]),
-            ]
-        })
-        .collect();
-    progress.report("test", 0.4);
-    let mut out = finish(
+    let summaries = summaries_of([lots[0].data, lots[1].data], [&m1, &m2]);
+    compare_centred(
         characteristics,
         units,
         [lots[0].name, lots[1].name],
+        [m1, m2],
+        [c1, c2],
+        summaries,
+        settings,
+        progress,
+    )
+}
+
+/// Compares two lots from unit data it may consume: the data are centred in place, so memory
+/// holds one copy of the units (the command line's path for big lots). Gives exactly the
+/// numbers [`compare`] gives.
+///
+/// # Errors
+/// As [`compare`].
+pub fn compare_owned(
+    characteristics: &[String],
+    units: &[Option<String>],
+    names: [&str; 2],
+    data: [DMatrix<f64>; 2],
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Comparison, EngineError> {
+    validate(
+        characteristics,
+        [data[0].shape(), data[1].shape()],
+        names,
+        settings.alpha,
+    )?;
+    progress.report("moments", 0.0);
+    let origin: DVector<f64> = data[0].row(0).transpose();
+    let [mut x, mut y] = data;
+    // Summaries need the values as measured: taken before centring.
+    let pre = [
+        LotMoments::from_data_summary(&x, &origin),
+        LotMoments::from_data_summary(&y, &origin),
+    ];
+    let mut summaries = summaries_of([&x, &y], [&pre[0], &pre[1]]);
+    let m1 = LotMoments::centre_in_place(&mut x, &origin);
+    let m2 = LotMoments::centre_in_place(&mut y, &origin);
+    // Mean and SD from the same moments as the borrowed path, to the last bit.
+    for (k, pair) in summaries.iter_mut().enumerate() {
+        for (sum, m) in pair.iter_mut().zip([&m1, &m2]) {
+            let again = column_summary(&[], m.origin[k] + m.offset[k], m.ssp[(k, k)]);
+            sum.mean = again.mean;
+            sum.sd = if m.n > 1 {
+                (m.ssp[(k, k)] / (m.n - 1) as f64).sqrt()
+            } else {
+                f64::NAN
+            };
+        }
+    }
+    if progress.cancelled() {
+        return Err(EngineError::Cancelled);
+    }
+    compare_centred(
+        characteristics,
+        units,
+        names,
+        [m1, m2],
+        [x, y],
+        summaries,
+        settings,
+        progress,
+    )
+}
+
+#[allow(clippy::too_many_arguments)]
+fn compare_centred(
+    characteristics: &[String],
+    units: &[Option<String>],
+    names: [&str; 2],
+    moments: [LotMoments; 2],
+    centred: [DMatrix<f64>; 2],
+    summaries: Vec<[ColumnSummary; 2]>,
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Comparison, EngineError> {
+    let [m1, m2] = moments;
+    let [c1, c2] = centred;
+    progress.report("test", 0.2);
+    let mut out = finish(
+        characteristics,
+        units,
+        names,
         &m1,
         &m2,
         Some(summaries),
@@ -520,50 +616,38 @@ pub fn compare(
                 Some((wrong[0] + wrong[1]) as f64 / (m1.n + m2.n) as f64);
         }
     }
+    permute_centred(&mut out, [&c1, &c2], &d, settings, progress)?;
     if settings.checks {
-        progress.report("assumption checks", 0.5);
-        // The centred copies are whitened in place: no further copy of the units.
-        unit_checks(
-            &mut out,
-            [lots[0].data, lots[1].data],
-            [c1, c2],
-            settings.alpha,
-        );
+        progress.report("assumption checks", 0.9);
+        // The centred units are whitened in place: no further copy of them.
+        unit_checks(&mut out, [c1, c2], settings.alpha);
         if progress.cancelled() {
             return Err(EngineError::Cancelled);
         }
-    } else {
-        drop((c1, c2));
     }
-    add_permutation(&mut out, [lots[0].data, lots[1].data], settings, progress)?;
     conclude(&mut out);
     progress.report("done", 1.0);
     Ok(out)
 }
 
-/// Adds the permutation p-value (when `settings.permutations > 0`) to a comparison of the
-/// same unit data, and updates the favoured test and the verdict. Split out so the window can
-/// show a result first and the permutation p-value when it is ready.
-///
-/// # Errors
-/// Cancellation.
-pub fn add_permutation(
+fn permute_centred(
     out: &mut Comparison,
-    data: [&DMatrix<f64>; 2],
+    centred: [&DMatrix<f64>; 2],
+    d: &DVector<f64>,
     settings: &Settings,
     progress: &dyn Progress,
 ) -> Result<(), EngineError> {
     if settings.permutations == 0 {
         return Ok(());
     }
-    progress.report("permutations", 0.6);
+    progress.report("permutations", 0.5);
     let keep_going = |f: f64| {
-        progress.report("permutations", 0.6 + 0.4 * f);
+        progress.report("permutations", 0.5 + 0.4 * f);
         !progress.cancelled()
     };
     out.permutation = permutation_test(
-        data[0],
-        data[1],
+        centred,
+        d,
         settings.permutations,
         settings.seed,
         &keep_going,
@@ -573,20 +657,50 @@ pub fn add_permutation(
     }
     out.settings.permutations = settings.permutations;
     out.settings.seed = settings.seed;
+    Ok(())
+}
+
+/// Adds the permutation p-value (when `settings.permutations > 0`) to a comparison of the
+/// same unit data, and updates the favoured test and the verdict. Split out so the window can
+/// show a result first and the permutation p-value when it is ready; it centres the units
+/// exactly as [`compare`] does, so the p-value is the same.
+///
+/// # Errors
+/// Cancellation.
+pub fn add_permutation(
+    out: &mut Comparison,
+    data: [&DMatrix<f64>; 2],
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<(), EngineError> {
+    if settings.permutations == 0 || data[0].nrows() == 0 {
+        return Ok(());
+    }
+    let origin: DVector<f64> = data[0].row(0).transpose();
+    let (m1, c1) = LotMoments::from_data_centred(data[0], &origin);
+    let (m2, c2) = LotMoments::from_data_centred(data[1], &origin);
+    let d = &m1.offset - &m2.offset;
+    permute_centred(out, [&c1, &c2], &d, settings, progress)?;
     conclude(out);
     Ok(())
 }
 
 /// Mardia's tests, Shapiro–Wilk and the outlier screen: the checks that need unit data.
-fn unit_checks(
-    out: &mut Comparison,
-    data: [&DMatrix<f64>; 2],
-    centred: [DMatrix<f64>; 2],
-    alpha: f64,
-) {
+fn unit_checks(out: &mut Comparison, centred: [DMatrix<f64>; 2], alpha: f64) {
     let p = out.characteristics.len();
     let mut cutoff = [f64::NAN; 2];
     let mut flagged = Vec::new();
+    // Shapiro–Wilk is location-invariant: the centred columns serve (and it runs first,
+    // before the whitening below changes them).
+    out.normality = (0..p)
+        .map(|k| NormalityRow {
+            characteristic: out.characteristics[k].clone(),
+            lots: [
+                shapiro_wilk(centred[0].column(k).as_slice()),
+                shapiro_wilk(centred[1].column(k).as_slice()),
+            ],
+        })
+        .collect();
     for (g, mut c) in centred.into_iter().enumerate() {
         if checks::whiten_in_place(&mut c) {
             out.mardia.push(checks::mardia(&out.lots[g].name, &c));
@@ -599,15 +713,6 @@ fn unit_checks(
         cutoff,
         units: flagged,
     });
-    out.normality = (0..p)
-        .map(|k| NormalityRow {
-            characteristic: out.characteristics[k].clone(),
-            lots: [
-                shapiro_wilk(data[0].column(k).as_slice()),
-                shapiro_wilk(data[1].column(k).as_slice()),
-            ],
-        })
-        .collect();
 }
 
 /// Compares two lots from published summary statistics only (n, mean vector, covariance).

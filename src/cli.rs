@@ -5,7 +5,7 @@ use std::process::ExitCode;
 
 use clap::{Args, Parser, Subcommand};
 
-use crate::analysis::{self, LotData, Settings, Silent, SummaryLot, format_sig};
+use crate::analysis::{self, Settings, Silent, SummaryLot, format_sig};
 use crate::data::{self, ColumnData, LoadOptions, Lot, Selection};
 use crate::report::{self, Record, html, sign};
 
@@ -303,11 +303,9 @@ fn compare(a: CompareArgs) -> CliResult {
         only: a.lots.characteristics.clone(),
         exclude: a.lots.exclude.clone(),
     };
-    let prepared = data::prepare(&lots[0], &lots[1], &selection).map_err(|e| e.to_string())?;
-    // The unit matrices hold the numbers from here on.
-    for lot in &mut lots {
-        lot.release_numbers();
-    }
+    // The unit matrices take the numbers over, and the engine centres them in place: memory
+    // holds one copy of the units.
+    let mut prepared = data::prepare_releasing(&mut lots, &selection).map_err(|e| e.to_string())?;
     let settings = Settings {
         alpha: a.alpha,
         leave_one_out: !a.no_holdout,
@@ -315,23 +313,7 @@ fn compare(a: CompareArgs) -> CliResult {
         permutations: a.permutations,
         seed: a.seed,
     };
-    let c = analysis::compare(
-        &prepared.characteristics,
-        &prepared.units,
-        [
-            LotData {
-                name: &prepared.lots[0].name,
-                data: &prepared.lots[0].data,
-            },
-            LotData {
-                name: &prepared.lots[1].name,
-                data: &prepared.lots[1].data,
-            },
-        ],
-        &settings,
-        &Silent,
-    )
-    .map_err(|e| e.to_string())?;
+    let c = compare_prepared(&mut prepared, &settings)?;
     let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     record.analysed_at = Some(sign::now_rfc3339());
     // Sign before printing anything, so a bad key or meaning stops with nothing written.
@@ -525,24 +507,9 @@ fn verify(a: VerifyArgs) -> CliResult {
         only: Some(characteristics),
         exclude: Vec::new(),
     };
-    let prepared = data::prepare(&lots[0], &lots[1], &selection).map_err(|e| e.to_string())?;
-    let c = analysis::compare(
-        &prepared.characteristics,
-        &prepared.units,
-        [
-            LotData {
-                name: &prepared.lots[0].name,
-                data: &prepared.lots[0].data,
-            },
-            LotData {
-                name: &prepared.lots[1].name,
-                data: &prepared.lots[1].data,
-            },
-        ],
-        &settings,
-        &Silent,
-    )
-    .map_err(|e| e.to_string())?;
+    let mut lots = lots;
+    let mut prepared = data::prepare_releasing(&mut lots, &selection).map_err(|e| e.to_string())?;
+    let c = compare_prepared(&mut prepared, &settings)?;
     let recomputed = serde_json::to_value(Record::new(&c, Some((&prepared, [&lots[0], &lots[1]]))))
         .map_err(|e| e.to_string())?;
     if let Some(diff) = sign::first_difference(rec, &recomputed) {
@@ -578,6 +545,27 @@ fn report_html(a: ReportArgs) -> CliResult {
         .map_err(|e| format!("the report was not written: {e}"))?;
     outln!("report written to {}", a.out.display());
     Ok(ExitCode::SUCCESS)
+}
+
+/// Runs the engine on prepared lots, moving their unit matrices in (centred in place).
+fn compare_prepared(
+    prepared: &mut data::Prepared,
+    settings: &Settings,
+) -> Result<analysis::Comparison, String> {
+    let data = [
+        std::mem::replace(&mut prepared.lots[0].data, nalgebra::DMatrix::zeros(0, 0)),
+        std::mem::replace(&mut prepared.lots[1].data, nalgebra::DMatrix::zeros(0, 0)),
+    ];
+    let names = [prepared.lots[0].name.clone(), prepared.lots[1].name.clone()];
+    analysis::compare_owned(
+        &prepared.characteristics,
+        &prepared.units,
+        [&names[0], &names[1]],
+        data,
+        settings,
+        &Silent,
+    )
+    .map_err(|e| e.to_string())
 }
 
 fn compare_stats(a: StatsArgs) -> CliResult {

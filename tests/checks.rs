@@ -3,7 +3,7 @@
 //! exact enumeration, and located outliers.
 
 use lotshift::analysis::{self, LotData, Settings, Silent};
-use lotshift::stats::permutation::{SplitMix64, permutation_test};
+use lotshift::stats::permutation::{SplitMix64, permutation_test_data};
 use lotshift::stats::power;
 use nalgebra::DMatrix;
 
@@ -133,7 +133,7 @@ fn permutation_p_values_are_uniform_under_the_null() {
         let x = rng.lot(12, 2, 1.0, 0.0);
         let y = rng.lot(15, 2, 1.0, 0.0);
         ps.push(
-            permutation_test(&x, &y, 199, t as u64, &|_| true)
+            permutation_test_data(&x, &y, 199, t as u64)
                 .unwrap()
                 .p_value,
         );
@@ -186,9 +186,7 @@ fn permutation_p_value_agrees_with_full_enumeration() {
     }
     assert_eq!(total, 70);
     let exact = reach as f64 / total as f64;
-    let mc = permutation_test(&x, &y, 20_000, 7, &|_| true)
-        .unwrap()
-        .p_value;
+    let mc = permutation_test_data(&x, &y, 20_000, 7).unwrap().p_value;
     assert!(
         (mc - exact).abs() < band(exact, 20_000) + 1e-4,
         "exact {exact}, Monte Carlo {mc}"

@@ -8,7 +8,7 @@ mod sheet;
 mod split;
 
 pub use error::{LoadError, LoadErrorKind, PrepareError};
-pub use pair::{Prepared, PreparedLot, Selection, Unmatched, prepare};
+pub use pair::{Prepared, PreparedLot, Selection, Unmatched, prepare, prepare_releasing};
 pub use split::{lot_values, split_lot};
 
 use std::path::Path;

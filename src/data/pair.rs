@@ -55,12 +55,57 @@ pub struct Prepared {
     pub unmatched: Vec<Unmatched>,
 }
 
+/// The matched columns, before any number is copied.
+struct Plan {
+    characteristics: Vec<String>,
+    units: Vec<Option<String>>,
+    unmatched: Vec<Unmatched>,
+    /// Column indices in the first and the second lot.
+    pairs: Vec<(usize, usize)>,
+}
+
 /// Matches the lots' columns and builds the unit matrices.
 ///
 /// # Errors
 /// No column in common, a requested characteristic that is not numeric in both lots,
 /// conflicting units, or nothing left after exclusions.
 pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, PrepareError> {
+    let plan = plan(a, b, selection)?;
+    let idx_a: Vec<usize> = plan.pairs.iter().map(|p| p.0).collect();
+    let idx_b: Vec<usize> = plan.pairs.iter().map(|p| p.1).collect();
+    Ok(Prepared {
+        characteristics: plan.characteristics,
+        units: plan.units,
+        lots: [build(a, &idx_a), build(b, &idx_b)],
+        unmatched: plan.unmatched,
+    })
+}
+
+/// As [`prepare`], but frees each numeric column of the lots as soon as it is copied into the
+/// unit matrices, so memory never holds the numbers twice (the command line's path for big
+/// lots). The lots keep their labels, rows and provenance.
+///
+/// # Errors
+/// As [`prepare`].
+pub fn prepare_releasing(
+    lots: &mut [Lot; 2],
+    selection: &Selection,
+) -> Result<Prepared, PrepareError> {
+    let plan = plan(&lots[0], &lots[1], selection)?;
+    let idx_a: Vec<usize> = plan.pairs.iter().map(|p| p.0).collect();
+    let idx_b: Vec<usize> = plan.pairs.iter().map(|p| p.1).collect();
+    let [a, b] = lots;
+    let first = build_releasing(a, &idx_a);
+    let second = build_releasing(b, &idx_b);
+    Ok(Prepared {
+        characteristics: plan.characteristics,
+        units: plan.units,
+        lots: [first, second],
+        unmatched: plan.unmatched,
+    })
+}
+
+fn plan(a: &Lot, b: &Lot, selection: &Selection) -> Result<Plan, PrepareError> {
     let lots = [a, b];
     let mut unmatched = Vec::new();
     // Pairs of column indices of numeric columns present in both lots.
@@ -238,7 +283,32 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
         .iter()
         .map(|&(ia, _)| a.columns[ia].name.clone())
         .collect();
-    let build = |lot: &Lot, idx: Vec<usize>| -> PreparedLot {
+    Ok(Plan {
+        characteristics,
+        units,
+        unmatched,
+        pairs,
+    })
+}
+
+fn build(lot: &Lot, idx: &[usize]) -> PreparedLot {
+    let cols: Vec<&[f64]> = idx
+        .iter()
+        .map(|&i| match &lot.columns[i].data {
+            ColumnData::Numeric(v) => v.as_slice(),
+            ColumnData::Text(_) => &[],
+        })
+        .collect();
+    let kept = complete_rows(lot.len(), &cols);
+    let mut data = Vec::with_capacity(kept.len() * cols.len());
+    for c in &cols {
+        data.extend(kept.iter().map(|&r| c[r]));
+    }
+    finish_lot(lot, idx, kept, data)
+}
+
+fn build_releasing(lot: &mut Lot, idx: &[usize]) -> PreparedLot {
+    let kept = {
         let cols: Vec<&[f64]> = idx
             .iter()
             .map(|&i| match &lot.columns[i].data {
@@ -246,36 +316,35 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
                 ColumnData::Text(_) => &[],
             })
             .collect();
-        let n = lot.len();
-        let kept: Vec<usize> = (0..n)
-            .filter(|&r| cols.iter().all(|c| !c[r].is_nan()))
-            .collect();
-        let missing: Vec<usize> = idx.iter().map(|&i| lot.columns[i].missing).collect();
-        let mut data = DMatrix::zeros(kept.len(), cols.len());
-        for (k, c) in cols.iter().enumerate() {
-            let mut dst = data.column_mut(k);
-            for (d, &r) in dst.iter_mut().zip(&kept) {
-                *d = c[r];
-            }
-        }
-        PreparedLot {
-            name: lot.name.clone(),
-            n_read: n,
-            n_excluded: n - kept.len(),
-            kept,
-            data,
-            missing,
-        }
+        complete_rows(lot.len(), &cols)
     };
-    Ok(Prepared {
-        characteristics,
-        units,
-        lots: [
-            build(a, pairs.iter().map(|p| p.0).collect()),
-            build(b, pairs.iter().map(|p| p.1).collect()),
-        ],
-        unmatched,
-    })
+    let mut data = Vec::with_capacity(kept.len() * idx.len());
+    for &i in idx {
+        if let ColumnData::Numeric(v) = &mut lot.columns[i].data {
+            data.extend(kept.iter().map(|&r| v[r]));
+            *v = Vec::new();
+        }
+    }
+    finish_lot(lot, idx, kept, data)
+}
+
+/// Units with a value in every compared characteristic (listwise).
+fn complete_rows(n: usize, cols: &[&[f64]]) -> Vec<usize> {
+    (0..n)
+        .filter(|&r| cols.iter().all(|c| !c[r].is_nan()))
+        .collect()
+}
+
+fn finish_lot(lot: &Lot, idx: &[usize], kept: Vec<usize>, data: Vec<f64>) -> PreparedLot {
+    let n = lot.len();
+    PreparedLot {
+        name: lot.name.clone(),
+        n_read: n,
+        n_excluded: n - kept.len(),
+        data: DMatrix::from_vec(kept.len(), idx.len(), data),
+        kept,
+        missing: idx.iter().map(|&i| lot.columns[i].missing).collect(),
+    }
 }
 
 fn normalize_unit(u: &str) -> String {

@@ -33,29 +33,11 @@ impl LotMoments {
         for k in 0..p {
             let o = origin[k];
             let col = x.column(k);
-            let mut sum = 0.0;
-            let mut scale = 0.0_f64;
-            for &v in col.iter() {
-                let s = v - o;
-                sum += s;
-                scale = scale.max(s.abs());
+            let (m, _, scale) = column_moments(col.as_slice(), o);
+            for (dst, &v) in centred.column_mut(k).iter_mut().zip(col.iter()) {
+                *dst = (v - o) - m;
             }
-            let mean_shift = if n > 0 { sum / n as f64 } else { 0.0 };
-            // Second pass removes the rounding error of the first (corrected two-pass mean).
-            let mut resid = 0.0;
-            for &v in col.iter() {
-                resid += (v - o) - mean_shift;
-            }
-            let mean_shift = if n > 0 {
-                mean_shift + resid / n as f64
-            } else {
-                0.0
-            };
-            let mut out = centred.column_mut(k);
-            for (dst, &v) in out.iter_mut().zip(col.iter()) {
-                *dst = (v - o) - mean_shift;
-            }
-            offset[k] = mean_shift;
+            offset[k] = m;
             spread_scale[k] = scale;
         }
         let ssp = centred.tr_mul(&centred);
@@ -69,6 +51,53 @@ impl LotMoments {
             },
             centred,
         )
+    }
+
+    /// Moments without keeping centred data (for summaries before centring in place).
+    pub fn from_data_summary(x: &DMatrix<f64>, origin: &DVector<f64>) -> Self {
+        let (n, p) = x.shape();
+        let mut offset = DVector::zeros(p);
+        let mut ssp_diag = DVector::zeros(p);
+        let mut spread_scale = DVector::zeros(p);
+        for k in 0..p {
+            let (m, ss, scale) = column_moments(x.column(k).as_slice(), origin[k]);
+            offset[k] = m;
+            ssp_diag[k] = ss;
+            spread_scale[k] = scale;
+        }
+        let _ = n;
+        LotMoments {
+            n,
+            origin: origin.clone(),
+            offset,
+            ssp: DMatrix::from_diagonal(&ssp_diag),
+            spread_scale,
+        }
+    }
+
+    /// Centres `x` in place (`x − origin − offset`, the same arithmetic as
+    /// [`LotMoments::from_data_centred`]) and returns its moments.
+    pub fn centre_in_place(x: &mut DMatrix<f64>, origin: &DVector<f64>) -> Self {
+        let (n, p) = x.shape();
+        let mut offset = DVector::zeros(p);
+        let mut spread_scale = DVector::zeros(p);
+        for k in 0..p {
+            let o = origin[k];
+            let (m, _, scale) = column_moments(x.column(k).as_slice(), o);
+            for v in x.column_mut(k).iter_mut() {
+                *v = (*v - o) - m;
+            }
+            offset[k] = m;
+            spread_scale[k] = scale;
+        }
+        let ssp = x.tr_mul(x);
+        LotMoments {
+            n,
+            origin: origin.clone(),
+            offset,
+            ssp,
+            spread_scale,
+        }
     }
 
     /// From published summary statistics: size, mean vector and unbiased covariance matrix.
@@ -110,6 +139,28 @@ impl LotMoments {
         }
         &self.ssp / (self.n - 1) as f64
     }
+}
+
+/// Mean of `v − o` (a corrected two-pass mean), the centred sum of squares, and the largest
+/// `|v − o|` of one column.
+fn column_moments(col: &[f64], o: f64) -> (f64, f64, f64) {
+    let n = col.len();
+    if n == 0 {
+        return (0.0, 0.0, 0.0);
+    }
+    let mut sum = 0.0;
+    let mut scale = 0.0_f64;
+    for &v in col {
+        let s = v - o;
+        sum += s;
+        scale = scale.max(s.abs());
+    }
+    let mean = sum / n as f64;
+    // Second pass removes the rounding error of the first.
+    let resid: f64 = col.iter().map(|&v| (v - o) - mean).sum();
+    let mean = mean + resid / n as f64;
+    let ss: f64 = col.iter().map(|&v| ((v - o) - mean).powi(2)).sum();
+    (mean, ss, scale)
 }
 
 /// Five-number style summary of one characteristic in one lot.

@@ -86,31 +86,29 @@ fn undo(idx: &mut [usize], swaps: &[(usize, usize)]) {
 /// `‖L⁻¹ s‖²` with `s` the sum of the units given to the smaller lot — whitening is linear,
 /// so whitening the sum equals summing whitened units, without a second copy of the data.
 pub fn permutation_test(
-    x: &DMatrix<f64>,
-    y: &DMatrix<f64>,
+    centred: [&DMatrix<f64>; 2],
+    d: &DVector<f64>,
     permutations: usize,
     seed: u64,
     keep_going: &(dyn Fn(f64) -> bool + Sync),
 ) -> Option<PermutationResult> {
-    let (n1, p) = x.shape();
-    let n2 = y.nrows();
+    let (n1, p) = centred[0].shape();
+    let n2 = centred[1].nrows();
     let n = n1 + n2;
-    if n1 == 0 || n2 == 0 || p == 0 || permutations == 0 {
+    if n1 == 0 || n2 == 0 || p == 0 || permutations == 0 || d.len() != p {
         return None;
     }
-    // All units, row-major, shifted by the first one, centred on the grand mean.
+    // All units, row-major, centred on the grand mean: each lot's centred units moved by its
+    // mean's distance from the grand mean (+n2/N·d for the first lot, −n1/N·d for the second).
     let mut rows = vec![0.0; n * p];
+    let (w1, w2) = (n2 as f64 / n as f64, n1 as f64 / n as f64);
     for k in 0..p {
-        let o = x[(0, k)];
-        let mut sum = 0.0;
-        for (i, v) in x.column(k).iter().chain(y.column(k).iter()).enumerate() {
-            let s = v - o;
-            rows[i * p + k] = s;
-            sum += s;
+        let (s1, s2) = (w1 * d[k], -w2 * d[k]);
+        for (i, v) in centred[0].column(k).iter().enumerate() {
+            rows[i * p + k] = v + s1;
         }
-        let mean = sum / n as f64;
-        for i in 0..n {
-            rows[i * p + k] -= mean;
+        for (i, v) in centred[1].column(k).iter().enumerate() {
+            rows[(n1 + i) * p + k] = v + s2;
         }
     }
     // Total cross-products, on the correlation scale for a well-conditioned factor.
@@ -215,6 +213,24 @@ pub fn permutation_test(
     })
 }
 
+/// The permutation test on unit data: centres the lots (as the analysis does) and runs
+/// [`permutation_test`].
+pub fn permutation_test_data(
+    x: &DMatrix<f64>,
+    y: &DMatrix<f64>,
+    permutations: usize,
+    seed: u64,
+) -> Option<PermutationResult> {
+    if x.nrows() == 0 || y.nrows() == 0 {
+        return None;
+    }
+    let origin: DVector<f64> = x.row(0).transpose();
+    let (m1, c1) = LotMoments::from_data_centred(x, &origin);
+    let (m2, c2) = LotMoments::from_data_centred(y, &origin);
+    let d = &m1.offset - &m2.offset;
+    permutation_test([&c1, &c2], &d, permutations, seed, &|_| true)
+}
+
 /// The slow reference: the same relabellings as [`permutation_test`], each refitted with the
 /// full T² (for tests and the benchmark that shows the speed-up).
 pub fn permutation_test_refit(
@@ -282,10 +298,10 @@ mod tests {
         let mut u = || (rng.next_u64() >> 11) as f64 / (1u64 << 53) as f64;
         let x = DMatrix::from_fn(9, 3, |_, _| u());
         let y = DMatrix::from_fn(13, 3, |i, k| u() + 0.1 * (i % 2) as f64 + 0.05 * k as f64);
-        let fast = permutation_test(&x, &y, 499, 42, &|_| true).unwrap();
+        let fast = permutation_test_data(&x, &y, 499, 42).unwrap();
         let slow = permutation_test_refit(&x, &y, 499, 42).unwrap();
         assert_eq!(fast.at_least_observed, slow.at_least_observed);
         // Reproducible.
-        assert_eq!(permutation_test(&x, &y, 499, 42, &|_| true).unwrap(), fast);
+        assert_eq!(permutation_test_data(&x, &y, 499, 42).unwrap(), fast);
     }
 }
