@@ -253,6 +253,22 @@ pub(crate) fn parse_cell_bytes(raw: &[u8], decimal_comma: bool) -> Cell {
     }
 }
 
+/// Reads ASCII digits from `raw[*i..]` into `mantissa` (wrapping: the caller limits the
+/// count); returns how many.
+#[inline]
+fn digits(raw: &[u8], i: &mut usize, mantissa: &mut u64) -> usize {
+    let start = *i;
+    while let Some(&b) = raw.get(*i) {
+        let d = b.wrapping_sub(b'0');
+        if d > 9 {
+            break;
+        }
+        *mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
+        *i += 1;
+    }
+    *i - start
+}
+
 /// `[-+]digits[.digits]` with at most 15 digits in all, exactly; `None` for anything else.
 #[inline]
 fn fast_decimal(raw: &[u8], decimal_comma: bool) -> Option<f64> {
@@ -270,29 +286,11 @@ fn fast_decimal(raw: &[u8], decimal_comma: bool) -> Option<f64> {
         _ => false,
     };
     let mut mantissa: u64 = 0;
-    let int_start = i;
-    while i < n {
-        let d = raw[i].wrapping_sub(b'0');
-        if d > 9 {
-            break;
-        }
-        mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
-        i += 1;
-    }
-    let int_digits = i - int_start;
+    let int_digits = digits(raw, &mut i, &mut mantissa);
     let mut frac = 0usize;
     if i < n && (raw[i] == b'.' || decimal_comma && raw[i] == b',') {
         i += 1;
-        let frac_start = i;
-        while i < n {
-            let d = raw[i].wrapping_sub(b'0');
-            if d > 9 {
-                break;
-            }
-            mantissa = mantissa.wrapping_mul(10).wrapping_add(u64::from(d));
-            i += 1;
-        }
-        frac = i - frac_start;
+        frac = digits(raw, &mut i, &mut mantissa);
     }
     let digits = int_digits + frac;
     if i != n || digits == 0 || digits > 15 {

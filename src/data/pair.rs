@@ -291,14 +291,18 @@ fn plan(a: &Lot, b: &Lot, selection: &Selection) -> Result<Plan, PrepareError> {
     })
 }
 
-fn build(lot: &Lot, idx: &[usize]) -> PreparedLot {
-    let cols: Vec<&[f64]> = idx
-        .iter()
+/// The values of the numeric columns at `idx`.
+fn numeric_cols<'a>(lot: &'a Lot, idx: &[usize]) -> Vec<&'a [f64]> {
+    idx.iter()
         .map(|&i| match &lot.columns[i].data {
             ColumnData::Numeric(v) => v.as_slice(),
             ColumnData::Text(_) => &[],
         })
-        .collect();
+        .collect()
+}
+
+fn build(lot: &Lot, idx: &[usize]) -> PreparedLot {
+    let cols = numeric_cols(lot, idx);
     let kept = complete_rows(lot.len(), &cols);
     let mut data = Vec::with_capacity(kept.len() * cols.len());
     for c in &cols {
@@ -308,16 +312,7 @@ fn build(lot: &Lot, idx: &[usize]) -> PreparedLot {
 }
 
 fn build_releasing(lot: &mut Lot, idx: &[usize]) -> PreparedLot {
-    let kept = {
-        let cols: Vec<&[f64]> = idx
-            .iter()
-            .map(|&i| match &lot.columns[i].data {
-                ColumnData::Numeric(v) => v.as_slice(),
-                ColumnData::Text(_) => &[],
-            })
-            .collect();
-        complete_rows(lot.len(), &cols)
-    };
+    let kept = complete_rows(lot.len(), &numeric_cols(lot, idx));
     let mut data = Vec::with_capacity(kept.len() * idx.len());
     for &i in idx {
         if let ColumnData::Numeric(v) = &mut lot.columns[i].data {

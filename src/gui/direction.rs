@@ -41,18 +41,10 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         })
         .collect();
     let half = ui.available_height() * 0.42;
-    let names_axis = names.clone();
     Plot::new("coefficients")
         .height(half.max(160.0))
         .allow_scroll(false)
-        .y_axis_formatter(move |mark, _| {
-            let k = -mark.value;
-            if (k - k.round()).abs() < 1e-9 && k >= 0.0 && (k as usize) < names_axis.len() {
-                names_axis[k as usize].clone()
-            } else {
-                String::new()
-            }
-        })
+        .y_axis_formatter(super::intervals::row_names(names))
         .y_axis_min_width(120.0)
         .x_axis_label("standardized coefficient")
         .show(ui, |plot| {

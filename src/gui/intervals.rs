@@ -15,6 +15,20 @@ const BONF: Color32 = Color32::from_rgb(80, 90, 170);
 const ONE: Color32 = Color32::from_rgb(20, 30, 90);
 const POINT: Color32 = Color32::from_rgb(200, 60, 60);
 
+/// A y-axis formatter naming the characteristic drawn at y = −k (row k from the top).
+pub fn row_names(
+    names: Vec<String>,
+) -> impl Fn(egui_plot::GridMark, &std::ops::RangeInclusive<f64>) -> String {
+    move |mark, _| {
+        let k = -mark.value;
+        if (k - k.round()).abs() < 1e-9 && k >= 0.0 && (k as usize) < names.len() {
+            names[k as usize].clone()
+        } else {
+            String::new()
+        }
+    }
+}
+
 /// Draws the interval view.
 pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
     let c = &s.comparison;
@@ -26,7 +40,6 @@ pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
     let names: Vec<String> = c.characteristics.clone();
     let p = names.len();
     let height = (70.0 + 42.0 * p as f32).clamp(220.0, ui.available_height() * 0.6);
-    let names_axis = names.clone();
     let names_hover = names.clone();
     ui.horizontal(|ui| {
         for (color, name) in [
@@ -44,14 +57,7 @@ pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
         .height(height)
         .show_grid([true, false])
         .allow_scroll(false)
-        .y_axis_formatter(move |mark, _| {
-            let k = -mark.value;
-            if (k - k.round()).abs() < 1e-9 && k >= 0.0 && (k as usize) < names_axis.len() {
-                names_axis[k as usize].clone()
-            } else {
-                String::new()
-            }
-        })
+        .y_axis_formatter(row_names(names.clone()))
         .y_axis_min_width(120.0)
         .x_axis_label("difference / pooled standard deviation")
         .label_formatter(move |h| {

@@ -4,7 +4,7 @@
 use egui::RichText;
 
 use crate::analysis::{format_p, format_sig};
-use crate::report::CAUTION;
+use crate::report::{CAUTION, box_m_line, mardia_line, permutation_line, unequal_line};
 
 use super::app::test_line;
 use super::shown::Shown;
@@ -151,81 +151,59 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
         ))
         .strong(),
     );
-    egui::Grid::new("checks").striped(true).num_columns(2).show(ui, |ui| {
-        if let Some(b) = &c.box_m {
-            ui.label("Box's M, equal covariance matrices");
-            ui.label(format!(
-                "M = {}; chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {} — reading the {} form",
-                format_sig(b.m, 5),
-                format_sig(b.chi2, 5),
-                b.df,
-                format_p(b.p_value),
-                format_sig(b.f, 5),
-                b.f_df1,
-                format_sig(b.f_df2, 5),
-                format_p(b.f_p_value),
-                b.preferred
-            ))
-            .on_hover_text(&b.why);
-            ui.end_row();
-        }
-        if let Some(u) = &c.unequal_covariance {
-            ui.label("Test without equal covariances (Krishnamoorthy–Yu)");
-            ui.label(format!(
-                "T² = {}, F = {} on ({}, {}) df, p = {}",
-                format_sig(u.t2, 5),
-                format_sig(u.f, 5),
-                u.df1,
-                format_sig(u.df2, 5),
-                format_p(u.p_value)
-            ));
-            ui.end_row();
-        }
-        if c.permutation.is_none() && c.settings.permutations == 0 && s.requested_permutations > 0 {
-            ui.label("Permutation p-value");
-            ui.label(format!("computing {} relabellings… (the rest of the result is final)", s.requested_permutations));
-            ui.end_row();
-        }
-        if let Some(p) = &c.permutation {
-            ui.label("Permutation p-value");
-            ui.label(format!(
-                "{} ({} of {} relabellings reached the observed T², seed {})",
-                format_p(p.p_value),
-                p.at_least_observed,
-                p.permutations,
-                p.seed
-            ));
-            ui.end_row();
-        }
-        for m in &c.mardia {
-            ui.label(format!("Mardia, {}", m.lot));
-            ui.label(format!(
-                "skewness {} (p = {}), kurtosis {} (p = {})",
-                format_sig(m.skewness, 4),
-                format_p(m.skewness_p),
-                format_sig(m.kurtosis, 4),
-                format_p(m.kurtosis_p)
-            ));
-            ui.end_row();
-        }
-        if !c.normality.is_empty() {
-            for g in 0..2 {
-                let low: Vec<String> = c
-                    .normality
-                    .iter()
-                    .filter(|r| r.lots[g].is_some_and(|t| t.p_value < c.alpha))
-                    .map(|r| r.characteristic.clone())
-                    .collect();
-                ui.label(format!("Shapiro–Wilk, {}", c.lots[g].name));
-                ui.label(if low.is_empty() {
-                    format!("no characteristic below p = {}", c.alpha)
-                } else {
-                    format!("below p = {}: {}", c.alpha, low.join(", "))
-                });
+    egui::Grid::new("checks")
+        .striped(true)
+        .num_columns(2)
+        .show(ui, |ui| {
+            if let Some(b) = &c.box_m {
+                ui.label("Box's M, equal covariance matrices");
+                ui.label(box_m_line(b)).on_hover_text(&b.why);
                 ui.end_row();
             }
-        }
-    });
+            if let Some(u) = &c.unequal_covariance {
+                ui.label("Test without equal covariances (Krishnamoorthy–Yu)");
+                ui.label(unequal_line(u));
+                ui.end_row();
+            }
+            if c.permutation.is_none()
+                && c.settings.permutations == 0
+                && s.requested_permutations > 0
+            {
+                ui.label("Permutation p-value");
+                ui.label(format!(
+                    "computing {} relabellings… (the rest of the result is final)",
+                    s.requested_permutations
+                ));
+                ui.end_row();
+            }
+            if let Some(p) = &c.permutation {
+                ui.label("Permutation p-value");
+                ui.label(permutation_line(p));
+                ui.end_row();
+            }
+            for m in &c.mardia {
+                ui.label(format!("Mardia, {}", m.lot));
+                ui.label(mardia_line(m));
+                ui.end_row();
+            }
+            if !c.normality.is_empty() {
+                for g in 0..2 {
+                    let low: Vec<String> = c
+                        .normality
+                        .iter()
+                        .filter(|r| r.lots[g].is_some_and(|t| t.p_value < c.alpha))
+                        .map(|r| r.characteristic.clone())
+                        .collect();
+                    ui.label(format!("Shapiro–Wilk, {}", c.lots[g].name));
+                    ui.label(if low.is_empty() {
+                        format!("no characteristic below p = {}", c.alpha)
+                    } else {
+                        format!("below p = {}: {}", c.alpha, low.join(", "))
+                    });
+                    ui.end_row();
+                }
+            }
+        });
     if let Some(o) = &s.record.outliers {
         let count = |g: usize| o.units.iter().filter(|u| u.lot == g).count();
         ui.label(format!(

@@ -8,7 +8,7 @@ mod text;
 
 pub use canonical::{CanonicalError, canonical_bytes};
 pub use record::{CAUTION, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, Software};
-pub use text::render_text;
+pub use text::{box_m_line, mardia_line, permutation_line, render_text, unequal_line};
 
 use std::io::Write as _;
 use std::path::Path;

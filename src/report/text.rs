@@ -4,6 +4,8 @@ use std::fmt::Write as _;
 
 use crate::analysis::{Comparison, format_confidence, format_p, format_sig};
 use crate::data::Prepared;
+use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
+use crate::stats::permutation::PermutationResult;
 
 use super::CAUTION;
 
@@ -163,6 +165,59 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
     s
 }
 
+/// Box's M in one line.
+pub fn box_m_line(b: &BoxM) -> String {
+    format!(
+        "M = {}; chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {} — reading the {} form",
+        format_sig(b.m, 5),
+        format_sig(b.chi2, 5),
+        b.df,
+        format_p(b.p_value),
+        format_sig(b.f, 5),
+        b.f_df1,
+        format_sig(b.f_df2, 5),
+        format_p(b.f_p_value),
+        b.preferred
+    )
+}
+
+/// The unequal-covariance test in one line.
+pub fn unequal_line(u: &UnequalCovariance) -> String {
+    format!(
+        "T² = {}, F = {} on ({}, {}) df, p = {}",
+        format_sig(u.t2, 5),
+        format_sig(u.f, 5),
+        u.df1,
+        format_sig(u.df2, 5),
+        format_p(u.p_value)
+    )
+}
+
+/// The permutation p-value in one line.
+pub fn permutation_line(p: &PermutationResult) -> String {
+    format!(
+        "{} ({} of {} relabellings reached the observed T², seed {})",
+        format_p(p.p_value),
+        p.at_least_observed,
+        p.permutations,
+        p.seed
+    )
+}
+
+/// Mardia's tests of one lot in one line.
+pub fn mardia_line(m: &Mardia) -> String {
+    format!(
+        "skewness b1 = {} (chi-square {} on {} df, p = {}), kurtosis b2 = {} (z = {}, p = {})",
+        format_sig(m.skewness, 4),
+        format_sig(m.skewness_stat, 4),
+        m.skewness_df,
+        format_p(m.skewness_p),
+        format_sig(m.kurtosis, 4),
+        format_sig(m.kurtosis_z, 3),
+        format_p(m.kurtosis_p)
+    )
+}
+
 fn checks_text(s: &mut String, c: &Comparison) {
     let any = c.box_m.is_some()
         || !c.mardia.is_empty()
@@ -175,32 +230,13 @@ fn checks_text(s: &mut String, c: &Comparison) {
     if let Some(b) = &c.box_m {
         let _ = writeln!(
             s,
-            "  Box's M (equal covariance matrices): M = {}, chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {}; reading the {} form: {}",
-            format_sig(b.m, 5),
-            format_sig(b.chi2, 5),
-            b.df,
-            format_p(b.p_value),
-            format_sig(b.f, 5),
-            b.f_df1,
-            format_sig(b.f_df2, 5),
-            format_p(b.f_p_value),
-            b.preferred,
+            "  Box's M (equal covariance matrices): {}; {}",
+            box_m_line(b),
             b.why
         );
     }
     for m in &c.mardia {
-        let _ = writeln!(
-            s,
-            "  Mardia, \"{}\": skewness b1 = {} (chi-square {} on {} df, p = {}), kurtosis b2 = {} (z = {}, p = {})",
-            m.lot,
-            format_sig(m.skewness, 4),
-            format_sig(m.skewness_stat, 4),
-            m.skewness_df,
-            format_p(m.skewness_p),
-            format_sig(m.kurtosis, 4),
-            format_sig(m.kurtosis_z, 3),
-            format_p(m.kurtosis_p)
-        );
+        let _ = writeln!(s, "  Mardia, \"{}\": {}", m.lot, mardia_line(m));
     }
     for row in &c.normality {
         let cell = |r: &Option<crate::stats::normality::ShapiroWilk>| match r {
@@ -238,23 +274,12 @@ fn checks_text(s: &mut String, c: &Comparison) {
     if let Some(u) = &c.unequal_covariance {
         let _ = writeln!(
             s,
-            "  Unequal covariances (Krishnamoorthy-Yu): T² = {}, F = {} on ({}, {}) df, p = {}",
-            format_sig(u.t2, 5),
-            format_sig(u.f, 5),
-            u.df1,
-            format_sig(u.df2, 5),
-            format_p(u.p_value)
+            "  Unequal covariances (Krishnamoorthy-Yu): {}",
+            unequal_line(u)
         );
     }
     if let Some(p) = &c.permutation {
-        let _ = writeln!(
-            s,
-            "  Permutation p-value: {} ({} of {} relabellings reached T², seed {})",
-            format_p(p.p_value),
-            p.at_least_observed,
-            p.permutations,
-            p.seed
-        );
+        let _ = writeln!(s, "  Permutation p-value: {}", permutation_line(p));
     }
     let _ = writeln!(s, "  Favoured: {} — {}", c.favoured.test, c.favoured.why);
 }
