@@ -960,17 +960,22 @@ pub fn format_sig(x: f64, sig: usize) -> String {
     format!("{x:.decimals$}")
 }
 
+/// "T² = …, F(df1, df2) = …, p = …" with `sig` significant digits.
+pub fn test_statistics(h: &HotellingResult, sig: usize) -> String {
+    format!(
+        "T² = {}, F({}, {}) = {}, p = {}",
+        format_sig(h.t2, sig),
+        h.df1,
+        h.df2,
+        format_sig(h.f, sig),
+        format_p(h.p_value)
+    )
+}
+
 fn verdict_text(c: &Comparison) -> String {
     let h = &c.hotelling;
     let alpha = c.alpha;
-    let stats = format!(
-        "T² = {}, F({}, {}) = {}, p = {}",
-        format_sig(h.t2, 4),
-        h.df1,
-        h.df2,
-        format_sig(h.f, 4),
-        format_p(h.p_value)
-    );
+    let stats = test_statistics(h, 4);
     let mut s = if h.differ {
         let leaders: Vec<String> = c
             .ranking

@@ -8,7 +8,7 @@ use std::sync::{Arc, Mutex};
 use egui::{Color32, Key, KeyboardShortcut, Modifiers, RichText};
 use serde::{Deserialize, Serialize};
 
-use crate::analysis::{Settings, format_p, format_sig};
+use crate::analysis::Settings;
 use crate::data::{self, ColumnData, Lot, Selection, match_key};
 
 use super::shown::Shown;
@@ -1180,15 +1180,7 @@ fn sanitize(s: &str) -> String {
 
 /// p-value and statistic line used by several views.
 pub fn test_line(s: &Shown) -> String {
-    let h = &s.comparison.hotelling;
-    format!(
-        "T² = {}, F({}, {}) = {}, p = {}",
-        format_sig(h.t2, 5),
-        h.df1,
-        h.df2,
-        format_sig(h.f, 5),
-        format_p(h.p_value)
-    )
+    crate::analysis::test_statistics(&s.comparison.hotelling, 5)
 }
 
 impl eframe::App for LotshiftApp {
