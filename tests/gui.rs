@@ -209,3 +209,31 @@ fn a_failed_or_cancelled_run_keeps_the_previous_result() {
         t2
     );
 }
+
+#[test]
+fn one_file_with_a_lot_column_is_split_and_its_values_chosen() {
+    let mut h = harness();
+    let both = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-lots/both-routes.csv");
+    h.state_mut().load_paths(Slot::Combined, vec![both]);
+    settle(&mut h);
+    {
+        let c = &h.state().shown.as_ref().unwrap().comparison;
+        assert_eq!(
+            (c.lots[0].name.as_str(), c.lots[1].name.as_str()),
+            ("A", "B")
+        );
+    }
+    h.get_by_label_contains("Split both-routes.csv");
+    // The split gives the same comparison as the two separate files.
+    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    assert!((t2 - 21.828).abs() < 1e-3, "{t2}");
+    // Swapping swaps the lot values.
+    h.get_by_label("Swap lots").click();
+    h.run_steps(3);
+    settle(&mut h);
+    let c = &h.state().shown.as_ref().unwrap().comparison;
+    assert_eq!(
+        (c.lots[0].name.as_str(), c.lots[1].name.as_str()),
+        ("B", "A")
+    );
+}

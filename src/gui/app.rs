@@ -1022,15 +1022,15 @@ impl LotshiftApp {
             .changed();
         ui.horizontal(|ui| {
             let label = ui.label("permutations");
-            changed |= ui
+            let r = ui
                 .add(
                     egui::DragValue::new(&mut self.saved.settings.permutations)
                         .range(0..=999_999)
                         .speed(100.0),
                 )
                 .labelled_by(label.id)
-                .on_hover_text("Relabellings for the permutation p-value; 0 skips it")
-                .changed();
+                .on_hover_text("Relabellings for the permutation p-value; 0 skips it");
+            changed |= settled(&r);
         });
         if changed {
             self.rerun();
@@ -1147,6 +1147,12 @@ impl LotshiftApp {
         }
         ctx.request_repaint();
     }
+}
+
+/// A dragged value counts once the drag ends (a typed or stepped value at once), so dragging
+/// does not start a run every frame.
+fn settled(r: &egui::Response) -> bool {
+    r.changed() && !r.dragged() || r.drag_stopped()
 }
 
 /// A small filled square in `color`, as a legend key.
