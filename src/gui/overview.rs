@@ -194,8 +194,15 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
                         .filter(|r| r.lots[g].is_some_and(|t| t.p_value < c.alpha))
                         .map(|r| r.characteristic.clone())
                         .collect();
+                    let computed = c.normality.iter().any(|r| r.lots[g].is_some());
                     ui.label(format!("Shapiro–Wilk, {}", c.lots[g].name));
-                    ui.label(if low.is_empty() {
+                    ui.label(if !computed {
+                        format!(
+                            "not computed: {} units (the test is computed for 3 to {})",
+                            c.lots[g].n,
+                            crate::stats::normality::MAX_UNITS
+                        )
+                    } else if low.is_empty() {
                         format!("no characteristic below p = {}", c.alpha)
                     } else {
                         format!("below p = {}: {}", c.alpha, low.join(", "))

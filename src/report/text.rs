@@ -250,7 +250,10 @@ fn checks_text(s: &mut String, c: &Comparison) {
                     " (n > 5000: p not validated)"
                 }
             ),
-            None => "n/a".into(),
+            None => format!(
+                "n/a (computed for 3 to {} units)",
+                crate::stats::normality::MAX_UNITS
+            ),
         };
         let _ = writeln!(
             s,
