@@ -237,3 +237,40 @@ fn one_file_with_a_lot_column_is_split_and_its_values_chosen() {
         ("B", "A")
     );
 }
+
+#[test]
+fn a_summary_signed_in_the_window_from_a_split_file_verifies_on_the_command_line() {
+    use lotshift::report::sign::{self, Meaning};
+    let mut h = harness();
+    let both = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("sample-lots/both-routes.csv");
+    h.state_mut().load_paths(Slot::Combined, vec![both.clone()]);
+    settle(&mut h);
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-split-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let key = ed25519_key();
+    let record = h.state().shown.as_ref().unwrap().record.clone();
+    let summary = sign::sign(
+        &record,
+        &key,
+        "Dana Whitfield",
+        Meaning::Approval,
+        "2026-12-02T04:00:00Z",
+    )
+    .unwrap();
+    let path = dir.join("summary.json");
+    std::fs::write(&path, summary.to_json()).unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_lotshift"))
+        .arg("verify")
+        .arg(&path)
+        .arg("--lots")
+        .arg(&both)
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{text}");
+    assert!(
+        text.contains("every number in the record matches"),
+        "{text}"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}

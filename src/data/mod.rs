@@ -460,7 +460,10 @@ pub fn load_two(
             {
                 opts.labels.push(column.to_string());
             }
-            let lot = load(one, &opts)?;
+            let mut lot = load(one, &opts)?;
+            // The record keeps the user's own label choices: the lot column is implied by the
+            // split, so every way of splitting the file records the same.
+            lot.provenance.forced_labels = options.labels.clone();
             split_lot(&lot, column, lots)
         }
         ([a, b], None) => {

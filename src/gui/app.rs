@@ -9,7 +9,7 @@ use egui::{Color32, Key, KeyboardShortcut, Modifiers, RichText};
 use serde::{Deserialize, Serialize};
 
 use crate::analysis::Settings;
-use crate::data::{self, ColumnData, Lot, Selection, match_key};
+use crate::data::{self, Lot, Selection, match_key};
 
 use super::shown::Shown;
 use super::worker::{Outcome, Purpose, Slot, Source, Worker};
@@ -595,20 +595,19 @@ impl LotshiftApp {
     fn set_combined(&mut self, table: Lot) {
         let mut candidates = Vec::new();
         for c in &table.columns {
-            if let ColumnData::Text(t) = &c.data {
-                let mut values: Vec<String> = Vec::new();
-                for i in 0..t.len() {
-                    let v = t.get(i);
-                    if !v.is_empty() && !values.iter().any(|x| x == v) {
-                        values.push(v.to_string());
-                        if values.len() > 50 {
-                            break;
-                        }
+            // Text columns, and numeric ones used as lot codes (1, 2...).
+            let mut values: Vec<String> = Vec::new();
+            for i in 0..table.len() {
+                let v = c.text(i);
+                if !v.is_empty() && !values.contains(&v) {
+                    values.push(v);
+                    if values.len() > 50 {
+                        break;
                     }
                 }
-                if (2..=50).contains(&values.len()) {
-                    candidates.push((c.header.clone(), values));
-                }
+            }
+            if (2..=50).contains(&values.len()) {
+                candidates.push((c.header.clone(), values));
             }
         }
         // Prefer a column whose name says it holds lots.
