@@ -2,6 +2,9 @@
 //! simulations with seeded data (false-alarm rates, uniform permutation p-values, power), an
 //! exact enumeration, and located outliers.
 
+mod common;
+use common::names;
+
 use lotshift::analysis::{self, LotData, Settings, Silent};
 use lotshift::stats::permutation::{SplitMix64, permutation_test_data};
 use lotshift::stats::power;
@@ -24,10 +27,6 @@ impl Rng {
     fn lot(&mut self, n: usize, p: usize, sd: f64, mean: f64) -> DMatrix<f64> {
         DMatrix::from_fn(n, p, |_, _| mean + sd * self.normal())
     }
-}
-
-fn names(p: usize) -> Vec<String> {
-    (0..p).map(|k| format!("c{k}")).collect()
 }
 
 fn compare(x: &DMatrix<f64>, y: &DMatrix<f64>, settings: &Settings) -> analysis::Comparison {

@@ -1,16 +1,13 @@
 //! The built binary on the sample lots and on bad files: output, record and exit status.
 
-use std::path::{Path, PathBuf};
+mod common;
+use common::sample;
+
+use std::path::PathBuf;
 use std::process::{Command, Output};
 
 fn bin() -> Command {
     Command::new(env!("CARGO_BIN_EXE_lotshift"))
-}
-
-fn sample(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("sample-lots")
-        .join(name)
 }
 
 fn run(args: &[&str]) -> Output {

@@ -1,17 +1,14 @@
 //! Lot files: every dialect the loader accepts and every bad input it must refuse, with the
 //! exact place (file, row as a spreadsheet shows it, column) in each error.
 
+mod common;
+use common::sample;
+
 use lotshift::data::{
     self, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot, PrepareError, Selection, load,
     load_bytes, prepare, split_lot,
 };
-use std::path::{Path, PathBuf};
-
-fn sample(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("sample-lots")
-        .join(name)
-}
+use std::path::Path;
 
 fn read(name: &str, text: &[u8]) -> Result<Lot, LoadError> {
     load_bytes(name, text, &LoadOptions::default())

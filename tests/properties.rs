@@ -1,6 +1,9 @@
 //! Mathematical properties of the two-sample T² that any correct implementation has,
 //! a type-I error simulation, and the planted truth of the sample lots.
 
+mod common;
+use common::{names, sample};
+
 use lotshift::analysis::{self, Comparison, LotData, Settings, Silent};
 use lotshift::data::{self, LoadOptions, Selection};
 use lotshift::stats::EngineError;
@@ -42,10 +45,6 @@ impl Rng {
         }
         x
     }
-}
-
-fn names(p: usize) -> Vec<String> {
-    (0..p).map(|k| format!("c{k}")).collect()
 }
 
 fn run(x: &DMatrix<f64>, y: &DMatrix<f64>, alpha: f64) -> Result<Comparison, EngineError> {
@@ -294,18 +293,12 @@ fn degenerate_inputs_name_the_culprits() {
     assert!(!c.warnings[0].contains("\"c1\""), "{}", c.warnings[0]);
 }
 
-#[test]
-fn sample_lots_show_the_planted_shift() {
-    // The generator (sample-lots/generate.py) planted a shift of +0.35 SD in hub length and
-    // -0.35 SD in flange thickness (correlated 0.85) and nothing else.
-    let dir = concat!(env!("CARGO_MANIFEST_DIR"), "/sample-lots/");
-    let files = [
-        std::path::PathBuf::from(format!("{dir}reference-route-a.csv")),
-        std::path::PathBuf::from(format!("{dir}candidate-route-b.csv")),
-    ];
+/// The reference sample lot against another sample lot file.
+fn compare_samples(other: &str) -> Comparison {
+    let files = [sample("reference-route-a.csv"), sample(other)];
     let [a, b] = data::load_two(&files, None, None, &LoadOptions::default()).unwrap();
     let p = data::prepare(&a, &b, &Selection::default()).unwrap();
-    let c = analysis::compare(
+    analysis::compare(
         &p.characteristics,
         &p.units,
         [
@@ -321,7 +314,14 @@ fn sample_lots_show_the_planted_shift() {
         &Settings::default(),
         &Silent,
     )
-    .unwrap();
+    .unwrap()
+}
+
+#[test]
+fn sample_lots_show_the_planted_shift() {
+    // The generator (sample-lots/generate.py) planted a shift of +0.35 SD in hub length and
+    // -0.35 SD in flange thickness (correlated 0.85) and nothing else.
+    let c = compare_samples("candidate-route-b.csv");
     assert!(
         c.hotelling.differ,
         "the multivariate test finds the shift (p = {})",
@@ -342,30 +342,7 @@ fn sample_lots_show_the_planted_shift() {
         );
     }
     // The pair with no shift is not flagged.
-    let repeat = data::load(
-        std::path::Path::new(&format!("{dir}repeat-route-a.csv")),
-        &LoadOptions::default(),
-    )
-    .unwrap();
-    let p = data::prepare(&a, &repeat, &Selection::default()).unwrap();
-    let c = analysis::compare(
-        &p.characteristics,
-        &p.units,
-        [
-            LotData {
-                name: "a",
-                data: &p.lots[0].data,
-            },
-            LotData {
-                name: "r",
-                data: &p.lots[1].data,
-            },
-        ],
-        &Settings::default(),
-        &Silent,
-    )
-    .unwrap();
-    assert!(!c.hotelling.differ);
+    assert!(!compare_samples("repeat-route-a.csv").hotelling.differ);
 }
 
 #[test]

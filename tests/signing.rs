@@ -1,6 +1,9 @@
 //! Signed summaries: sign → verify round trips, every kind of tampering fails with its own
 //! reason, writes are atomic, and the HTML report renders in a real browser.
 
+mod common;
+use common::sample;
+
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};
 
@@ -8,12 +11,6 @@ use lotshift::report::sign::{self, Meaning};
 
 fn bin() -> Command {
     Command::new(env!("CARGO_BIN_EXE_lotshift"))
-}
-
-fn sample(name: &str) -> PathBuf {
-    Path::new(env!("CARGO_MANIFEST_DIR"))
-        .join("sample-lots")
-        .join(name)
 }
 
 fn run(args: &[&str], dir: &Path) -> Output {
