@@ -127,12 +127,7 @@ fn main() {
     let mut small = app_with(1_000);
     let mut big = app_with(200_000);
     let mut ok = true;
-    for view in [
-        View::Pairs,
-        View::Direction,
-        View::Intervals,
-        View::Overview,
-    ] {
+    for view in [View::Pairs, View::Direction, View::Intervals, View::Verdict] {
         let base = frame_ms(&mut small, view);
         let heavy = frame_ms(&mut big, view);
         let pass = heavy < TARGET_MS;

@@ -190,7 +190,48 @@ def write_xlsx(name, sheet_name, table):
             z.writestr(info, content.encode("utf-8"))
 
 
+# Summary statistics (invented): the forged-blank supplier's certificate for route B's blanks
+# against the plant's own receiving inspection of the same blank lot. Certificates give only
+# n, means and covariances, which is what `lotshift compare-stats` reads.
+BLANK_CHARS = [("blank outer diameter", "mm", 41.20, 0.030), ("blank length", "mm", 28.60, 0.045),
+               ("blank mass", "g", 158.0, 0.60)]
+BLANK_CORR = [[1.0, 0.20, 0.60], [0.20, 1.0, 0.55], [0.60, 0.55, 1.0]]
+
+
+def summary_lot(rng, name, n, shift_sd):
+    lc = cholesky(BLANK_CORR)
+    k = len(BLANK_CHARS)
+    units = []
+    for _ in range(n):
+        z = [rng.gauss(0.0, 1.0) for _ in range(k)]
+        c = [sum(lc[i][j] * z[j] for j in range(i + 1)) for i in range(k)]
+        units.append([m + sd * (ci + s) for (_, _, m, sd), ci, s in zip(BLANK_CHARS, c, shift_sd)])
+    mean = [sum(u[i] for u in units) / n for i in range(k)]
+    cov = [[sum((u[i] - mean[i]) * (u[j] - mean[j]) for u in units) / (n - 1) for j in range(k)] for i in range(k)]
+    sig = lambda v: float(f"{v:.5g}")
+    # Means as a certificate prints them: one digit beyond the measuring resolution.
+    places = [4 if u == "mm" else 3 for _, u, *_ in BLANK_CHARS]
+    return {"name": name, "n": n, "mean": [round(v, d) for v, d in zip(mean, places)],
+            "covariance": [[sig(cov[i][j] if i <= j else cov[j][i]) for j in range(k)] for i in range(k)]}
+
+
+def write_certificate():
+    rng = random.Random(4411)
+    lots = [summary_lot(rng, "supplier certificate FB-2611", 60, [0.0, 0.0, 0.0]),
+            summary_lot(rng, "receiving inspection FB-2611", 32, [0.25, 0.0, 0.45])]
+    lines = ["{", '  "characteristics": [' + ", ".join(f'"{n}"' for n, *_ in BLANK_CHARS) + "],",
+             '  "units": [' + ", ".join(f'"{u}"' for _, u, *_ in BLANK_CHARS) + "],", '  "lots": [']
+    for i, lot in enumerate(lots):
+        cov = ", ".join("[" + ", ".join(repr(v) for v in row) + "]" for row in lot["covariance"])
+        lines.append(f'    {{"name": "{lot["name"]}", "n": {lot["n"]},')
+        lines.append(f'     "mean": [{", ".join(repr(v) for v in lot["mean"])}],')
+        lines.append(f'     "covariance": [{cov}]}}' + ("," if i == 0 else ""))
+    lines += ["  ]", "}"]
+    write("supplier-certificate.json", "\n".join(lines) + "\n")
+
+
 def main():
+    write_certificate()
     seed = pick_seed()
     rng = random.Random(seed)
     a = draw_lot(rng, 40, [0.0] * 5)

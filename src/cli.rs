@@ -39,7 +39,7 @@ pub struct Cli {
     /// Render the window to this PNG file and exit.
     #[arg(long, value_name = "PNG")]
     pub screenshot: Option<PathBuf>,
-    /// View to show first in the window (overview, characteristics, intervals, pairs,
+    /// View to show first in the window (verdict, characteristics, intervals, pairs,
     /// direction).
     #[arg(long, value_name = "VIEW")]
     pub view: Option<String>,
@@ -89,10 +89,10 @@ pub struct VerifyArgs {
     /// The signed summary.
     #[arg(value_name = "FILE")]
     pub file: PathBuf,
-    /// The lot files (reference, candidate; or the one file both lots were split from):
-    /// checks their SHA-256 and recomputes every number.
+    /// The lot files (reference, candidate; or the one file both lots were read from with a
+    /// lot column): checks their SHA-256 and recomputes every number.
     #[arg(long, value_name = "FILE", num_args = 1..=2)]
-    pub lots: Vec<PathBuf>,
+    pub files: Vec<PathBuf>,
     /// The expected signer's public key (PEM).
     #[arg(long, value_name = "PUB")]
     pub key: Option<PathBuf>,
@@ -140,12 +140,13 @@ pub struct LotArgs {
     /// The reference lot file and the candidate lot file (or one file with --split-by).
     #[arg(value_name = "FILE", required = true, num_args = 1..=2)]
     pub files: Vec<PathBuf>,
-    /// Column holding the lot of each unit, to split one file into two lots.
-    #[arg(long, value_name = "COLUMN")]
-    pub split_by: Option<String>,
-    /// The two lot values to compare (reference first) when the lot column holds more.
-    #[arg(long, value_name = "A,B", value_delimiter = ',', num_args = 2)]
-    pub lots: Option<Vec<String>>,
+    /// Lot column: the column holding each unit's lot, to read both lots from one file.
+    #[arg(long, value_name = "COLUMN", alias = "split-by")]
+    pub lot_column: Option<String>,
+    /// Lot values: the two values of the lot column to compare, reference first ("A,B"),
+    /// when the lot column holds more than two.
+    #[arg(long, value_name = "REFERENCE,CANDIDATE")]
+    pub lot_values: Option<String>,
     /// Sheet to read from spreadsheets (default: the first sheet with data).
     #[arg(long, value_name = "NAME")]
     pub sheet: Option<String>,
@@ -172,7 +173,8 @@ pub struct CompareArgs {
     /// Write the comparison record as JSON to FILE, or to standard output with "-".
     #[arg(long, value_name = "FILE")]
     pub json: Option<String>,
-    /// Exit with status 1 when the lots differ (for pipelines).
+    /// Exit with status 1 when the lots differ (for pipelines). Exit 0 then means "no
+    /// difference detected": not "equivalent", and never an automatic release of a lot.
     #[arg(long)]
     pub fail_on_shift: bool,
     /// Skip the leave-one-out misclassification rate.
@@ -216,7 +218,8 @@ pub struct StatsArgs {
     /// Write the comparison record as JSON to FILE, or to standard output with "-".
     #[arg(long, value_name = "FILE")]
     pub json: Option<String>,
-    /// Exit with status 1 when the lots differ.
+    /// Exit with status 1 when the lots differ. Exit 0 then means "no difference detected":
+    /// not "equivalent", and never an automatic release of a lot.
     #[arg(long)]
     pub fail_on_shift: bool,
 }
@@ -280,9 +283,34 @@ pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], String> {
         sheet: args.sheet.clone(),
         labels: args.labels.clone(),
     };
-    let wanted = args.lots.as_ref().map(|v| [v[0].as_str(), v[1].as_str()]);
-    data::load_two(&args.files, args.split_by.as_deref(), wanted, &options)
+    let values = match &args.lot_values {
+        None => None,
+        Some(text) => Some(parse_lot_values(text)?),
+    };
+    if values.is_some() && args.lot_column.is_none() {
+        return Err("--lot-values needs --lot-column: the column the two values are in".into());
+    }
+    let wanted = values.as_ref().map(|v| [v[0].as_str(), v[1].as_str()]);
+    data::load_two(&args.files, args.lot_column.as_deref(), wanted, &options)
         .map_err(|e| e.to_string())
+}
+
+/// Splits `--lot-values REFERENCE,CANDIDATE` into its two values.
+///
+/// # Errors
+/// When the text does not hold exactly two non-empty, distinct values.
+pub fn parse_lot_values(text: &str) -> Result<[String; 2], String> {
+    let parts: Vec<&str> = text.split(',').map(str::trim).collect();
+    match parts.as_slice() {
+        [a, b] if !a.is_empty() && !b.is_empty() && a != b => Ok([a.to_string(), b.to_string()]),
+        [a, b] if a == b && !a.is_empty() => Err(format!(
+            "--lot-values needs two different values (got \"{a}\" twice)"
+        )),
+        _ => Err(format!(
+            "--lot-values takes the reference and the candidate value separated by a comma, \
+             e.g. --lot-values A,B (got \"{text}\")"
+        )),
+    }
 }
 
 fn emit_json(target: &Option<String>, record: &Record) -> Result<(), String> {
@@ -427,8 +455,8 @@ fn verify(a: VerifyArgs) -> CliResult {
             "signer key   not checked against an expected key (give --key PUB to check who signed)"
         );
     }
-    if a.lots.is_empty() {
-        outln!("lot files    not checked (give --lots to check them and recompute every number)");
+    if a.files.is_empty() {
+        outln!("lot files    not checked (give --files to check them and recompute every number)");
         outln!("VERIFIED (signature only)");
         return Ok(ExitCode::SUCCESS);
     }
@@ -442,15 +470,15 @@ fn verify(a: VerifyArgs) -> CliResult {
             .map(|v| v.as_str().unwrap_or_default().to_string())
             .collect::<Vec<_>>()
     });
-    let files: Vec<PathBuf> = match (a.lots.len(), &split) {
-        (1, Some(_)) => vec![a.lots[0].clone()],
-        (2, Some(_)) if std::fs::read(&a.lots[0]).ok() == std::fs::read(&a.lots[1]).ok() => {
-            vec![a.lots[0].clone()]
+    let files: Vec<PathBuf> = match (a.files.len(), &split) {
+        (1, Some(_)) => vec![a.files[0].clone()],
+        (2, Some(_)) if std::fs::read(&a.files[0]).ok() == std::fs::read(&a.files[1]).ok() => {
+            vec![a.files[0].clone()]
         }
-        (2, _) => a.lots.clone(),
+        (2, _) => a.files.clone(),
         _ => {
             return fail(
-                "give the two lot files (or the one file both lots were split from)".into(),
+                "give the two lot files (or the one file both lots were read from)".into(),
             );
         }
     };
@@ -735,6 +763,10 @@ fn plan(a: PlanArgs) -> CliResult {
         }
     };
     outln!("Power of Hotelling's T² at alpha {} for {source}", a.alpha);
+    outln!(
+        "  (assumes multivariate normal lots with equal covariance matrices; the sampling plan \
+         itself is set by your quality system)"
+    );
     outln!("  characteristics            {p}");
     outln!(
         "  Mahalanobis distance       {}",

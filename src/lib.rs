@@ -9,5 +9,6 @@ pub mod cli;
 pub mod data;
 #[cfg(feature = "gui")]
 pub mod gui;
+pub mod palette;
 pub mod report;
 pub mod stats;

@@ -130,7 +130,7 @@ fn every_form_of_the_sample_gives_the_same_t2() {
     ]);
     let split = get(&[
         sample("both-routes.csv").to_str().unwrap(),
-        "--split-by",
+        "--lot-column",
         "route",
     ]);
     assert_eq!(csv, xlsx);
@@ -203,9 +203,9 @@ fn bad_input_exits_2_with_one_line_naming_the_place() {
     // A lot column with three values and none chosen.
     let three = dir.join("three.csv");
     std::fs::write(&three, "lot,x\nA,1\nB,2\nC,3\nA,4\nB,5\nC,6\n").unwrap();
-    let o = run(&["compare", three.to_str().unwrap(), "--split-by", "lot"]);
+    let o = run(&["compare", three.to_str().unwrap(), "--lot-column", "lot"]);
     assert_eq!(o.status.code(), Some(2));
-    assert!(stderr(&o).contains("--lots"), "{}", stderr(&o));
+    assert!(stderr(&o).contains("--lot-values"), "{}", stderr(&o));
     // A failed --json write leaves nothing behind.
     let o = run(&[
         "compare",
@@ -236,6 +236,78 @@ fn compare_stats_from_summary_statistics() {
     let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
     assert!((v["hotelling"]["t2"].as_f64().unwrap() - 52.47).abs() < 0.005);
     std::fs::remove_dir_all(dir).unwrap();
+}
+
+#[test]
+fn compare_stats_on_the_bundled_certificate_matches_numpy() {
+    // The invented supplier certificate (sample-lots/generate.py); T², F and p computed from
+    // the same JSON with numpy/scipy by tests/fixtures/make_fixtures.py.
+    let fx: serde_json::Value = serde_json::from_str(
+        &std::fs::read_to_string(concat!(
+            env!("CARGO_MANIFEST_DIR"),
+            "/tests/fixtures/reference.json"
+        ))
+        .unwrap(),
+    )
+    .unwrap();
+    let want = &fx["sample_lots"]["supplier_certificate"];
+    let o = run(&[
+        "compare-stats",
+        sample("supplier-certificate.json").to_str().unwrap(),
+        "--json",
+        "-",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    for (key, got) in [("t2", "t2"), ("f", "f"), ("p_value", "p_value")] {
+        let w = want[key].as_f64().unwrap();
+        let g = v["hotelling"][got].as_f64().unwrap();
+        assert!(((g - w) / w).abs() < 1e-10, "{key}: {g} against {w}");
+    }
+    assert_eq!(v["units"][2], "g");
+}
+
+#[test]
+fn lot_values_take_one_comma_separated_list() {
+    // The documented form --lot-values A,B; the help shows one value list.
+    let o = run(&[
+        "compare",
+        sample("both-routes.csv").to_str().unwrap(),
+        "--lot-column",
+        "route",
+        "--lot-values",
+        "B,A",
+        "--json",
+        "-",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let v: serde_json::Value = serde_json::from_str(&stdout(&o)).unwrap();
+    assert_eq!(v["lots"][0]["split"][1], "B");
+    assert_eq!(v["lots"][1]["split"][1], "A");
+    let o = run(&["compare", "--help"]);
+    let help = stdout(&o);
+    assert!(
+        help.contains("--lot-values <REFERENCE,CANDIDATE>"),
+        "{help}"
+    );
+    assert!(!help.contains("<REFERENCE,CANDIDATE> <"), "{help}");
+    assert!(help.contains("never an automatic release"), "{help}");
+    // One value, three values, the same value twice: a usage error naming the form.
+    for bad in ["B", "A,B,C", "A,A"] {
+        let o = run(&[
+            "compare",
+            sample("both-routes.csv").to_str().unwrap(),
+            "--lot-column",
+            "route",
+            "--lot-values",
+            bad,
+        ]);
+        assert_eq!(o.status.code(), Some(2), "{bad}");
+        assert!(stderr(&o).contains("--lot-values"), "{bad}: {}", stderr(&o));
+    }
+    // verify takes the lot files as --files.
+    let o = run(&["verify", "--help"]);
+    assert!(stdout(&o).contains("--files"), "{}", stdout(&o));
 }
 
 #[test]
@@ -310,5 +382,128 @@ fn plan_gives_power_and_lot_size() {
     );
     let o = run(&["plan", "--characteristics", "3"]);
     assert_eq!(o.status.code(), Some(2));
+    std::fs::remove_dir_all(dir).unwrap();
+}
+
+/// The command lines README.md shows: every `$L …` line of its `sh` blocks (continuation
+/// lines joined) and the `--screenshot` line.
+fn readme_commands() -> (Vec<String>, Vec<String>) {
+    let text = std::fs::read_to_string(concat!(env!("CARGO_MANIFEST_DIR"), "/README.md")).unwrap();
+    let mut commands = Vec::new();
+    let mut screenshots = Vec::new();
+    let mut in_sh = false;
+    let mut pending = String::new();
+    for line in text.lines() {
+        let t = line.trim_start();
+        if t.starts_with("```") {
+            in_sh = !in_sh && t.trim_start_matches('`').trim() == "sh";
+            continue;
+        }
+        if !in_sh {
+            continue;
+        }
+        if !pending.is_empty() {
+            pending.push(' ');
+            pending.push_str(t.trim_end_matches('\\').trim());
+            if !t.ends_with('\\') {
+                commands.push(std::mem::take(&mut pending));
+            }
+            continue;
+        }
+        if t.starts_with("$L ") {
+            if t.ends_with('\\') {
+                pending = t.trim_end_matches('\\').trim().to_string();
+            } else {
+                commands.push(t.to_string());
+            }
+        } else if t.contains("--screenshot") && !t.starts_with('#') {
+            screenshots.push(t.to_string());
+        }
+    }
+    (commands, screenshots)
+}
+
+#[test]
+fn every_command_line_in_the_readme_runs() {
+    // Runs each `$L …` line in README.md's order, as a shell would, in a temporary folder
+    // holding a copy of the sample lots, with HOME there too (for the key the README makes).
+    // A documented command that exits with status 2 (a usage error or bad input) or any other
+    // failure fails this test; `--fail-on-shift` lines may exit 1.
+    let (commands, screenshots) = readme_commands();
+    assert!(commands.len() >= 10, "{commands:?}");
+    assert!(
+        !screenshots.is_empty(),
+        "the README shows a --screenshot line"
+    );
+    let dir = tmpdir("readme");
+    let lots = dir.join("sample-lots");
+    std::fs::create_dir_all(&lots).unwrap();
+    for e in std::fs::read_dir(sample(".")).unwrap() {
+        let p = e.unwrap().path();
+        if p.is_file() {
+            std::fs::copy(&p, lots.join(p.file_name().unwrap())).unwrap();
+        }
+    }
+    let home = dir.join("home");
+    std::fs::create_dir_all(&home).unwrap();
+    let bin = env!("CARGO_BIN_EXE_lotshift");
+    let sh = |line: &str| {
+        Command::new("sh")
+            .arg("-c")
+            .arg(line)
+            .current_dir(&dir)
+            .env("L", bin)
+            .env("HOME", &home)
+            .output()
+            .unwrap()
+    };
+    for line in &commands {
+        let o = sh(line);
+        let code = o.status.code();
+        let allowed = code == Some(0) || (code == Some(1) && line.contains("--fail-on-shift"));
+        assert!(
+            allowed,
+            "README command `{line}` exited with {code:?}\nstdout: {}\nstderr: {}",
+            stdout(&o),
+            stderr(&o)
+        );
+    }
+    // The screenshot line needs a display: run it under xvfb-run when installed (CI installs
+    // it and sets LOTSHIFT_REQUIRE_DISPLAY=1), with the built binary for `cargo run --release --`.
+    let have_xvfb = Command::new("sh")
+        .arg("-c")
+        .arg("command -v xvfb-run")
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if !cfg!(feature = "gui") {
+        eprintln!("skipped the --screenshot line: built without the window");
+    } else if !have_xvfb {
+        assert!(
+            std::env::var("LOTSHIFT_REQUIRE_DISPLAY").is_err(),
+            "LOTSHIFT_REQUIRE_DISPLAY is set but xvfb-run is not installed"
+        );
+        eprintln!(
+            "skipped the --screenshot line: xvfb-run is not installed (apt-get install xvfb xauth)"
+        );
+    } else {
+        for line in &screenshots {
+            let line = line.replace("cargo run --release --", "\"$L\"");
+            let o = sh(&line);
+            assert!(
+                o.status.success(),
+                "README command `{line}` exited with {:?}\nstderr: {}",
+                o.status.code(),
+                stderr(&o)
+            );
+            let png = line
+                .split_whitespace()
+                .skip_while(|w| *w != "--screenshot")
+                .nth(1)
+                .unwrap()
+                .to_string();
+            let bytes = std::fs::read(dir.join(&png)).expect("the screenshot was written");
+            assert!(bytes.starts_with(b"\x89PNG"), "{png} is a PNG");
+        }
+    }
     std::fs::remove_dir_all(dir).unwrap();
 }

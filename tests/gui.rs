@@ -17,6 +17,20 @@ fn harness() -> Harness<'static, LotshiftApp> {
     h
 }
 
+/// T² of the bundled reference/candidate pair, computed independently with numpy from the
+/// CSV files by tests/fixtures/make_fixtures.py (key `sample_lots`).
+fn sample_t2() -> f64 {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/reference.json"
+    ))
+    .unwrap();
+    let fx: serde_json::Value = serde_json::from_str(&text).unwrap();
+    fx["sample_lots"]["reference_candidate"]["t2"]
+        .as_f64()
+        .unwrap()
+}
+
 /// Steps the window until the background work is done.
 fn settle(h: &mut Harness<'static, LotshiftApp>) {
     let deadline = Instant::now() + Duration::from_secs(60);
@@ -35,9 +49,11 @@ fn settle(h: &mut Harness<'static, LotshiftApp>) {
 fn sample_lots_load_and_every_view_shows_its_content() {
     let mut h = harness();
     assert!(h.state().shown_current);
-    // T² = 21.828 for the sample lots, computed independently with numpy
-    // (sample-lots/README.md gives the numpy check).
-    h.get_by_label_contains("The lots differ at alpha 0.05: T² = 21.83");
+    // T² of the sample lots as numpy computes it (make_fixtures.py, key sample_lots).
+    let want = sample_t2();
+    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    assert!(((t2 - want) / want).abs() < 1e-10, "{t2} against {want}");
+    h.get_by_label_contains(&format!("The lots differ at alpha 0.05: T² = {want:.2}"));
     h.get_by_label("hub length (mm)");
     h.get_by_label("flange thickness (mm)");
     h.get_by_label_contains("This statistical result supports, and does not replace");
@@ -60,6 +76,32 @@ fn sample_lots_load_and_every_view_shows_its_content() {
     h.get_by_label("Shift direction").click();
     h.run_steps(2);
     h.get_by_label_contains("With each unit held out");
+}
+
+#[test]
+fn the_disposition_caution_is_under_every_view() {
+    let mut h = harness();
+    for view in lotshift::gui::View::ALL {
+        h.state_mut().saved.view = view;
+        h.run_steps(2);
+        assert_eq!(
+            h.get_all_by_label_contains("supports, and does not replace, the lot disposition")
+                .count(),
+            1,
+            "{view:?}"
+        );
+    }
+}
+
+#[test]
+fn view_names_on_the_command_line_are_the_tab_titles() {
+    use lotshift::gui::View;
+    for view in View::ALL {
+        assert_eq!(View::from_name(view.name()), Some(view));
+        let last = view.title().split(' ').next_back().unwrap().to_lowercase();
+        assert_eq!(last, view.name(), "{}", view.title());
+    }
+    assert_eq!(View::from_name("overview"), None);
 }
 
 #[test]
@@ -225,10 +267,11 @@ fn one_file_with_a_lot_column_is_split_and_its_values_chosen() {
             ("A", "B")
         );
     }
-    h.get_by_label_contains("Split both-routes.csv");
-    // The split gives the same comparison as the two separate files (T² = 21.828 by numpy).
+    h.get_by_label_contains("Lots in both-routes.csv");
+    // The split gives the same comparison as the two separate files (T² by numpy).
     let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
-    assert!((t2 - 21.828).abs() < 1e-3, "{t2}");
+    let want = sample_t2();
+    assert!(((t2 - want) / want).abs() < 1e-10, "{t2} against {want}");
     // Swapping swaps the lot values.
     h.get_by_label("Swap lots").click();
     h.run_steps(3);
@@ -264,7 +307,7 @@ fn a_summary_signed_in_the_window_from_a_split_file_verifies_on_the_command_line
     let out = std::process::Command::new(env!("CARGO_BIN_EXE_lotshift"))
         .arg("verify")
         .arg(&path)
-        .arg("--lots")
+        .arg("--files")
         .arg(&both)
         .output()
         .unwrap();

@@ -178,8 +178,8 @@ fn the_discriminant_direction_maximizes_the_squared_t() {
 
 #[test]
 fn lots_far_from_zero_lose_no_digits() {
-    // Issue requirement: lots near 1e6 with spreads near 1e-2 agree with the same data near
-    // zero. Multiples of 2^-14 are exact at both magnitudes, so any disagreement is the
+    // Property (shift invariance): lots near 1e6 with spreads near 1e-2 agree with the same
+    // data near zero. Multiples of 2^-14 are exact at both magnitudes, so any disagreement is the
     // computation's own.
     let mut rng = Rng(16);
     let q = |v: f64| (v * 16384.0).round() / 16384.0;

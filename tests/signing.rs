@@ -67,7 +67,7 @@ fn verify(dir: &Path, file: &str, extra: &[&str]) -> (i32, String) {
 }
 
 const FULL: [&str; 5] = [
-    "--lots",
+    "--files",
     "a.csv",
     "b.csv",
     "--key",
@@ -177,7 +177,7 @@ fn every_tampering_fails_with_its_reason() {
     let k = bytes.len() - 3;
     bytes[k] = if bytes[k] == b'1' { b'2' } else { b'1' };
     std::fs::write(dir.join("b-changed.csv"), &bytes).unwrap();
-    let (code, out) = verify(&dir, "summary.json", &["--lots", "a.csv", "b-changed.csv"]);
+    let (code, out) = verify(&dir, "summary.json", &["--files", "a.csv", "b-changed.csv"]);
     assert_eq!(code, 1);
     assert!(
         out.contains("b-changed.csv is not the file analysed"),
@@ -354,7 +354,23 @@ fn the_html_report_renders_in_a_real_browser() {
         .arg("-")
         .output()
         .expect("pdftotext (poppler-utils) runs");
-    let text = String::from_utf8_lossy(&text.stdout).replace('\n', " ");
+    let raw = String::from_utf8_lossy(&text.stdout).into_owned();
+    // Every printed page ends with the disposition caution (pdftotext separates pages with
+    // a form feed).
+    let pages: Vec<String> = raw
+        .split('\x0c')
+        .filter(|p| !p.trim().is_empty())
+        .map(|p| p.split_whitespace().collect::<Vec<_>>().join(" "))
+        .collect();
+    assert!(pages.len() >= 2, "{} pages", pages.len());
+    for (k, page) in pages.iter().enumerate() {
+        assert!(
+            page.contains("supports, and does not replace, the lot disposition procedures"),
+            "page {}: {page}",
+            k + 1
+        );
+    }
+    let text = raw.replace('\n', " ");
     assert!(text.contains("The lots differ at alpha 0.05"), "{text}");
     assert!(text.contains("Dana Whitfield"), "{text}");
     assert!(text.contains("does not replace"), "{text}");

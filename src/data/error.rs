@@ -59,6 +59,9 @@ pub enum LoadErrorKind {
         /// Columns in the file.
         available: Vec<String>,
     },
+    /// Content that is well formed but not acceptable (a specification's limits or margins,
+    /// an unknown characteristic); the text says what and why.
+    Invalid(String),
     /// The lot column does not hold the two lots asked for.
     LotValues {
         /// What is wrong.
@@ -172,6 +175,7 @@ impl LoadError {
                     .collect::<Vec<_>>()
                     .join(", ")
             ),
+            LoadErrorKind::Invalid(why) => why.clone(),
             LoadErrorKind::LotValues { why, values } => format!(
                 "{why}; the column holds {}",
                 values

@@ -5,6 +5,7 @@ mod delimited;
 mod error;
 mod pair;
 mod sheet;
+pub mod spec;
 mod split;
 
 pub use error::{LoadError, LoadErrorKind, PrepareError};
@@ -483,7 +484,7 @@ pub fn load_two(
         ([one], None) => Err(LoadError::new(
             &one.display().to_string(),
             LoadErrorKind::LotValues {
-                why: "one file needs a lot column to split it into two lots (--split-by COLUMN)"
+                why: "one file needs a lot column to split it into two lots (--lot-column COLUMN)"
                     .into(),
                 values: Vec::new(),
             },
@@ -491,7 +492,7 @@ pub fn load_two(
         ([a, _], Some(_)) => Err(LoadError::new(
             &a.display().to_string(),
             LoadErrorKind::LotValues {
-                why: "a lot column splits one file; with two files leave out --split-by".into(),
+                why: "a lot column splits one file; with two files leave out --lot-column".into(),
                 values: Vec::new(),
             },
         )),

@@ -76,7 +76,7 @@ pub fn split_lot(
             [_] => return Err(err("the lot column holds only one lot".into())),
             _ => {
                 return Err(err(
-                    "the lot column holds more than two lots; choose two (--lots A,B)".into(),
+                    "the lot column holds more than two lots; choose two (--lot-values A,B)".into(),
                 ));
             }
         },

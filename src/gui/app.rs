@@ -28,10 +28,14 @@ pub const SAMPLE_CANDIDATE: (&str, &[u8]) = (
     include_bytes!("../../sample-lots/candidate-route-b.csv"),
 );
 
-/// Colour of the reference lot in every plot.
-pub const REFERENCE_COLOR: Color32 = Color32::from_rgb(46, 112, 196);
-/// Colour of the candidate lot in every plot.
-pub const CANDIDATE_COLOR: Color32 = Color32::from_rgb(214, 110, 32);
+/// Colour of the reference lot in every plot (defined in [`crate::palette`]).
+pub const REFERENCE_COLOR: Color32 = lot_color(crate::palette::REFERENCE);
+/// Colour of the candidate lot in every plot (defined in [`crate::palette`]).
+pub const CANDIDATE_COLOR: Color32 = lot_color(crate::palette::CANDIDATE);
+
+const fn lot_color(s: crate::palette::LotStyle) -> Color32 {
+    Color32::from_rgb(s.rgb[0], s.rgb[1], s.rgb[2])
+}
 
 /// Shortcut: open lot files.
 pub const OPEN: KeyboardShortcut = KeyboardShortcut::new(Modifiers::COMMAND, Key::O);
@@ -45,7 +49,8 @@ pub const EXPORT: KeyboardShortcut = KeyboardShortcut::new(Modifiers::COMMAND, K
 pub enum View {
     /// Verdict, test table, checks, caution.
     #[default]
-    Overview,
+    #[serde(alias = "Overview")]
+    Verdict,
     /// Per-characteristic table.
     Characteristics,
     /// Interval chart.
@@ -59,7 +64,7 @@ pub enum View {
 impl View {
     /// All views in tab order.
     pub const ALL: [View; 5] = [
-        View::Overview,
+        View::Verdict,
         View::Characteristics,
         View::Intervals,
         View::Pairs,
@@ -69,7 +74,7 @@ impl View {
     /// Tab title.
     pub fn title(self) -> &'static str {
         match self {
-            View::Overview => "Verdict",
+            View::Verdict => "Verdict",
             View::Characteristics => "Characteristics",
             View::Intervals => "Intervals",
             View::Pairs => "Pairs",
@@ -77,16 +82,21 @@ impl View {
         }
     }
 
+    /// The view's command-line name (`--view NAME`): the tab title's last word, lower case.
+    pub fn name(self) -> &'static str {
+        match self {
+            View::Verdict => "verdict",
+            View::Characteristics => "characteristics",
+            View::Intervals => "intervals",
+            View::Pairs => "pairs",
+            View::Direction => "direction",
+        }
+    }
+
     /// Parses a command-line view name.
     pub fn from_name(name: &str) -> Option<View> {
-        match name.to_ascii_lowercase().as_str() {
-            "overview" | "verdict" => Some(View::Overview),
-            "characteristics" | "table" => Some(View::Characteristics),
-            "intervals" => Some(View::Intervals),
-            "pairs" | "ellipses" => Some(View::Pairs),
-            "direction" | "discriminant" => Some(View::Direction),
-            _ => None,
-        }
+        let name = name.to_ascii_lowercase();
+        View::ALL.into_iter().find(|v| v.name() == name)
     }
 }
 
@@ -121,7 +131,7 @@ impl Default for Saved {
         Saved {
             settings: Settings::default(),
             coverage: 0.95,
-            view: View::Overview,
+            view: View::Verdict,
             recent: Vec::new(),
             pair: None,
             pair_grid: true,
@@ -695,6 +705,10 @@ impl LotshiftApp {
         self.absorb(outcomes);
         self.shortcuts(&ctx);
         egui::Panel::top("top").show(ui, |ui| self.top_ui(ui));
+        // The disposition caution, one quiet line under every view.
+        egui::Panel::bottom("caution").show(ui, |ui| {
+            ui.label(RichText::new(CAUTION).italics().small().weak());
+        });
         egui::Panel::left("lots")
             .resizable(true)
             .default_size(320.0)
@@ -874,7 +888,7 @@ impl LotshiftApp {
         let mut resplit = false;
         if let Some(c) = &mut self.combined {
             ui.add_space(6.0);
-            ui.strong(format!("Split {}", c.table.provenance.file_name));
+            ui.strong(format!("Lots in {}", c.table.provenance.file_name));
             let before = (c.column.clone(), c.values.clone());
             egui::ComboBox::from_label("lot column")
                 .selected_text(c.column.clone())
@@ -892,7 +906,10 @@ impl LotshiftApp {
             if before.0 != c.column && values.len() >= 2 {
                 c.values = [values[0].clone(), values[1].clone()];
             }
-            for (k, label) in ["reference value", "candidate value"].iter().enumerate() {
+            for (k, label) in ["reference lot value", "candidate lot value"]
+                .iter()
+                .enumerate()
+            {
                 egui::ComboBox::from_label(*label)
                     .selected_text(c.values[k].clone())
                     .show_ui(ui, |ui| {
@@ -1095,7 +1112,7 @@ impl LotshiftApp {
             return;
         };
         match self.saved.view {
-            View::Overview => overview::overview_ui(ui, shown),
+            View::Verdict => overview::overview_ui(ui, shown),
             View::Characteristics => characteristics::table_ui(ui, shown, &mut self.saved),
             View::Intervals => intervals::intervals_ui(ui, shown),
             View::Pairs => pairs::pairs_ui(ui, shown, &mut self.saved),
@@ -1154,10 +1171,20 @@ fn settled(r: &egui::Response) -> bool {
     r.changed() && !r.dragged() || r.drag_stopped()
 }
 
-/// A small filled square in `color`, as a legend key.
+/// A small square in `color` as a legend key: filled for the reference lot, an outline for
+/// the candidate lot (the lots' marker fills, see [`crate::palette`]).
 pub fn swatch(ui: &mut egui::Ui, color: Color32) {
     let (rect, _) = ui.allocate_exact_size(egui::vec2(12.0, 12.0), egui::Sense::hover());
-    ui.painter().rect_filled(rect, 2.0, color);
+    if color == CANDIDATE_COLOR && !crate::palette::CANDIDATE.filled {
+        ui.painter().rect_stroke(
+            rect.shrink(1.0),
+            2.0,
+            egui::Stroke::new(2.0, color),
+            egui::StrokeKind::Inside,
+        );
+    } else {
+        ui.painter().rect_filled(rect, 2.0, color);
+    }
 }
 
 fn s_missing(shown: Option<&Shown>, lot: usize) -> Vec<String> {

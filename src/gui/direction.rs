@@ -81,8 +81,19 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         return;
     };
     let chart = |g: usize, color: Color32, name: &str| {
+        // The reference lot's bars are filled, the candidate's drawn as outlines (palette).
+        let filled = crate::palette::LOTS[g].filled;
         let bars = (0..h.counts[g].len())
-            .map(|b| Bar::new(h.start + (b as f64 + 0.5) * h.width, h.density(g, b)).width(h.width))
+            .map(|b| {
+                let bar = Bar::new(h.start + (b as f64 + 0.5) * h.width, h.density(g, b))
+                    .width(h.width)
+                    .stroke(egui::Stroke::new(if filled { 1.0 } else { 1.8 }, color));
+                if filled {
+                    bar.fill(color.linear_multiply(0.45))
+                } else {
+                    bar
+                }
+            })
             .collect();
         BarChart::new(name.to_string(), bars).color(color)
     };

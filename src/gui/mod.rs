@@ -29,7 +29,8 @@ pub fn run(files: Vec<PathBuf>, screenshot: Option<PathBuf>, view: Option<String
         Some(Some(v)) => Some(v),
         Some(None) => {
             eprintln!(
-                "lotshift: error: unknown view; use overview, characteristics, intervals, pairs or direction"
+                "lotshift: error: unknown view; use one of: {}",
+                View::ALL.map(View::name).join(", ")
             );
             return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
         }

@@ -4,7 +4,7 @@
 use egui::RichText;
 
 use crate::analysis::{format_p, format_sig};
-use crate::report::{CAUTION, box_m_line, mardia_line, permutation_line, unequal_line};
+use crate::report::{box_m_line, mardia_line, permutation_line, unequal_line};
 
 use super::app::test_line;
 use super::shown::Shown;
@@ -130,8 +130,6 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown) {
         }
         ui.add_space(8.0);
         ui.label(RichText::new(test_line(s)).monospace());
-        ui.add_space(8.0);
-        ui.label(RichText::new(CAUTION).italics());
     });
 }
 

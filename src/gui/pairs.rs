@@ -127,8 +127,9 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                     for (g, color, name) in &lots {
                         plot.points(
                             Points::new(name.clone(), PlotPoints::Borrowed(&view.points[*g]))
-                                .color(color.gamma_multiply(0.7))
-                                .radius(2.5),
+                                .color(color.gamma_multiply(0.8))
+                                .filled(crate::palette::LOTS[*g].filled)
+                                .radius(2.8),
                         );
                         // Same name as the units: one legend entry per lot.
                         if let Some(e) = &view.geometry.mean_regions[*g] {
@@ -149,7 +150,8 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                         }
                         plot.points(
                             Points::new(name.clone(), vec![view.geometry.means[*g]])
-                                .shape(MarkerShape::Cross)
+                                .shape(MarkerShape::Diamond)
+                                .filled(crate::palette::LOTS[*g].filled)
                                 .radius(7.0)
                                 .color(*color)
                                 .allow_hover(false),
@@ -293,7 +295,8 @@ fn grid_ui(ui: &mut egui::Ui, s: &mut Shown, coverage: f64, width: f32) -> Optio
                             let pts = &view.points[g][..view.points[g].len().min(SMALL_POINTS)];
                             plot.points(
                                 Points::new(format!("lot {g}"), PlotPoints::Borrowed(pts))
-                                    .color(color.gamma_multiply(0.5))
+                                    .color(color.gamma_multiply(0.6))
+                                    .filled(crate::palette::LOTS[g].filled)
                                     .radius(1.2)
                                     .allow_hover(false),
                             );

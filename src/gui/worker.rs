@@ -193,7 +193,7 @@ impl Worker {
                 })
                 .add_filter(
                     "Lot files",
-                    &["csv", "tsv", "txt", "xlsx", "xlsm", "xls", "ods"],
+                    &["csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods"],
                 )
                 .add_filter("All files", &["*"]);
             let paths = if slot == Slot::Both {

@@ -52,7 +52,7 @@ td.name, th.name { text-align: left; }
 .muted { color: #555; font-size: 12px; }
 svg { display: block; margin: 8px 0; }
 .chart { break-inside: avoid; page-break-inside: avoid; }
-@page { margin: 14mm; }
+@page { margin: 14mm 14mm 20mm 14mm; }
 @media print {
   body { margin: 0; max-width: none; font-size: 10pt; }
   h2 { break-after: avoid; page-break-after: avoid; }
@@ -60,6 +60,21 @@ svg { display: block; margin: 8px 0; }
   svg { max-width: 100%; height: auto; }
 }
 "#;
+
+/// The caution in the footer of every printed page (a CSS page-margin box, so it never
+/// covers the content).
+fn page_footer() -> String {
+    let quoted: String = CAUTION
+        .chars()
+        .flat_map(|c| match c {
+            '"' | '\\' => vec!['\\', c],
+            c => vec![c],
+        })
+        .collect();
+    format!(
+        "@page {{ @bottom-center {{ content: \"{quoted}\"; font-family: \"DejaVu Sans\", Arial, sans-serif; font-size: 7.5pt; font-style: italic; color: #333; }} }}"
+    )
+}
 
 /// Renders a record (`signature` absent) or a signed summary as one HTML page.
 pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
@@ -69,9 +84,10 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
     let lot_name = |i: usize| lots.get(i).map(|l| text(&l["name"])).unwrap_or_default();
     let _ = write!(
         h,
-        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>lotshift comparison: {} vs {}</title><style>{STYLE}</style></head><body>\n",
+        "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>lotshift comparison: {} vs {}</title><style>{STYLE}{}</style></head><body>\n",
         esc(&lot_name(0)),
-        esc(&lot_name(1))
+        esc(&lot_name(1)),
+        page_footer()
     );
     let _ = writeln!(
         h,
@@ -112,7 +128,7 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
         Some(s) => {
             let _ = writeln!(
                 h,
-                "<div class=\"signature\" id=\"signature\"><b>Electronically signed</b><br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b><br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of the record and this signature manifestation. Check it with <code>lotshift verify SUMMARY.json --lots REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
+                "<div class=\"signature\" id=\"signature\"><b>Electronically signed</b><br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b><br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of the record and this signature manifestation. Check it with <code>lotshift verify SUMMARY.json --files REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
                 esc(&text(&s["signer"])),
                 esc(&text(&s["signed_at"])),
                 esc(&text(&s["meaning"])),
@@ -351,14 +367,21 @@ fn score_chart(r: &Value) -> String {
     let mut s = format!(
         "<div class=\"chart\"><svg id=\"score-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-size=\"12\">"
     );
-    for (g, color) in [(0, "#2e70c4"), (1, "#d66e20")] {
+    for (g, style) in crate::palette::LOTS.iter().enumerate() {
+        let color = style.hex;
+        // Filled bars for the reference lot, outlines for the candidate (palette).
+        let (opacity, stroke) = if style.filled {
+            (0.45, 1.0)
+        } else {
+            (0.0, 1.6)
+        };
         for (b, &d) in dens[g].iter().enumerate() {
             let x0 = x(start + width * b as f64);
             let x1 = x(start + width * (b + 1) as f64);
             let y0 = y(d);
             let _ = write!(
                 s,
-                "<rect x=\"{x0:.1}\" y=\"{y0:.1}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"{color}\" fill-opacity=\"0.45\" stroke=\"{color}\"/>",
+                "<rect x=\"{x0:.1}\" y=\"{y0:.1}\" width=\"{:.1}\" height=\"{:.1}\" fill=\"{color}\" fill-opacity=\"{opacity}\" stroke=\"{color}\" stroke-width=\"{stroke}\"/>",
                 (x1 - x0).max(0.5),
                 (bottom - y0).max(0.0)
             );
@@ -366,7 +389,7 @@ fn score_chart(r: &Value) -> String {
     }
     let _ = write!(
         s,
-        "<line x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"8\" y2=\"{bottom}\" stroke=\"#333\" stroke-dasharray=\"4 3\"/><line x1=\"{left}\" x2=\"{right}\" y1=\"{bottom}\" y2=\"{bottom}\" stroke=\"#333\"/><text x=\"{1}\" y=\"{2}\" text-anchor=\"middle\">discriminant score (blue: reference, orange: candidate; dashed: allocation cut-off)</text></svg></div>",
+        "<line x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"8\" y2=\"{bottom}\" stroke=\"#333\" stroke-dasharray=\"4 3\"/><line x1=\"{left}\" x2=\"{right}\" y1=\"{bottom}\" y2=\"{bottom}\" stroke=\"#333\"/><text x=\"{1}\" y=\"{2}\" text-anchor=\"middle\">discriminant score (filled indigo: reference, amber outline: candidate; dashed: allocation cut-off)</text></svg></div>",
         x(0.0),
         (left + right) / 2.0,
         h - 12.0
@@ -442,7 +465,7 @@ fn pair_chart(r: &Value) -> String {
         esc(&names[j])
     );
     for (g, o, dashed) in &shapes {
-        let color = if *g == 0 { "#2e70c4" } else { "#d66e20" };
+        let color = crate::palette::LOTS[*g].hex;
         let d: Vec<String> = o
             .iter()
             .map(|p| format!("{:.1},{:.1}", x(p[0]), y(p[1])))
@@ -460,17 +483,19 @@ fn pair_chart(r: &Value) -> String {
         );
     }
     for (g, m) in means.iter().enumerate() {
-        let color = if g == 0 { "#2e70c4" } else { "#d66e20" };
+        let style = crate::palette::LOTS[g];
+        let color = style.hex;
+        let fill = if style.filled { color } else { "#ffffff" };
         let _ = write!(
             s,
-            "<circle cx=\"{:.1}\" cy=\"{:.1}\" r=\"4\" fill=\"{color}\"/>",
+            "<circle cx=\"{:.1}\" cy=\"{:.1}\" r=\"4.5\" fill=\"{fill}\" stroke=\"{color}\" stroke-width=\"2\"/>",
             x(m[0]),
             y(m[1])
         );
     }
     let _ = write!(
         s,
-        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">{} ({} to {})</text><text x=\"14\" y=\"{}\" transform=\"rotate(-90 14 {})\" text-anchor=\"middle\">{} ({} to {})</text></svg><div class=\"muted\">Solid: each lot's {}% confidence ellipse for its mean (this pair alone). Dashed: normal-theory data ellipses holding 95% of a lot's units. Blue: reference; orange: candidate.</div></div>",
+        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">{} ({} to {})</text><text x=\"14\" y=\"{}\" transform=\"rotate(-90 14 {})\" text-anchor=\"middle\">{} ({} to {})</text></svg><div class=\"muted\">Solid: each lot's {}% confidence ellipse for its mean (this pair alone). Dashed: normal-theory data ellipses holding 95% of a lot's units. Indigo with a filled mean: reference; amber with a hollow mean: candidate.</div></div>",
         w / 2.0,
         h - 30.0,
         esc(&names[i]),

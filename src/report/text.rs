@@ -257,7 +257,7 @@ fn checks_text(s: &mut String, c: &Comparison) {
         };
         let _ = writeln!(
             s,
-            "  Shapiro-Wilk {:<20} lot 1: {:<28} lot 2: {}",
+            "  Shapiro–Wilk {:<20} lot 1: {:<28} lot 2: {}",
             row.characteristic,
             cell(&row.lots[0]),
             cell(&row.lots[1])
@@ -277,7 +277,7 @@ fn checks_text(s: &mut String, c: &Comparison) {
     if let Some(u) = &c.unequal_covariance {
         let _ = writeln!(
             s,
-            "  Unequal covariances (Krishnamoorthy-Yu): {}",
+            "  Unequal covariances (Krishnamoorthy–Yu): {}",
             unequal_line(u)
         );
     }

@@ -78,8 +78,12 @@ mod tests {
 
     #[test]
     fn data_ellipse_scale_is_chi_square() {
-        // Chi-square table: upper 5% point with 2 df is 5.991.
+        // Printed chi-square table: the upper 5% point with 2 df is 5.991 (common practice;
+        // value from memory). Exactly: chi-square with 2 df is exponential with mean 2, so its
+        // upper-q point is −2 ln q (a mathematical identity).
         assert!((data_r2(0.95) - 5.991).abs() < 5e-4);
+        assert!((data_r2(0.95) + 2.0 * 0.05_f64.ln()).abs() < 1e-12);
+        assert!((data_r2(0.99) + 2.0 * 0.01_f64.ln()).abs() < 1e-12);
         assert!((dist::chi2_isf(0.05, 2.0) - data_r2(0.95)).abs() < 1e-9);
     }
 }
