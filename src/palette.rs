@@ -15,6 +15,8 @@ pub struct LotStyle {
     pub rgb: [u8; 3],
     /// The same colour as a CSS hex string.
     pub hex: &'static str,
+    /// A lighter shade of the same hue for dark backgrounds (the window's dark theme).
+    pub rgb_on_dark: [u8; 3],
     /// Whether the lot's markers (units, means, histogram bars) are filled (else hollow).
     pub filled: bool,
 }
@@ -23,6 +25,7 @@ pub struct LotStyle {
 pub const REFERENCE: LotStyle = LotStyle {
     rgb: [0x2b, 0x35, 0x94],
     hex: "#2b3594",
+    rgb_on_dark: [0x8c, 0x98, 0xff],
     filled: true,
 };
 
@@ -30,6 +33,7 @@ pub const REFERENCE: LotStyle = LotStyle {
 pub const CANDIDATE: LotStyle = LotStyle {
     rgb: [0xc2, 0x7c, 0x0e],
     hex: "#c27c0e",
+    rgb_on_dark: [0xf0, 0xa8, 0x30],
     filled: false,
 };
 
@@ -69,6 +73,16 @@ mod tests {
         let ratio = (l[1].max(l[0]) + 0.05) / (l[1].min(l[0]) + 0.05);
         assert!(ratio >= 3.0, "contrast {ratio}");
         assert_ne!(REFERENCE.filled, CANDIDATE.filled);
+    }
+
+    #[test]
+    fn dark_shades_stand_out_on_a_dark_background() {
+        // WCAG 2.x contrast against egui's dark panel colour (27, 27, 27): at least 4.5.
+        let bg = relative_luminance([27, 27, 27]);
+        for s in LOTS {
+            let ratio = (relative_luminance(s.rgb_on_dark) + 0.05) / (bg + 0.05);
+            assert!(ratio >= 4.5, "{:?}: {ratio}", s.rgb_on_dark);
+        }
     }
 
     #[test]

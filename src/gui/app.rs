@@ -28,13 +28,14 @@ pub const SAMPLE_CANDIDATE: (&str, &[u8]) = (
     include_bytes!("../../sample-lots/candidate-route-b.csv"),
 );
 
-/// Colour of the reference lot in every plot (defined in [`crate::palette`]).
-pub const REFERENCE_COLOR: Color32 = lot_color(crate::palette::REFERENCE);
-/// Colour of the candidate lot in every plot (defined in [`crate::palette`]).
-pub const CANDIDATE_COLOR: Color32 = lot_color(crate::palette::CANDIDATE);
-
-const fn lot_color(s: crate::palette::LotStyle) -> Color32 {
-    Color32::from_rgb(s.rgb[0], s.rgb[1], s.rgb[2])
+/// Colours of the reference and candidate lots in every plot, for the window's theme
+/// (defined in [`crate::palette`]: the lighter shades on a dark background).
+pub fn lot_colors(ui: &egui::Ui) -> [Color32; 2] {
+    let dark = ui.visuals().dark_mode;
+    crate::palette::LOTS.map(|s| {
+        let c = if dark { s.rgb_on_dark } else { s.rgb };
+        Color32::from_rgb(c[0], c[1], c[2])
+    })
 }
 
 /// Shortcut: open lot files.
@@ -827,12 +828,16 @@ impl LotshiftApp {
 
     fn lot_slot_ui(&mut self, ui: &mut egui::Ui, i: usize) {
         let (title, color) = if i == 0 {
-            ("Reference lot", REFERENCE_COLOR)
+            ("Reference lot", 0)
         } else {
-            ("Candidate lot", CANDIDATE_COLOR)
+            ("Candidate lot", 1)
         };
         ui.horizontal(|ui| {
-            swatch(ui, color);
+            swatch(
+                ui,
+                lot_colors(ui)[color],
+                crate::palette::LOTS[color].filled,
+            );
             ui.strong(title);
             if self.combined.is_none() && ui.small_button("Open…").clicked() {
                 self.worker.pick(if i == 0 {
@@ -1171,11 +1176,11 @@ fn settled(r: &egui::Response) -> bool {
     r.changed() && !r.dragged() || r.drag_stopped()
 }
 
-/// A small square in `color` as a legend key: filled for the reference lot, an outline for
-/// the candidate lot (the lots' marker fills, see [`crate::palette`]).
-pub fn swatch(ui: &mut egui::Ui, color: Color32) {
+/// A small square in `color` as a legend key, filled or as an outline (the lots' marker
+/// fills, see [`crate::palette`]).
+pub fn swatch(ui: &mut egui::Ui, color: Color32, filled: bool) {
     let (rect, _) = ui.allocate_exact_size(egui::vec2(12.0, 12.0), egui::Sense::hover());
-    if color == CANDIDATE_COLOR && !crate::palette::CANDIDATE.filled {
+    if !filled {
         ui.painter().rect_stroke(
             rect.shrink(1.0),
             2.0,

@@ -6,7 +6,7 @@ use egui_plot::{Bar, BarChart, Legend, Plot, VLine};
 
 use crate::analysis::format_sig;
 
-use super::app::{CANDIDATE_COLOR, REFERENCE_COLOR};
+use super::app::lot_colors;
 use super::shown::Shown;
 
 /// Draws the direction view.
@@ -97,6 +97,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
             .collect();
         BarChart::new(name.to_string(), bars).color(color)
     };
+    let colors = lot_colors(ui);
     let ref_name = format!("reference: {}", c.lots[0].name);
     let cand_name = format!("candidate: {}", c.lots[1].name);
     Plot::new("scores")
@@ -109,8 +110,8 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         ))
         .y_axis_label("density")
         .show(ui, |plot| {
-            plot.bar_chart(chart(0, REFERENCE_COLOR, &ref_name));
-            plot.bar_chart(chart(1, CANDIDATE_COLOR, &cand_name));
+            plot.bar_chart(chart(0, colors[0], &ref_name));
+            plot.bar_chart(chart(1, colors[1], &cand_name));
             plot.vline(VLine::new("allocation cut-off", 0.0).color(Color32::GRAY));
         });
 }

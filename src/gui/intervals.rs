@@ -48,7 +48,7 @@ pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
             (ONE, "one at a time"),
             (POINT, "difference"),
         ] {
-            super::app::swatch(ui, color);
+            super::app::swatch(ui, color, true);
             ui.label(name);
             ui.add_space(10.0);
         }

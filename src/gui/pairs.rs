@@ -7,7 +7,7 @@ use egui_plot::{Legend, Line, LineStyle, MarkerShape, Plot, PlotPoints, Points};
 
 use crate::analysis::{format_confidence, format_sig};
 
-use super::app::{CANDIDATE_COLOR, REFERENCE_COLOR, Saved};
+use super::app::{Saved, lot_colors};
 use super::shown::{SMALL_POINTS, Shown};
 
 /// Characteristics in the small-multiples grid (those driving the shift most).
@@ -44,6 +44,7 @@ fn label(s: &Shown, k: usize) -> String {
 
 /// Draws the pair view.
 pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
+    let colors = lot_colors(ui);
     let Some((mut i, mut j)) = current_pair(s, saved) else {
         ui.label("Pairs need at least two characteristics.");
         return;
@@ -96,12 +97,12 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
             let lots = [
                 (
                     0,
-                    REFERENCE_COLOR,
+                    colors[0],
                     format!("reference: {}", s.comparison.lots[0].name),
                 ),
                 (
                     1,
-                    CANDIDATE_COLOR,
+                    colors[1],
                     format!("candidate: {}", s.comparison.lots[1].name),
                 ),
             ];
@@ -253,6 +254,7 @@ fn contains_origin(o: &[[f64; 2]]) -> bool {
 }
 
 fn grid_ui(ui: &mut egui::Ui, s: &mut Shown, coverage: f64, width: f32) -> Option<(usize, usize)> {
+    let colors = lot_colors(ui);
     let names = s.comparison.characteristics.clone();
     let lead: Vec<usize> = s
         .comparison
@@ -291,7 +293,7 @@ fn grid_ui(ui: &mut egui::Ui, s: &mut Shown, coverage: f64, width: f32) -> Optio
                     .show_x(false)
                     .show_y(false)
                     .show(ui, |plot| {
-                        for (g, color) in [(0, REFERENCE_COLOR), (1, CANDIDATE_COLOR)] {
+                        for (g, color) in [(0, colors[0]), (1, colors[1])] {
                             let pts = &view.points[g][..view.points[g].len().min(SMALL_POINTS)];
                             plot.points(
                                 Points::new(format!("lot {g}"), PlotPoints::Borrowed(pts))
