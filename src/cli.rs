@@ -653,10 +653,7 @@ fn inspect(a: InspectArgs) -> CliResult {
             other => format!("{other:?}"),
         };
         outln!("delimiter   {name}");
-        outln!(
-            "decimal     {}",
-            if p.decimal_comma { "comma" } else { "point" }
-        );
+        outln!("decimal     {}", p.decimal_mark);
     }
     if let Some(e) = &p.encoding {
         outln!("encoding    {e}");

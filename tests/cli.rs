@@ -507,3 +507,30 @@ fn every_command_line_in_the_readme_runs() {
     }
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+#[test]
+fn one_file_without_a_lot_column_names_the_likely_one() {
+    let o = run(&["compare", sample("both-routes.csv").to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    let err = stderr(&o);
+    assert!(
+        err.contains("give --lot-column COLUMN; \"route\" looks like one (values \"A\", \"B\")"),
+        "{err}"
+    );
+    assert!(!err.trim_end().ends_with("holds"), "{err}");
+}
+
+#[test]
+fn inspect_reports_the_decimal_mark_it_read() {
+    // A semicolon file whose numbers use a decimal point: read correctly, and reported so.
+    let dir = tmpdir("decimal");
+    let f = dir.join("points.csv");
+    std::fs::write(&f, "a;b\n1.5;2.25\n3.5;4.75\n").unwrap();
+    let o = run(&["inspect", f.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(out.contains("delimiter   semicolon"), "{out}");
+    assert!(out.contains("decimal     point"), "{out}");
+    assert!(out.contains("1.5 | 2.25"), "{out}");
+    std::fs::remove_dir_all(dir).unwrap();
+}

@@ -60,14 +60,8 @@ fn sniff_delimiter(sample: &[u8]) -> u8 {
     best.0
 }
 
-/// Decimal comma for tab-separated files: when number-like cells use a comma and none a point.
-fn sniff_decimal_comma(sample: &[u8], delim: u8) -> bool {
-    if delim == b';' {
-        return true;
-    }
-    if delim != b'\t' {
-        return false;
-    }
+/// Number-like cells in the sample that use a decimal comma, and that use a decimal point.
+fn decimal_marks(sample: &[u8], delim: u8) -> (usize, usize) {
     let (mut comma, mut point) = (0, 0);
     for field in sample.split(|&b| b == delim || b == b'\n' || b == b'\r') {
         let f = field.trim_ascii();
@@ -81,7 +75,31 @@ fn sniff_decimal_comma(sample: &[u8], delim: u8) -> bool {
             point += 1;
         }
     }
-    comma > 0 && point == 0
+    (comma, point)
+}
+
+/// Whether to read a decimal comma: always for semicolon files (spreadsheet exports that use
+/// a semicolon use a decimal comma; a decimal point is read there too), and for tab files
+/// when number-like cells use a comma and none a point.
+fn sniff_decimal_comma(sample: &[u8], delim: u8) -> bool {
+    let (comma, point) = decimal_marks(sample, delim);
+    match delim {
+        b';' => true,
+        b'\t' => comma > 0 && point == 0,
+        _ => false,
+    }
+}
+
+/// The decimal mark the file's numbers were seen to use, as `inspect` reports it.
+fn decimal_mark_seen(sample: &[u8], delim: u8, decimal_comma: bool) -> String {
+    match (decimal_marks(sample, delim), decimal_comma) {
+        ((0, 0), true) => "comma (no decimals in the first lines)".into(),
+        ((0, 0), false) => "point (no decimals in the first lines)".into(),
+        ((_, 0), _) => "comma".into(),
+        ((0, _), _) => "point".into(),
+        (_, true) => "comma and point (both read)".into(),
+        (_, false) => "point".into(),
+    }
 }
 
 /// True when the fast splitter reads the text exactly as the CSV parser would: no quote
@@ -463,6 +481,7 @@ fn read_source(
     provenance.format = if delim == b'\t' { "tsv" } else { "csv" }.into();
     provenance.delimiter = Some(delim as char);
     provenance.decimal_comma = decimal_comma;
+    provenance.decimal_mark = decimal_mark_seen(&head[..sample_end], delim, decimal_comma);
     provenance.encoding = Some(if latin1 { "Latin-1" } else { "UTF-8" }.into());
     if latin1 {
         provenance

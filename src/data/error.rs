@@ -176,6 +176,7 @@ impl LoadError {
                     .join(", ")
             ),
             LoadErrorKind::Invalid(why) => why.clone(),
+            LoadErrorKind::LotValues { why, values } if values.is_empty() => why.clone(),
             LoadErrorKind::LotValues { why, values } => format!(
                 "{why}; the column holds {}",
                 values

@@ -10,7 +10,7 @@ mod split;
 
 pub use error::{LoadError, LoadErrorKind, PrepareError};
 pub use pair::{Prepared, PreparedLot, Selection, Unmatched, prepare, prepare_releasing};
-pub use split::{lot_values, split_lot};
+pub use split::{lot_column_candidates, lot_values, split_lot};
 
 use std::path::Path;
 
@@ -42,6 +42,9 @@ pub struct Provenance {
     pub delimiter: Option<char>,
     /// Whether a decimal comma was read.
     pub decimal_comma: bool,
+    /// The decimal mark the numbers were seen to use (text files), for `inspect`.
+    #[serde(default)]
+    pub decimal_mark: String,
     /// Text encoding of a text file.
     pub encoding: Option<String>,
     /// Sheet read from a spreadsheet.
@@ -386,6 +389,7 @@ fn new_provenance(
         format: String::new(),
         delimiter: None,
         decimal_comma: false,
+        decimal_mark: String::new(),
         encoding: None,
         sheet: None,
         split: None,
@@ -481,14 +485,33 @@ pub fn load_two(
             });
             Ok([ra?, rb?])
         }
-        ([one], None) => Err(LoadError::new(
-            &one.display().to_string(),
-            LoadErrorKind::LotValues {
-                why: "one file needs a lot column to split it into two lots (--lot-column COLUMN)"
-                    .into(),
-                values: Vec::new(),
-            },
-        )),
+        ([one], None) => {
+            let display = one.display().to_string();
+            let table = load(one, options)?;
+            let hint = lot_column_candidates(&table)
+                .into_iter()
+                .next()
+                .map(|(column, values)| {
+                    let shown: Vec<String> =
+                        values.iter().take(5).map(|v| format!("\"{v}\"")).collect();
+                    format!(
+                        "; \"{column}\" looks like one (values {}{})",
+                        shown.join(", "),
+                        if values.len() > 5 { ", …" } else { "" }
+                    )
+                })
+                .unwrap_or_else(|| {
+                    "; no column with 2 to 50 distinct values looks like a lot column, so give \
+                     the reference and the candidate lot files"
+                        .into()
+                });
+            Err(LoadError::new(
+                &display,
+                LoadErrorKind::Invalid(format!(
+                    "one file holds two lots only with a lot column: give --lot-column COLUMN{hint}"
+                )),
+            ))
+        }
         ([a, _], Some(_)) => Err(LoadError::new(
             &a.display().to_string(),
             LoadErrorKind::LotValues {

@@ -18,6 +18,34 @@ pub fn lot_values(lot: &Lot, column: &str) -> Result<Vec<String>, LoadError> {
     Ok(seen)
 }
 
+/// Columns that can tell two lots apart in one file, with their distinct values (2 to 50 of
+/// them), those whose name says it holds lots (lot, route, batch...) first. Numeric columns
+/// count too (lot codes 1, 2...).
+pub fn lot_column_candidates(table: &Lot) -> Vec<(String, Vec<String>)> {
+    let mut candidates = Vec::new();
+    for c in &table.columns {
+        let mut values: Vec<String> = Vec::new();
+        for i in 0..table.len() {
+            let v = c.text(i);
+            if !v.is_empty() && !values.contains(&v) {
+                values.push(v);
+                if values.len() > 50 {
+                    break;
+                }
+            }
+        }
+        if (2..=50).contains(&values.len()) {
+            candidates.push((c.header.clone(), values));
+        }
+    }
+    let hint = ["lot", "route", "batch", "group", "site", "line", "supplier"];
+    candidates.sort_by_key(|(name, _)| {
+        let n = name.to_lowercase();
+        !hint.iter().any(|h| n.contains(h))
+    });
+    candidates
+}
+
 fn find<'a>(lot: &'a Lot, column: &str) -> Result<&'a Column, LoadError> {
     lot.column(column).ok_or_else(|| LoadError {
         column: Some(column.to_string()),

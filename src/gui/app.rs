@@ -604,29 +604,7 @@ impl LotshiftApp {
     }
 
     fn set_combined(&mut self, table: Lot) {
-        let mut candidates = Vec::new();
-        for c in &table.columns {
-            // Text columns, and numeric ones used as lot codes (1, 2...).
-            let mut values: Vec<String> = Vec::new();
-            for i in 0..table.len() {
-                let v = c.text(i);
-                if !v.is_empty() && !values.contains(&v) {
-                    values.push(v);
-                    if values.len() > 50 {
-                        break;
-                    }
-                }
-            }
-            if (2..=50).contains(&values.len()) {
-                candidates.push((c.header.clone(), values));
-            }
-        }
-        // Prefer a column whose name says it holds lots.
-        let hint = ["lot", "route", "batch", "group", "site", "line", "supplier"];
-        candidates.sort_by_key(|(name, _)| {
-            let n = name.to_lowercase();
-            !hint.iter().any(|h| n.contains(h))
-        });
+        let candidates = data::lot_column_candidates(&table);
         let Some((column, values)) = candidates.first().cloned() else {
             self.messages.push(format!(
                 "{}: no text column with between 2 and 50 distinct values to split the lots by; \
