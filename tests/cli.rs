@@ -242,14 +242,7 @@ fn compare_stats_from_summary_statistics() {
 fn compare_stats_on_the_bundled_certificate_matches_numpy() {
     // The invented supplier certificate (sample-lots/generate.py); T², F and p computed from
     // the same JSON with numpy/scipy by tests/fixtures/make_fixtures.py.
-    let fx: serde_json::Value = serde_json::from_str(
-        &std::fs::read_to_string(concat!(
-            env!("CARGO_MANIFEST_DIR"),
-            "/tests/fixtures/reference.json"
-        ))
-        .unwrap(),
-    )
-    .unwrap();
+    let fx = common::reference_fixtures();
     let want = &fx["sample_lots"]["supplier_certificate"];
     let o = run(&[
         "compare-stats",

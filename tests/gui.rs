@@ -1,5 +1,7 @@
 //! The window, driven headless through egui_kittest's accessibility tree: no display needed.
 
+mod common;
+
 use std::time::{Duration, Instant};
 
 use egui_kittest::Harness;
@@ -20,13 +22,7 @@ fn harness() -> Harness<'static, LotshiftApp> {
 /// T² of the bundled reference/candidate pair, computed independently with numpy from the
 /// CSV files by tests/fixtures/make_fixtures.py (key `sample_lots`).
 fn sample_t2() -> f64 {
-    let text = std::fs::read_to_string(concat!(
-        env!("CARGO_MANIFEST_DIR"),
-        "/tests/fixtures/reference.json"
-    ))
-    .unwrap();
-    let fx: serde_json::Value = serde_json::from_str(&text).unwrap();
-    fx["sample_lots"]["reference_candidate"]["t2"]
+    common::reference_fixtures()["sample_lots"]["reference_candidate"]["t2"]
         .as_f64()
         .unwrap()
 }

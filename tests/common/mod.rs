@@ -14,3 +14,14 @@ pub fn sample(name: &str) -> PathBuf {
 pub fn names(p: usize) -> Vec<String> {
     (0..p).map(|k| format!("c{k}")).collect()
 }
+
+/// The committed numpy/scipy/mpmath fixtures (tests/fixtures/reference.json, written by
+/// tests/fixtures/make_fixtures.py).
+pub fn reference_fixtures() -> serde_json::Value {
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/tests/fixtures/reference.json"
+    ))
+    .expect("fixture file");
+    serde_json::from_str(&text).expect("fixture JSON")
+}
