@@ -230,8 +230,27 @@ def write_certificate():
     write("supplier-certificate.json", "\n".join(lines) + "\n")
 
 
+# The hub's drawing tolerances and the equivalence margins of the (invented) quality plan for
+# the route change: each margin is about 15% of the tolerance width, rounded, set before any
+# route-B hub was measured. name, unit, lower, target, upper, margin.
+SPEC = [
+    ("bore diameter", "mm", "11.982", "12.000", "12.018", "0.005"),
+    ("outer diameter", "mm", "39.975", "40.000", "40.025", "0.0075"),
+    ("hub length", "mm", "27.900", "28.000", "28.100", "0.030"),
+    ("flange thickness", "mm", "5.950", "6.000", "6.050", "0.015"),
+    ("mass", "g", "140.50", "142.00", "143.50", "0.45"),
+]
+
+
+def write_spec():
+    lines = ["characteristic,unit,lower,target,upper,margin"]
+    lines += [",".join(row) for row in SPEC]
+    write("hub-spec.csv", "\n".join(lines) + "\n")
+
+
 def main():
     write_certificate()
+    write_spec()
     seed = pick_seed()
     rng = random.Random(seed)
     a = draw_lot(rng, 40, [0.0] * 5)

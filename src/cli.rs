@@ -5,8 +5,10 @@ use std::process::ExitCode;
 
 use clap::{Args, Parser, Subcommand};
 
+use crate::analysis::decision::MarginRule;
 use crate::analysis::{self, Settings, Silent, SummaryLot, format_sig};
 use crate::data::{self, ColumnData, LoadOptions, Lot, Selection};
+use crate::pipeline::{self, Request, SpecRequest};
 use crate::report::{self, Record, html, sign};
 
 /// Writes a line to standard output; a closed pipe (`lotshift ... | head`) is not an error
@@ -96,6 +98,10 @@ pub struct VerifyArgs {
     /// The expected signer's public key (PEM).
     #[arg(long, value_name = "PUB")]
     pub key: Option<PathBuf>,
+    /// The specification file the comparison used: checks its SHA-256 and recomputes from
+    /// the file's limits and margins (without it, from the ones the record holds).
+    #[arg(long, value_name = "FILE")]
+    pub spec: Option<PathBuf>,
 }
 
 /// Arguments of `report`.
@@ -132,6 +138,20 @@ pub struct PlanArgs {
     /// Significance level.
     #[arg(long, default_value_t = 0.05)]
     pub alpha: f64,
+    /// Plan the multivariate equivalence test instead: the margin ε on the Mahalanobis
+    /// distance (--distance is then the true distance assumed, below ε).
+    #[arg(long, value_name = "E", conflicts_with = "margin")]
+    pub equivalence_distance: Option<f64>,
+    /// Plan the two one-sided tests of one characteristic instead: the symmetric margin, in
+    /// the characteristic's unit (needs --sd).
+    #[arg(long, value_name = "M", requires = "sd", conflicts_with_all = ["characteristics", "distance", "from_summary"])]
+    pub margin: Option<f64>,
+    /// Standard deviation of the characteristic, for --margin.
+    #[arg(long, value_name = "S", requires = "margin")]
+    pub sd: Option<f64>,
+    /// True difference between the lot means assumed, for --margin (default 0).
+    #[arg(long, value_name = "D", requires = "margin", default_value_t = 0.0)]
+    pub difference: f64,
 }
 
 /// Which lots to read and which characteristics to compare.
@@ -161,12 +181,63 @@ pub struct LotArgs {
     pub exclude: Vec<String>,
 }
 
+/// Specification limits and equivalence margins.
+#[derive(Debug, Args, Default)]
+pub struct SpecArgs {
+    /// Specification file (CSV, TSV or spreadsheet): one row per characteristic, a
+    /// `characteristic` column and any of lower, target, upper, margin, margin_lower,
+    /// margin_upper. Margins are the allowed candidate − reference difference, set in the
+    /// quality plan before the data are seen.
+    #[arg(long, value_name = "FILE")]
+    pub spec: Option<PathBuf>,
+    /// Margin for characteristics the file gives none: F × (upper − lower).
+    #[arg(long, value_name = "F", conflicts_with = "margin_sd")]
+    pub margin_fraction: Option<f64>,
+    /// Margin for characteristics the file gives none: K × the reference lot's SD.
+    #[arg(long, value_name = "K")]
+    pub margin_sd: Option<f64>,
+    /// Margin on the Mahalanobis distance between the lot means, for the multivariate
+    /// equivalence test (default: derived from the per-characteristic margins).
+    #[arg(long, value_name = "E")]
+    pub equivalence_distance: Option<f64>,
+}
+
+impl SpecArgs {
+    /// Reads the specification file and collects the margin options.
+    ///
+    /// # Errors
+    /// The specification file's load error (file, row, column).
+    pub fn request(&self) -> Result<SpecRequest, String> {
+        let file = match &self.spec {
+            Some(path) => Some(
+                data::spec::load_spec(path, &LoadOptions::default()).map_err(|e| e.to_string())?,
+            ),
+            None => None,
+        };
+        let rule = match (self.margin_fraction, self.margin_sd) {
+            (Some(f), _) => MarginRule::ToleranceFraction(f),
+            (None, Some(k)) => MarginRule::ReferenceSd(k),
+            (None, None) => MarginRule::FileOnly,
+        };
+        analysis::decision::check_rule(rule).map_err(|e| e.to_string())?;
+        Ok(SpecRequest {
+            file,
+            rule,
+            distance_margin: self.equivalence_distance,
+            recorded: None,
+        })
+    }
+}
+
 /// Arguments of `compare`.
 #[derive(Debug, Args)]
 pub struct CompareArgs {
     /// Lots and characteristics.
     #[command(flatten)]
     pub lots: LotArgs,
+    /// Specification limits and equivalence margins.
+    #[command(flatten)]
+    pub spec: SpecArgs,
     /// Significance level of the test; intervals are at 1 - alpha confidence.
     #[arg(long, default_value_t = 0.05)]
     pub alpha: f64,
@@ -222,6 +293,9 @@ pub struct StatsArgs {
     /// not "equivalent", and never an automatic release of a lot.
     #[arg(long)]
     pub fail_on_shift: bool,
+    /// Specification limits and equivalence margins.
+    #[command(flatten)]
+    pub spec: SpecArgs,
 }
 
 /// Arguments of `inspect`.
@@ -326,22 +400,27 @@ fn emit_json(target: &Option<String>, record: &Record) -> Result<(), String> {
 }
 
 fn compare(a: CompareArgs) -> CliResult {
+    // The specification first: a bad file stops before the lots are read.
+    let spec = a.spec.request()?;
     let mut lots = load_lots(&a.lots)?;
-    let selection = Selection {
-        only: a.lots.characteristics.clone(),
-        exclude: a.lots.exclude.clone(),
+    let request = Request {
+        selection: Selection {
+            only: a.lots.characteristics.clone(),
+            exclude: a.lots.exclude.clone(),
+        },
+        settings: Settings {
+            alpha: a.alpha,
+            leave_one_out: !a.no_holdout,
+            checks: !a.no_checks,
+            permutations: a.permutations,
+            seed: a.seed,
+        },
+        spec,
     };
     // The unit matrices take the numbers over, and the engine centres them in place: memory
     // holds one copy of the units.
-    let mut prepared = data::prepare_releasing(&mut lots, &selection).map_err(|e| e.to_string())?;
-    let settings = Settings {
-        alpha: a.alpha,
-        leave_one_out: !a.no_holdout,
-        checks: !a.no_checks,
-        permutations: a.permutations,
-        seed: a.seed,
-    };
-    let c = compare_prepared(&mut prepared, &settings)?;
+    let (prepared, c) =
+        pipeline::run_owned(&mut lots, &request, &Silent).map_err(|e| e.to_string())?;
     let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     record.analysed_at = Some(sign::now_rfc3339());
     // Sign before printing anything, so a bad key or meaning stops with nothing written.
@@ -531,13 +610,60 @@ fn verify(a: VerifyArgs) -> CliResult {
         .unwrap_or_default();
     let settings: Settings = serde_json::from_value(rec["settings"].clone())
         .map_err(|e| format!("record settings: {e}"))?;
-    let selection = Selection {
-        only: Some(characteristics),
-        exclude: Vec::new(),
+    let recorded_spec: Option<analysis::decision::Specification> =
+        serde_json::from_value(rec.get("specification").cloned().unwrap_or_default())
+            .map_err(|e| format!("record specification: {e}"))?;
+    let spec = match (&a.spec, recorded_spec) {
+        (None, recorded) => SpecRequest {
+            recorded,
+            ..SpecRequest::default()
+        },
+        (Some(_), None) => {
+            return fail(
+                "--spec was given, but the record was made without a specification".into(),
+            );
+        }
+        (Some(path), Some(recorded)) => {
+            let file =
+                data::spec::load_spec(path, &LoadOptions::default()).map_err(|e| e.to_string())?;
+            let want = recorded.sha256.clone().unwrap_or_default();
+            if file.sha256 != want {
+                return fail(format!(
+                    "specification file {} is not the file used: its SHA-256 is {}, the record \
+                     has {}",
+                    path.display(),
+                    file.sha256,
+                    if want.is_empty() {
+                        "none (margins from a rule only)"
+                    } else {
+                        &want
+                    }
+                ));
+            }
+            outln!(
+                "spec file    {} matches (SHA-256 {})",
+                path.display(),
+                file.sha256
+            );
+            SpecRequest {
+                file: Some(file),
+                rule: recorded.rule,
+                distance_margin: recorded.distance_margin,
+                recorded: None,
+            }
+        }
+    };
+    let request = Request {
+        selection: Selection {
+            only: Some(characteristics),
+            exclude: Vec::new(),
+        },
+        settings,
+        spec,
     };
     let mut lots = lots;
-    let mut prepared = data::prepare_releasing(&mut lots, &selection).map_err(|e| e.to_string())?;
-    let c = compare_prepared(&mut prepared, &settings)?;
+    let (prepared, c) =
+        pipeline::run_owned(&mut lots, &request, &Silent).map_err(|e| e.to_string())?;
     let recomputed = serde_json::to_value(Record::new(&c, Some((&prepared, [&lots[0], &lots[1]]))))
         .map_err(|e| e.to_string())?;
     if let Some(diff) = sign::first_difference(rec, &recomputed) {
@@ -575,27 +701,6 @@ fn report_html(a: ReportArgs) -> CliResult {
     Ok(ExitCode::SUCCESS)
 }
 
-/// Runs the engine on prepared lots, moving their unit matrices in (centred in place).
-fn compare_prepared(
-    prepared: &mut data::Prepared,
-    settings: &Settings,
-) -> Result<analysis::Comparison, String> {
-    let data = [
-        std::mem::replace(&mut prepared.lots[0].data, nalgebra::DMatrix::zeros(0, 0)),
-        std::mem::replace(&mut prepared.lots[1].data, nalgebra::DMatrix::zeros(0, 0)),
-    ];
-    let names = [prepared.lots[0].name.clone(), prepared.lots[1].name.clone()];
-    analysis::compare_owned(
-        &prepared.characteristics,
-        &prepared.units,
-        [&names[0], &names[1]],
-        data,
-        settings,
-        &Silent,
-    )
-    .map_err(|e| e.to_string())
-}
-
 fn compare_stats(a: StatsArgs) -> CliResult {
     let text =
         std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
@@ -619,8 +724,15 @@ fn compare_stats(a: StatsArgs) -> CliResult {
         permutations: 0,
         seed: analysis::DEFAULT_SEED,
     };
-    let c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
+    let mut c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
         .map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let plan = a.spec.request()?;
+    if !plan.is_empty() {
+        let given = plan
+            .specification(&c.characteristics, &c.units)
+            .map_err(|e| e.to_string())?;
+        analysis::apply_specification(&mut c, &given, None).map_err(|e| e.to_string())?;
+    }
     let record = Record::new(&c, None);
     if a.json.as_deref() != Some("-") {
         let name = a.file.display().to_string();
@@ -725,6 +837,9 @@ fn plan(a: PlanArgs) -> CliResult {
             a.target_power
         ));
     }
+    if let Some(margin) = a.margin {
+        return plan_tost(&a, margin);
+    }
     let (p, delta2, source) = match (&a.from_summary, a.characteristics, a.distance) {
         (Some(file), _, _) => {
             let text =
@@ -759,6 +874,9 @@ fn plan(a: PlanArgs) -> CliResult {
             return Err("give --characteristics P and --distance D, or --from-summary FILE".into());
         }
     };
+    if let Some(eps) = a.equivalence_distance {
+        return plan_t2_equivalence(&a, p, delta2.sqrt(), eps, &source);
+    }
     outln!("Power of Hotelling's T² at alpha {} for {source}", a.alpha);
     outln!(
         "  (assumes multivariate normal lots with equal covariance matrices; the sampling plan \
@@ -783,6 +901,101 @@ fn plan(a: PlanArgs) -> CliResult {
             "  units per lot for power {}   {n}  (power {})",
             a.target_power,
             format_sig(crate::stats::power::power(p, n, n, delta2, a.alpha), 4)
+        ),
+        None => outln!("  no lot size up to 10^8 reaches power {}", a.target_power),
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `plan --equivalence-distance`: power and units per lot of the T² equivalence test.
+fn plan_t2_equivalence(
+    a: &PlanArgs,
+    p: usize,
+    delta: f64,
+    epsilon: f64,
+    source: &str,
+) -> CliResult {
+    use crate::stats::equivalence::{t2_equivalence_power, t2_equivalence_units_per_lot};
+    if !(epsilon > 0.0 && epsilon.is_finite()) {
+        return Err(format!(
+            "--equivalence-distance must be a positive number (got {epsilon})"
+        ));
+    }
+    if delta >= epsilon {
+        return Err(format!(
+            "the true distance {} must lie below the margin {epsilon}: at or beyond the margin \
+             no lot size shows equivalence",
+            format_sig(delta, 4)
+        ));
+    }
+    outln!(
+        "Power of the T² equivalence test at alpha {} for {source}, margin ε = {epsilon}",
+        a.alpha
+    );
+    outln!(
+        "  (assumes multivariate normal lots with equal covariance matrices; margins belong to \
+         the quality plan, and the sampling plan itself is set by your quality system)"
+    );
+    outln!("  characteristics            {p}");
+    outln!("  true distance assumed      {}", format_sig(delta, 4));
+    if let Some(n) = a.units {
+        let pw = t2_equivalence_power(p, n, n, delta, epsilon, a.alpha)
+            .map_err(|e| format!("{n} units per lot: {e}"))?;
+        outln!("  power with {n} units per lot   {}", format_sig(pw, 4));
+    }
+    match t2_equivalence_units_per_lot(p, delta, epsilon, a.alpha, a.target_power) {
+        Some(n) => outln!(
+            "  units per lot for power {}   {n}  (power {})",
+            a.target_power,
+            format_sig(
+                t2_equivalence_power(p, n, n, delta, epsilon, a.alpha).unwrap_or(f64::NAN),
+                4
+            )
+        ),
+        None => outln!("  no lot size up to 10^8 reaches power {}", a.target_power),
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `plan --margin`: power and units per lot of the two one-sided tests (pooled variance).
+fn plan_tost(a: &PlanArgs, margin: f64) -> CliResult {
+    use crate::stats::equivalence::{tost_power, tost_units_per_lot};
+    let sd = a.sd.unwrap_or(f64::NAN);
+    if !(margin > 0.0 && margin.is_finite() && sd > 0.0 && sd.is_finite()) {
+        return Err(format!(
+            "--margin and --sd must be positive numbers (got {margin} and {sd})"
+        ));
+    }
+    let theta = a.difference;
+    if theta.abs() >= margin {
+        return Err(format!(
+            "the true difference {theta} must lie inside the margin ±{margin}: at or beyond it \
+             no lot size shows equivalence"
+        ));
+    }
+    let m = [-margin, margin];
+    outln!(
+        "Power of the two one-sided tests at alpha {} for a margin of ±{margin}, SD {sd} and a \
+         true difference of {theta}",
+        a.alpha
+    );
+    outln!(
+        "  (assumes normal lots with a common SD; margins belong to the quality plan, and the \
+         sampling plan itself is set by your quality system)"
+    );
+    if let Some(n) = a.units {
+        let pw = tost_power(theta, sd, n, n, m, a.alpha)
+            .map_err(|e| format!("{n} units per lot: {e}"))?;
+        outln!("  power with {n} units per lot   {}", format_sig(pw, 4));
+    }
+    match tost_units_per_lot(theta, sd, m, a.alpha, a.target_power) {
+        Some(n) => outln!(
+            "  units per lot for power {}   {n}  (power {})",
+            a.target_power,
+            format_sig(
+                tost_power(theta, sd, n, n, m, a.alpha).unwrap_or(f64::NAN),
+                4
+            )
         ),
         None => outln!("  no lot size up to 10^8 reaches power {}", a.target_power),
     }

@@ -10,5 +10,6 @@ pub mod data;
 #[cfg(feature = "gui")]
 pub mod gui;
 pub mod palette;
+pub mod pipeline;
 pub mod report;
 pub mod stats;

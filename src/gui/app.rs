@@ -190,6 +190,8 @@ pub struct LotshiftApp {
     screenshot: Option<ScreenshotPlan>,
     /// The signing form, while open.
     pub signing: Option<SignForm>,
+    /// Specification and margins applied to every run.
+    pub spec: crate::pipeline::SpecRequest,
 }
 
 /// The "Sign and export" form.
@@ -219,7 +221,13 @@ impl LotshiftApp {
             notice: None,
             screenshot: None,
             signing: None,
+            spec: crate::pipeline::SpecRequest::default(),
         }
+    }
+
+    /// The specification request of the next run.
+    fn spec_request(&self) -> crate::pipeline::SpecRequest {
+        self.spec.clone()
     }
 
     /// Loads the bundled sample lots.
@@ -286,7 +294,12 @@ impl LotshiftApp {
             let lots = [a.clone(), b.clone()];
             let sel = self.selection();
             self.shown_current = false;
-            self.worker.compare(lots, sel, self.saved.settings.clone());
+            let request = crate::pipeline::Request {
+                selection: sel,
+                settings: self.saved.settings.clone(),
+                spec: self.spec_request(),
+            };
+            self.worker.compare(lots, request);
         }
     }
 

@@ -8,8 +8,9 @@ use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::{Receiver, Sender, channel};
 use std::sync::{Arc, Mutex};
 
-use crate::analysis::{self, Comparison, LotData, Progress, Settings};
+use crate::analysis::{self, Comparison, Progress, Settings};
 use crate::data::{self, LoadOptions, Lot, Selection};
+use crate::pipeline::{self, Request, SpecRequest};
 use crate::report::Record;
 
 use super::shown::Shown;
@@ -248,12 +249,7 @@ impl Worker {
     }
 
     /// Starts a comparison, cancelling any run still going. Returns its run number.
-    pub fn compare(
-        &mut self,
-        lots: [Arc<Lot>; 2],
-        selection: Selection,
-        settings: Settings,
-    ) -> u64 {
+    pub fn compare(&mut self, lots: [Arc<Lot>; 2], request: Request) -> u64 {
         self.cancel();
         self.latest_run += 1;
         let handle = Arc::new(RunHandle {
@@ -278,7 +274,7 @@ impl Worker {
                 );
             };
             let outcome = catch_unwind(AssertUnwindSafe(|| {
-                run_comparison_staged(&lots, &selection, &settings, &*handle, &|first| {
+                run_comparison_staged(&lots, &request, &*handle, &|first| {
                     deliver(Ok(first), false)
                 })
             }))
@@ -356,45 +352,35 @@ pub fn run_comparison(
     settings: &Settings,
     progress: &dyn Progress,
 ) -> Result<Box<Shown>, String> {
-    run_comparison_staged(lots, selection, settings, progress, &|_| {})
+    let request = Request {
+        selection: selection.clone(),
+        settings: settings.clone(),
+        spec: SpecRequest::default(),
+    };
+    run_comparison_staged(lots, &request, progress, &|_| {})
 }
 
-/// As [`run_comparison`], but when a permutation p-value is asked for, hands the result
-/// without it to `first` as soon as it exists, then computes the permutations.
+/// As [`run_comparison`], for a whole request (with its specification), and when a
+/// permutation p-value is asked for, hands the result without it to `first` as soon as it
+/// exists, then computes the permutations.
 ///
 /// # Errors
 /// As [`run_comparison`].
 pub fn run_comparison_staged(
     lots: &[Arc<Lot>; 2],
-    selection: &Selection,
-    settings: &Settings,
+    request: &Request,
     progress: &dyn Progress,
     first: &dyn Fn(Box<Shown>),
 ) -> Result<Box<Shown>, String> {
     progress.report("matching columns", 0.0);
-    let prepared =
-        Arc::new(data::prepare(&lots[0], &lots[1], selection).map_err(|e| e.to_string())?);
+    let settings = &request.settings;
+    let prepared = Arc::new(pipeline::prepare_shared(lots, request).map_err(|e| e.to_string())?);
     let quick = Settings {
         permutations: 0,
         ..settings.clone()
     };
-    let mut c = analysis::compare(
-        &prepared.characteristics,
-        &prepared.units,
-        [
-            LotData {
-                name: &prepared.lots[0].name,
-                data: &prepared.lots[0].data,
-            },
-            LotData {
-                name: &prepared.lots[1].name,
-                data: &prepared.lots[1].data,
-            },
-        ],
-        &quick,
-        progress,
-    )
-    .map_err(|e| e.to_string())?;
+    let mut c =
+        pipeline::run_prepared(&prepared, request, &quick, progress).map_err(|e| e.to_string())?;
     let bundle = |c: Comparison| {
         let record = Record::new(&c, Some((&*prepared, [&lots[0], &lots[1]])));
         let mut shown = Shown::new(c, prepared.clone(), lots.clone(), record);
@@ -441,13 +427,15 @@ mod tests {
         // Start two runs back to back; only the second may be delivered.
         let mut w = Worker::new(None);
         let lots = sample_lots();
-        let first = w.compare(lots.clone(), Selection::default(), Settings::default());
+        let first = w.compare(lots.clone(), Request::default());
         let second = w.compare(
             lots,
-            Selection::default(),
-            Settings {
-                alpha: 0.01,
-                ..Settings::default()
+            Request {
+                settings: Settings {
+                    alpha: 0.01,
+                    ..Settings::default()
+                },
+                ..Request::default()
             },
         );
         assert!(second > first);
@@ -487,7 +475,13 @@ mod tests {
             only: Some(vec!["nonexistent".into()]),
             exclude: vec![],
         };
-        w.compare(lots, sel, Settings::default());
+        w.compare(
+            lots,
+            Request {
+                selection: sel,
+                ..Request::default()
+            },
+        );
         let deadline = std::time::Instant::now() + Duration::from_secs(20);
         loop {
             let outs = w.wait(Duration::from_millis(200));

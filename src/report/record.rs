@@ -2,6 +2,7 @@
 
 use serde::{Deserialize, Serialize};
 
+use crate::analysis::decision::{CapabilityRow, Equivalence, InSpec, Outcome, Specification};
 use crate::analysis::{
     CharacteristicResult, Comparison, Contribution, Discriminant, Favoured, HotellingResult,
     Interval, NormalityRow,
@@ -136,6 +137,21 @@ pub struct Record {
     pub warnings: Vec<String>,
     /// The result supports, and does not replace, the quality system's lot disposition.
     pub caution: String,
+    /// Specification limits and margins compared against (null without a specification).
+    #[serde(default)]
+    pub specification: Option<Specification>,
+    /// Equivalence tests (null without margins).
+    #[serde(default)]
+    pub equivalence: Option<Equivalence>,
+    /// Capability of the characteristics with limits (empty without limits).
+    #[serde(default)]
+    pub capability: Vec<CapabilityRow>,
+    /// Fraction of units inside every limit at once (null without limits).
+    #[serde(default)]
+    pub in_spec: Option<InSpec>,
+    /// Four-way outcome of the difference and equivalence tests (null without margins).
+    #[serde(default)]
+    pub outcome: Option<Outcome>,
 }
 
 impl Record {
@@ -228,6 +244,15 @@ impl Record {
             verdict: c.verdict.clone(),
             warnings: c.warnings.clone(),
             caution: CAUTION.into(),
+            specification: c.decision.as_ref().map(|d| d.specification.clone()),
+            equivalence: c.decision.as_ref().and_then(|d| d.equivalence.clone()),
+            capability: c
+                .decision
+                .as_ref()
+                .map(|d| d.capability.clone())
+                .unwrap_or_default(),
+            in_spec: c.decision.as_ref().and_then(|d| d.in_spec.clone()),
+            outcome: c.decision.as_ref().and_then(|d| d.outcome),
         }
     }
 

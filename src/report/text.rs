@@ -2,6 +2,7 @@
 
 use std::fmt::Write as _;
 
+use crate::analysis::decision::MarginFrom;
 use crate::analysis::{Comparison, format_confidence, format_p, format_sig};
 use crate::data::Prepared;
 use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
@@ -56,6 +57,7 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
     for w in &c.warnings {
         let _ = writeln!(s, "  warning: {w}");
     }
+    decision_text(&mut s, c);
     let _ = writeln!(s, "\nHotelling's two-sample T² (alpha {})", c.alpha);
     let _ = writeln!(s, "  T²            {}", format_sig(h.t2, 6));
     let _ = writeln!(
@@ -163,6 +165,227 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
     checks_text(&mut s, c);
     let _ = writeln!(s, "\n{CAUTION}");
     s
+}
+
+/// The specification's part: margins, equivalence, capability, the fraction inside the limits.
+fn decision_text(s: &mut String, c: &Comparison) {
+    let Some(d) = &c.decision else {
+        let _ = writeln!(
+            s,
+            "\nEquivalence: not assessed; it needs margins set in the quality plan (--spec with \
+             margins, --margin-fraction, --margin-sd or --equivalence-distance)"
+        );
+        return;
+    };
+    let spec = &d.specification;
+    let source = match (&spec.file, &spec.sha256) {
+        (Some(f), Some(h)) => format!("{f} (SHA-256 {h})"),
+        _ => "no file".into(),
+    };
+    let _ = writeln!(s, "\nSpecification: {source}; {}", spec.rule.describe());
+    let unit = |k: usize| unit_suffix(&c.units[k]);
+    for (k, e) in spec.characteristics.iter().enumerate() {
+        if e.limits().is_none() && e.margin.is_none() {
+            continue;
+        }
+        let opt = |v: Option<f64>| v.map_or("-".to_string(), |v| format_sig(v, 6));
+        let margin = e.margin.map_or("-".to_string(), |m| {
+            format!(
+                "[{}, {}]{}",
+                format_sig(m[0], 4),
+                format_sig(m[1], 4),
+                if e.margin_from == Some(MarginFrom::Rule) {
+                    " (rule)"
+                } else {
+                    ""
+                }
+            )
+        });
+        let _ = writeln!(
+            s,
+            "  {:<22} lower {:>10}  target {:>10}  upper {:>10}  margin {}",
+            format!("{}{}", e.characteristic, unit(k)),
+            opt(e.lower),
+            opt(e.target),
+            opt(e.upper),
+            margin
+        );
+    }
+    if let Some(eq) = &d.equivalence {
+        let conf = format_confidence(2.0 * eq.alpha);
+        if !eq.per_characteristic.is_empty() {
+            let _ = writeln!(
+                s,
+                "\nEquivalence per characteristic (two one-sided tests at alpha {}; difference = \
+                 candidate − reference; {conf}% Welch interval; = lies within the margin, x lies \
+                 wholly outside)",
+                eq.alpha
+            );
+            let _ = writeln!(
+                s,
+                "  {:<22} {:>22} {:>11} {:>25} {:>9} {:>9}",
+                "characteristic", "margin", "difference", "interval", "pooled p", "Welch p"
+            );
+            for r in &eq.per_characteristic {
+                let flag = if r.equivalent {
+                    "="
+                } else if r.beyond {
+                    "x"
+                } else {
+                    " "
+                };
+                let _ = writeln!(
+                    s,
+                    "  {:<22} {:>22} {:>11} {:>25} {:>9} {:>9}",
+                    r.characteristic,
+                    format!(
+                        "[{}, {}]",
+                        format_sig(r.margin[0], 4),
+                        format_sig(r.margin[1], 4)
+                    ),
+                    format_sig(r.difference, 4),
+                    format!(
+                        "[{}, {}]{flag}",
+                        format_sig(r.interval[0], 4),
+                        format_sig(r.interval[1], 4)
+                    ),
+                    format_p(r.pooled_p),
+                    format_p(r.welch_p)
+                );
+            }
+            if let Some(all) = eq.all_equivalent {
+                let _ = writeln!(
+                    s,
+                    "  every characteristic within its margin: {} (intersection–union: every \
+                     test must reject; no multiplicity adjustment is needed)",
+                    if all { "yes" } else { "no" }
+                );
+            }
+        }
+        if let Some(m) = &eq.multivariate {
+            let _ = writeln!(
+                s,
+                "\nMultivariate equivalence (T² equivalence test, alpha {})",
+                eq.alpha
+            );
+            let _ = writeln!(
+                s,
+                "  margin ε      {}{}",
+                format_sig(m.epsilon, 6),
+                if m.epsilon_from_margins {
+                    " (from the margins and the pooled covariance of these data: the level \
+                     holds only approximately; give --equivalence-distance to fix it in advance)"
+                } else {
+                    ""
+                }
+            );
+            let _ = writeln!(s, "  distance D    {}", format_sig(m.d2.sqrt(), 6));
+            let _ = writeln!(
+                s,
+                "  upper {}% bound of the distance  {}",
+                format_confidence(eq.alpha),
+                format_sig(m.distance_upper_bound, 6)
+            );
+            let _ = writeln!(
+                s,
+                "  F             {}  on ({}, {}) df; critical F {} (noncentrality {})",
+                format_sig(m.f, 6),
+                m.df1,
+                m.df2,
+                format_sig(m.critical_f, 6),
+                format_sig(m.noncentrality, 6)
+            );
+            let _ = writeln!(
+                s,
+                "  p-value       {}  ({})",
+                format_p(m.p_value),
+                if m.equivalent {
+                    "equivalent within ε"
+                } else {
+                    "equivalence not shown"
+                }
+            );
+        }
+    }
+    if !d.capability.is_empty() {
+        let _ = writeln!(
+            s,
+            "\nCapability ({}% intervals; expected ppm under a normal model)",
+            format_confidence(c.alpha)
+        );
+        let _ = writeln!(
+            s,
+            "  {:<22} {:<4} {:>5} {:>24} {:>24} {:>13} {:>9}",
+            "characteristic",
+            "lot",
+            "index",
+            "value [interval]",
+            "Cp [interval]",
+            "expected ppm",
+            "observed"
+        );
+        for r in &d.capability {
+            for (g, l) in r.lots.iter().enumerate() {
+                let cp = match (l.cp, l.cp_interval) {
+                    (Some(v), Some(i)) => format!(
+                        "{} [{}, {}]",
+                        format_sig(v, 4),
+                        format_sig(i[0], 4),
+                        format_sig(i[1], 4)
+                    ),
+                    _ => "-".into(),
+                };
+                let _ = writeln!(
+                    s,
+                    "  {:<22} {:<4} {:>5} {:>24} {:>24} {:>13} {:>9}",
+                    if g == 0 {
+                        r.characteristic.as_str()
+                    } else {
+                        ""
+                    },
+                    g + 1,
+                    l.index,
+                    format!(
+                        "{} [{}, {}]",
+                        format_sig(l.cpk, 4),
+                        format_sig(l.cpk_interval[0], 4),
+                        format_sig(l.cpk_interval[1], 4)
+                    ),
+                    cp,
+                    format_sig(l.ppm_expected, 4),
+                    l.out_of_spec
+                        .map_or("-".to_string(), |n| format!("{n}/{}", l.n))
+                );
+            }
+        }
+    }
+    if let Some(ins) = &d.in_spec {
+        let _ = writeln!(
+            s,
+            "\nInside every limit at once ({}; normal model by Genz's quasi-Monte Carlo, ± three \
+             standard errors)",
+            crate::stats::quote_list(&ins.characteristics)
+        );
+        for (g, l) in ins.lots.iter().enumerate() {
+            let _ = writeln!(
+                s,
+                "  lot {}: expected {} ± {} (out: {} ppm); observed {}",
+                g + 1,
+                format_sig(l.expected, 8),
+                format_sig(l.error, 2),
+                format_sig(1e6 * (1.0 - l.expected).max(0.0), 4),
+                l.observed.map_or("-".to_string(), |v| format_sig(v, 8))
+            );
+        }
+    }
+    for n in &d.notes {
+        let _ = writeln!(s, "  note: {n}");
+    }
+    let _ = writeln!(
+        s,
+        "  Margins belong to the quality plan and are set before the data are seen; margins \
+         chosen after looking at the results do not support an equivalence claim."
+    );
 }
 
 /// Box's M in one line.

@@ -1,10 +1,12 @@
 //! Pure statistics on matrices and summary statistics. Nothing here touches files, clocks
 //! or the window.
 
+pub mod capability;
 pub mod checks;
 pub mod discriminant;
 pub mod dist;
 pub mod ellipse;
+pub mod equivalence;
 pub mod hotelling;
 pub mod moments;
 pub mod normality;

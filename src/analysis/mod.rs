@@ -11,6 +11,10 @@ use crate::stats::normality::{ShapiroWilk, shapiro_wilk};
 use crate::stats::permutation::{PermutationResult, permutation_test};
 use crate::stats::{EngineError, discriminant, ellipse, quote_list};
 
+pub mod decision;
+
+use decision::{Decision, DecisionError, Observed, Specification};
+
 /// What to compute and at which level.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(default)]
@@ -333,6 +337,10 @@ pub struct Comparison {
     pub verdict: String,
     /// Cautions about this result (conditioning, small lots...).
     pub warnings: Vec<String>,
+    /// Specification limits, equivalence margins and capability, when a specification or a
+    /// margin rule was given.
+    #[serde(default)]
+    pub decision: Option<Decision>,
 }
 
 /// Box's M is judged at this level (common practice: M is very sensitive to non-normality).
@@ -912,15 +920,43 @@ fn finish(
         },
         verdict: String::new(),
         warnings,
+        decision: None,
     };
     conclude(&mut out);
     Ok(out)
 }
 
-/// Sets the favoured test and the verdict from everything computed so far.
+/// Sets the favoured test and the verdict from everything computed so far. With a
+/// specification, the four-way outcome comes first; without one the verdict is the T² result
+/// alone (so records written before specifications existed still verify word for word).
 fn conclude(c: &mut Comparison) {
     c.favoured = favour(c);
-    c.verdict = verdict_text(c);
+    let t2 = verdict_text(c);
+    c.verdict = match &c.decision {
+        Some(d) => format!(
+            "{} {t2}",
+            decision::decision_text(d, [&c.lots[0].name, &c.lots[1].name])
+        ),
+        None => t2,
+    };
+}
+
+/// Applies a specification (limits, margins, margin rule) to a finished comparison: the
+/// equivalence tests, capability, the fraction inside the limits and the four-way outcome
+/// (see [`decision::assess`]); the verdict is rewritten to lead with the outcome.
+/// `observed` holds the counts of units outside the limits ([`decision::observe`], taken on
+/// the units as measured), absent for summary-statistics input.
+///
+/// # Errors
+/// As [`decision::assess`].
+pub fn apply_specification(
+    c: &mut Comparison,
+    given: &Specification,
+    observed: Option<&Observed>,
+) -> Result<(), DecisionError> {
+    c.decision = Some(decision::assess(c, given, observed)?);
+    conclude(c);
+    Ok(())
 }
 
 /// Formats a p-value for people: four significant digits, or a bound below 1e-16.
