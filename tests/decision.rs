@@ -489,9 +489,21 @@ fn verify_recomputes_from_the_recorded_specification() {
             "review",
             "--out",
             "summary.json",
+            "--html",
+            "report.html",
         ],
         &dir,
     ));
+    let html = std::fs::read_to_string(dir.join("report.html")).unwrap();
+    for want in [
+        "id=\"outcome\"><b>The lots differ, but within the margins.</b>",
+        "id=\"margin-chart\"",
+        "id=\"capability\"",
+        "hub-spec.csv",
+        "Inside every limit at once",
+    ] {
+        assert!(html.contains(want), "{want}");
+    }
     let doc: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
     let rec = &doc["record"];

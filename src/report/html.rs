@@ -108,6 +108,7 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
     for w in r["warnings"].as_array().into_iter().flatten() {
         let _ = writeln!(h, "<p><b>Warning:</b> {}</p>", esc(&text(w)));
     }
+    decision_section(&mut h, r);
     lots_section(&mut h, r);
     test_section(&mut h, r);
     characteristics_section(&mut h, r);
@@ -146,6 +147,238 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
     }
     h.push_str("</body></html>\n");
     h
+}
+
+/// Specification, equivalence and capability, read typed from the record (absent keys, as in
+/// records made before specifications existed, give a one-line note).
+fn decision_section(h: &mut String, r: &Value) {
+    use crate::analysis::decision::{
+        CapabilityRow, Equivalence, InSpec, MarginFrom, Outcome, Specification,
+    };
+    fn typed<T: serde::de::DeserializeOwned>(v: &Value) -> Option<T> {
+        serde_json::from_value(v.clone()).ok()
+    }
+    let spec: Option<Specification> = typed(&r["specification"]);
+    let Some(spec) = spec else {
+        h.push_str(
+            "<p class=\"muted\" id=\"equivalence\">Equivalence not assessed: it needs margins set in the quality plan.</p>\n",
+        );
+        return;
+    };
+    let outcome: Option<Outcome> = typed(&r["outcome"]);
+    if let Some(o) = outcome {
+        let _ = writeln!(h, "<p id=\"outcome\"><b>{}.</b></p>", esc(o.words()));
+    }
+    let source = match (&spec.file, &spec.sha256) {
+        (Some(f), Some(s)) => format!("{} (SHA-256 <code>{}</code>)", esc(f), esc(s)),
+        _ => "no file".into(),
+    };
+    let _ = writeln!(
+        h,
+        "<h2>Specification and margins</h2><div class=\"muted\">{source}; {}. Margins are the allowed candidate minus reference difference, set in the quality plan before the data are seen.</div>",
+        esc(&spec.rule.describe())
+    );
+    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>lower</th><th>target</th><th>upper</th><th>margin</th></tr>\n");
+    let opt = |v: Option<f64>| v.map_or("–".to_string(), |v| format_sig(v, 6));
+    for e in &spec.characteristics {
+        let margin = e.margin.map_or("–".to_string(), |m| {
+            format!(
+                "[{}, {}]{}",
+                format_sig(m[0], 4),
+                format_sig(m[1], 4),
+                if e.margin_from == Some(MarginFrom::Rule) {
+                    " (rule)"
+                } else {
+                    ""
+                }
+            )
+        });
+        let _ = writeln!(
+            h,
+            "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{margin}</td></tr>",
+            esc(&e.characteristic),
+            opt(e.lower),
+            opt(e.target),
+            opt(e.upper)
+        );
+    }
+    h.push_str("</table>\n");
+    let eq: Option<Equivalence> = typed(&r["equivalence"]);
+    if let Some(eq) = eq {
+        if !eq.per_characteristic.is_empty() {
+            let _ = writeln!(
+                h,
+                "<h2>Equivalence per characteristic (two one-sided tests, alpha {})</h2><table id=\"equivalence\"><tr><th class=\"name\">characteristic</th><th>margin</th><th>difference (cand. − ref.)</th><th>{}% interval (Welch)</th><th>p (pooled)</th><th>p (Welch)</th><th class=\"name\">result</th></tr>",
+                eq.alpha,
+                format_confidence(2.0 * eq.alpha)
+            );
+            for row in &eq.per_characteristic {
+                let _ = writeln!(
+                    h,
+                    "<tr><td class=\"name\">{}</td><td>[{}, {}]</td><td>{}</td><td>[{}, {}]</td><td>{}</td><td>{}</td><td class=\"name\">{}</td></tr>",
+                    esc(&row.characteristic),
+                    format_sig(row.margin[0], 4),
+                    format_sig(row.margin[1], 4),
+                    format_sig(row.difference, 4),
+                    format_sig(row.interval[0], 4),
+                    format_sig(row.interval[1], 4),
+                    format_p(row.pooled_p),
+                    format_p(row.welch_p),
+                    if row.equivalent {
+                        "within the margin"
+                    } else if row.beyond {
+                        "<b>wholly outside the margin</b>"
+                    } else {
+                        "<b>not shown within</b>"
+                    }
+                );
+            }
+            h.push_str("</table>\n");
+            h.push_str(&margin_chart(&eq));
+        }
+        if let Some(m) = &eq.multivariate {
+            let _ = writeln!(
+                h,
+                "<h2>Multivariate equivalence (T² equivalence test, alpha {})</h2><table><tr><th class=\"name\">margin ε on the distance</th><td>{}{}</td></tr><tr><th class=\"name\">distance D</th><td>{}</td></tr><tr><th class=\"name\">upper {}% bound of the distance</th><td>{}</td></tr><tr><th class=\"name\">F</th><td>{} on ({}, {}) df; critical F {}</td></tr><tr><th class=\"name\">p-value</th><td>{} ({})</td></tr></table>",
+                eq.alpha,
+                format_sig(m.epsilon, 6),
+                if m.epsilon_from_margins {
+                    " (from the margins and these data: level approximate)"
+                } else {
+                    ""
+                },
+                format_sig(m.d2.sqrt(), 6),
+                format_confidence(eq.alpha),
+                format_sig(m.distance_upper_bound, 6),
+                format_sig(m.f, 6),
+                m.df1,
+                m.df2,
+                format_sig(m.critical_f, 6),
+                format_p(m.p_value),
+                if m.equivalent {
+                    "equivalent within ε"
+                } else {
+                    "not shown"
+                }
+            );
+        }
+    }
+    let cap: Vec<CapabilityRow> = typed(&r["capability"]).unwrap_or_default();
+    if !cap.is_empty() {
+        let lots = r["lots"].as_array().cloned().unwrap_or_default();
+        let lot_name = |i: usize| lots.get(i).map(|l| text(&l["name"])).unwrap_or_default();
+        let _ = writeln!(
+            h,
+            "<h2>Capability ({}% intervals; expected ppm under a normal model)</h2><table id=\"capability\"><tr><th class=\"name\">characteristic</th><th class=\"name\">lot</th><th>index</th><th>value [interval]</th><th>Cp [interval]</th><th>expected ppm</th><th>observed out of spec</th></tr>",
+            format_confidence(num(&r["alpha"]))
+        );
+        for row in &cap {
+            for (g, l) in row.lots.iter().enumerate() {
+                let cp = match (l.cp, l.cp_interval) {
+                    (Some(v), Some(i)) => format!(
+                        "{} [{}, {}]",
+                        format_sig(v, 4),
+                        format_sig(i[0], 4),
+                        format_sig(i[1], 4)
+                    ),
+                    _ => "–".into(),
+                };
+                let _ = writeln!(
+                    h,
+                    "<tr><td class=\"name\">{}</td><td class=\"name\">{}</td><td>{}</td><td>{} [{}, {}]</td><td>{cp}</td><td>{}</td><td>{}</td></tr>",
+                    if g == 0 {
+                        esc(&row.characteristic)
+                    } else {
+                        String::new()
+                    },
+                    esc(&lot_name(g)),
+                    esc(&l.index),
+                    format_sig(l.cpk, 4),
+                    format_sig(l.cpk_interval[0], 4),
+                    format_sig(l.cpk_interval[1], 4),
+                    format_sig(l.ppm_expected, 4),
+                    l.out_of_spec
+                        .map_or("–".to_string(), |n| format!("{n} of {}", l.n))
+                );
+            }
+        }
+        h.push_str("</table>\n");
+    }
+    let ins: Option<InSpec> = typed(&r["in_spec"]);
+    if let Some(ins) = ins {
+        let lots = r["lots"].as_array().cloned().unwrap_or_default();
+        let _ = writeln!(
+            h,
+            "<h2>Inside every limit at once</h2><div class=\"muted\">Over {} (normal model, Genz's quasi-Monte Carlo; ± three standard errors)</div><table><tr><th class=\"name\">lot</th><th>expected inside</th><th>expected out (ppm)</th><th>observed inside</th></tr>",
+            esc(&crate::stats::quote_list(&ins.characteristics))
+        );
+        for (g, l) in ins.lots.iter().enumerate() {
+            let _ = writeln!(
+                h,
+                "<tr><td class=\"name\">{}</td><td>{} ± {}</td><td>{}</td><td>{}</td></tr>",
+                esc(&lots.get(g).map(|l| text(&l["name"])).unwrap_or_default()),
+                format_sig(l.expected, 8),
+                format_sig(l.error, 2),
+                format_sig(1e6 * (1.0 - l.expected).max(0.0), 4),
+                l.observed.map_or("–".to_string(), |v| format_sig(v, 8))
+            );
+        }
+        h.push_str("</table>\n");
+    }
+}
+
+/// Each characteristic's 1 − 2 alpha interval against its margin, every row scaled to its own
+/// margin (−1 and +1 are the margin's ends for a symmetric margin).
+fn margin_chart(eq: &crate::analysis::decision::Equivalence) -> String {
+    let rows = &eq.per_characteristic;
+    let half = |m: [f64; 2]| (-m[0]).max(m[1]);
+    let mut lo: f64 = -1.0;
+    let mut hi: f64 = 1.0;
+    for r in rows {
+        let w = half(r.margin);
+        lo = lo.min(r.interval[0] / w).min(r.margin[0] / w);
+        hi = hi.max(r.interval[1] / w).max(r.margin[1] / w);
+    }
+    if !(lo.is_finite() && hi.is_finite()) {
+        return String::new();
+    }
+    let pad = 0.05 * (hi - lo);
+    let (lo, hi) = (lo - pad, hi + pad);
+    let (w, left, right) = (900.0, 170.0, 880.0);
+    let row = 30.0;
+    let height = 40.0 + row * rows.len() as f64;
+    let x = scale(lo, hi, left, right);
+    let mut s = format!(
+        "<div class=\"chart\"><svg id=\"margin-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{height}\" viewBox=\"0 0 {w} {height}\" font-size=\"12\">"
+    );
+    for (k, r) in rows.iter().enumerate() {
+        let y = 22.0 + row * k as f64;
+        let wd = half(r.margin);
+        let _ = write!(
+            s,
+            "<text x=\"{}\" y=\"{}\" text-anchor=\"end\">{}{}</text><rect x=\"{:.1}\" y=\"{:.1}\" width=\"{:.1}\" height=\"16\" fill=\"#dfe8d8\" stroke=\"#7a9a6a\"/><line x1=\"{:.1}\" x2=\"{:.1}\" y1=\"{y:.1}\" y2=\"{y:.1}\" stroke=\"#1b1b1b\" stroke-width=\"3\"/><circle cx=\"{:.1}\" cy=\"{y:.1}\" r=\"4\" fill=\"#1b1b1b\"/>",
+            left - 8.0,
+            y + 4.0,
+            esc(&r.characteristic),
+            if r.equivalent { " ✓" } else { " ✗" },
+            x(r.margin[0] / wd),
+            y - 8.0,
+            x(r.margin[1] / wd) - x(r.margin[0] / wd),
+            x(r.interval[0] / wd),
+            x(r.interval[1] / wd),
+            x(r.difference / wd)
+        );
+    }
+    let _ = write!(
+        s,
+        "<line x1=\"{0}\" x2=\"{0}\" y1=\"8\" y2=\"{1}\" stroke=\"#888\" stroke-dasharray=\"4 3\"/><text x=\"{2}\" y=\"{3}\" text-anchor=\"middle\">candidate − reference, in units of each margin (band: the margin; bar: the {4}% interval; ✓ within, ✗ not shown within)</text></svg></div>",
+        x(0.0),
+        height - 26.0,
+        (left + right) / 2.0,
+        height - 6.0,
+        format_confidence(2.0 * eq.alpha)
+    );
+    s
 }
 
 fn lots_section(h: &mut String, r: &Value) {
