@@ -7,6 +7,8 @@
 pub mod analysis;
 pub mod cli;
 pub mod data;
+pub mod exit;
+pub mod format;
 #[cfg(feature = "gui")]
 pub mod gui;
 pub mod palette;

@@ -597,7 +597,7 @@ pub fn assess(
             crate::stats::quote_list(&missing)
         ));
     }
-    let equivalence = (!rows.is_empty() || multivariate.is_some()).then(|| Equivalence {
+    let equivalence = (!rows.is_empty() || multivariate.is_some()).then_some(Equivalence {
         alpha,
         per_characteristic: rows,
         all_equivalent,
@@ -785,9 +785,9 @@ pub fn decision_text(d: &Decision, names: [&str; 2]) -> String {
             s.push_str(&format!(
                 " Multivariate: the distance between the lot means is at most {} (upper {}% \
                  bound) against the margin {}{}.",
-                super::format_sig(m.distance_upper_bound, 4),
-                super::format_confidence(eq.alpha),
-                super::format_sig(m.epsilon, 4),
+                crate::format::format_sig(m.distance_upper_bound, 4),
+                crate::format::format_confidence(eq.alpha),
+                crate::format::format_sig(m.epsilon, 4),
                 if m.epsilon_from_margins {
                     ", derived from the margins and the data, so the level is approximate"
                 } else {
@@ -820,7 +820,7 @@ fn in_spec_words(s: &mut String, d: &Decision, names: [&str; 2]) {
             format!(
                 "{} {} ppm",
                 names[g],
-                super::format_sig(1e6 * (1.0 - l.expected).max(0.0), 3)
+                crate::format::format_sig(1e6 * (1.0 - l.expected).max(0.0), 3)
             )
         };
         s.push_str(&format!(

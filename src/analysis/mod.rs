@@ -13,6 +13,8 @@ use crate::stats::{EngineError, discriminant, ellipse, quote_list};
 
 pub mod decision;
 
+pub use crate::format::{format_confidence, format_p, format_sig};
+
 use decision::{Decision, DecisionError, Observed, Specification};
 
 /// What to compute and at which level.
@@ -66,11 +68,43 @@ pub struct OutlierReport {
     pub units: Vec<Outlier>,
 }
 
+/// The tests the assumption checks choose between (written into the record as the strings
+/// shown by `Display`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub enum FavouredTest {
+    /// Hotelling's pooled two-sample T².
+    #[serde(rename = "pooled T²")]
+    PooledT2,
+    /// The Krishnamoorthy–Yu test, which does not assume equal covariance matrices.
+    #[serde(rename = "unequal-covariance test")]
+    UnequalCovariance,
+    /// The permutation p-value of T².
+    #[serde(rename = "permutation p-value")]
+    Permutation,
+}
+
+impl FavouredTest {
+    /// The test's name in words (the record's string).
+    pub fn name(self) -> &'static str {
+        match self {
+            FavouredTest::PooledT2 => "pooled T²",
+            FavouredTest::UnequalCovariance => "unequal-covariance test",
+            FavouredTest::Permutation => "permutation p-value",
+        }
+    }
+}
+
+impl std::fmt::Display for FavouredTest {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
+}
+
 /// Which test the assumption checks favour, and why (record key `favoured`).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Favoured {
-    /// `"pooled T²"`, `"unequal-covariance test"` or `"permutation p-value"`.
-    pub test: String,
+    /// The favoured test.
+    pub test: FavouredTest,
     /// The reason, in plain words.
     pub why: String,
     /// That test's p-value.
@@ -360,7 +394,7 @@ pub fn favour(c: &Comparison) -> Favoured {
         && let Some(u) = &c.unequal_covariance
     {
         return Favoured {
-            test: "unequal-covariance test".into(),
+            test: FavouredTest::UnequalCovariance,
             why: format!(
                 "Box's M gives p = {} (below {BOX_M_LEVEL}, the level common practice uses \
                  because M is sensitive to non-normality) and the lots differ in size ({} and \
@@ -381,7 +415,7 @@ pub fn favour(c: &Comparison) -> Favoured {
         .collect();
     if cov_differ {
         return Favoured {
-            test: "pooled T²".into(),
+            test: FavouredTest::PooledT2,
             why: format!(
                 "Box's M gives p = {} (covariance matrices differ), but the lots are of similar \
                  size, where the pooled T² keeps its level (common practice); the \
@@ -395,7 +429,7 @@ pub fn favour(c: &Comparison) -> Favoured {
         && let Some(perm) = &c.permutation
     {
         return Favoured {
-            test: "permutation p-value".into(),
+            test: FavouredTest::Permutation,
             why: format!(
                 "Mardia's tests reject multivariate normality in {}; the permutation p-value \
                  does not rely on it",
@@ -416,7 +450,7 @@ pub fn favour(c: &Comparison) -> Favoured {
             .to_string()
     };
     Favoured {
-        test: "pooled T²".into(),
+        test: FavouredTest::PooledT2,
         why,
         p_value: pooled,
     }
@@ -914,7 +948,7 @@ fn finish(
         unequal_covariance,
         permutation: None,
         favoured: Favoured {
-            test: String::new(),
+            test: FavouredTest::PooledT2,
             why: String::new(),
             p_value: f64::NAN,
         },
@@ -957,43 +991,6 @@ pub fn apply_specification(
     c.decision = Some(decision::assess(c, given, observed)?);
     conclude(c);
     Ok(())
-}
-
-/// Formats a p-value for people: four significant digits, or a bound below 1e-16.
-pub fn format_p(p: f64) -> String {
-    if p < 1e-16 {
-        "< 1e-16".to_string()
-    } else if p < 1e-4 {
-        format!("{p:.3e}")
-    } else {
-        format!("{p:.4}")
-    }
-}
-
-/// Confidence level `1 − alpha` as a percentage without trailing zeros ("95", "99.9").
-pub fn format_confidence(alpha: f64) -> String {
-    let v = ((1.0 - alpha) * 100.0 * 1e6).round() / 1e6;
-    format!("{v}")
-}
-
-/// Formats a number with `sig` significant digits, switching to exponent form when needed.
-pub fn format_sig(x: f64, sig: usize) -> String {
-    if !x.is_finite() {
-        return if x.is_nan() {
-            "n/a".into()
-        } else {
-            format!("{x}")
-        };
-    }
-    if x == 0.0 {
-        return "0".into();
-    }
-    let mag = x.abs().log10().floor() as i32;
-    if !(-4..=8).contains(&mag) {
-        return format!("{:.*e}", sig.saturating_sub(1), x);
-    }
-    let decimals = (sig as i32 - 1 - mag).max(0) as usize;
-    format!("{x:.decimals$}")
 }
 
 /// "T² = …, F(df1, df2) = …, p = …" with `sig` significant digits.
@@ -1050,10 +1047,10 @@ fn verdict_text(c: &Comparison) -> String {
         )
     };
     let f = &c.favoured;
-    if f.test != "pooled T²" && f.p_value.is_finite() {
+    if f.test != FavouredTest::PooledT2 && f.p_value.is_finite() {
         let differ = f.p_value < alpha;
-        let detail = match (f.test.as_str(), &c.unequal_covariance) {
-            ("unequal-covariance test", Some(u)) => format!(
+        let detail = match (f.test, &c.unequal_covariance) {
+            (FavouredTest::UnequalCovariance, Some(u)) => format!(
                 "F({}, {}) = {}, p = {}",
                 u.df1,
                 format_sig(u.df2, 4),

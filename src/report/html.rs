@@ -10,7 +10,7 @@ use nalgebra::Matrix2;
 use serde_json::Value;
 
 use super::CAUTION;
-use crate::analysis::{format_confidence, format_p, format_sig};
+use crate::format::{format_confidence, format_p, format_sig};
 use crate::stats::ellipse;
 
 fn esc(s: &str) -> String {

@@ -2,9 +2,10 @@
 
 use std::fmt::Write as _;
 
+use crate::analysis::Comparison;
 use crate::analysis::decision::MarginFrom;
-use crate::analysis::{Comparison, format_confidence, format_p, format_sig};
 use crate::data::Prepared;
+use crate::format::{format_confidence, format_p, format_sig};
 use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
 use crate::stats::permutation::PermutationResult;
 

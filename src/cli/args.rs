@@ -1,0 +1,259 @@
+//! Arguments of every subcommand.
+
+#[allow(unused_imports)]
+use super::*;
+
+/// Arguments of `keygen`.
+#[derive(Debug, Args)]
+pub struct KeygenArgs {
+    /// Printed name of the person the key belongs to.
+    #[arg(long, value_name = "NAME")]
+    pub signer: String,
+    /// Folder to write the key files into.
+    #[arg(long, value_name = "DIR")]
+    pub out: PathBuf,
+    /// Base name of the key files.
+    #[arg(long, default_value = "lotshift-signing-key")]
+    pub name: String,
+}
+
+/// Arguments of `verify`.
+#[derive(Debug, Args)]
+pub struct VerifyArgs {
+    /// The signed summary.
+    #[arg(value_name = "FILE")]
+    pub file: PathBuf,
+    /// The lot files (reference, candidate; or the one file both lots were read from with a
+    /// lot column): checks their SHA-256 and recomputes every number.
+    #[arg(long, value_name = "FILE", num_args = 1..=2)]
+    pub files: Vec<PathBuf>,
+    /// The expected signer's public key (PEM).
+    #[arg(long, value_name = "PUB")]
+    pub key: Option<PathBuf>,
+    /// The specification file the comparison used: checks its SHA-256 and recomputes from
+    /// the file's limits and margins (without it, from the ones the record holds).
+    #[arg(long, value_name = "FILE")]
+    pub spec: Option<PathBuf>,
+}
+
+/// Arguments of `report`.
+#[derive(Debug, Args)]
+pub struct ReportArgs {
+    /// A comparison record or signed summary (JSON).
+    #[arg(value_name = "FILE")]
+    pub file: PathBuf,
+    /// The HTML file to write.
+    #[arg(long, value_name = "HTML")]
+    pub out: PathBuf,
+}
+
+/// Arguments of `plan`.
+#[derive(Debug, Args)]
+pub struct PlanArgs {
+    /// Number of characteristics compared (with --distance).
+    #[arg(long, value_name = "P")]
+    pub characteristics: Option<usize>,
+    /// Size of the shift to detect as a Mahalanobis distance (in pooled standard deviations
+    /// along the shift; 1.0 is a shift of one standard deviation for one characteristic).
+    #[arg(long, value_name = "D")]
+    pub distance: Option<f64>,
+    /// Take the shift and covariance from a summary-statistics file (as for compare-stats):
+    /// the shift is the difference of the two mean vectors, the covariance the pooled one.
+    #[arg(long, value_name = "FILE", conflicts_with_all = ["characteristics", "distance"])]
+    pub from_summary: Option<PathBuf>,
+    /// Units per lot to give the power for (both lots the same size).
+    #[arg(long, value_name = "N")]
+    pub units: Option<usize>,
+    /// Target power: print the smallest number of units per lot that reaches it.
+    #[arg(long, value_name = "POWER", default_value_t = 0.9)]
+    pub target_power: f64,
+    /// Significance level.
+    #[arg(long, default_value_t = 0.05)]
+    pub alpha: f64,
+    /// Plan the multivariate equivalence test instead: the margin ε on the Mahalanobis
+    /// distance (--distance is then the true distance assumed, below ε).
+    #[arg(long, value_name = "E", conflicts_with = "margin")]
+    pub equivalence_distance: Option<f64>,
+    /// Plan the two one-sided tests of one characteristic instead: the symmetric margin, in
+    /// the characteristic's unit (needs --sd).
+    #[arg(long, value_name = "M", requires = "sd", conflicts_with_all = ["characteristics", "distance", "from_summary"])]
+    pub margin: Option<f64>,
+    /// Standard deviation of the characteristic, for --margin.
+    #[arg(long, value_name = "S", requires = "margin")]
+    pub sd: Option<f64>,
+    /// True difference between the lot means assumed, for --margin (default 0).
+    #[arg(long, value_name = "D", requires = "margin", default_value_t = 0.0)]
+    pub difference: f64,
+}
+
+/// Which lots to read and which characteristics to compare.
+#[derive(Debug, Args)]
+pub struct LotArgs {
+    /// The reference lot file and the candidate lot file (or one file with --split-by).
+    #[arg(value_name = "FILE", required = true, num_args = 1..=2)]
+    pub files: Vec<PathBuf>,
+    /// Lot column: the column holding each unit's lot, to read both lots from one file.
+    #[arg(long, value_name = "COLUMN", alias = "split-by")]
+    pub lot_column: Option<String>,
+    /// Lot values: the two values of the lot column to compare, reference first ("A,B"),
+    /// when the lot column holds more than two.
+    #[arg(long, value_name = "REFERENCE,CANDIDATE")]
+    pub lot_values: Option<String>,
+    /// Sheet to read from spreadsheets (default: the first sheet with data).
+    #[arg(long, value_name = "NAME")]
+    pub sheet: Option<String>,
+    /// Columns to treat as labels even if they look numeric (e.g. serial numbers).
+    #[arg(long, value_name = "COL,...", value_delimiter = ',')]
+    pub labels: Vec<String>,
+    /// Compare only these characteristics, in this order.
+    #[arg(long, value_name = "COL,...", value_delimiter = ',')]
+    pub characteristics: Option<Vec<String>>,
+    /// Leave these characteristics out.
+    #[arg(long, value_name = "COL,...", value_delimiter = ',')]
+    pub exclude: Vec<String>,
+}
+
+/// Specification limits and equivalence margins.
+#[derive(Debug, Args, Default)]
+pub struct SpecArgs {
+    /// Specification file (CSV, TSV or spreadsheet): one row per characteristic, a
+    /// `characteristic` column and any of lower, target, upper, margin, margin_lower,
+    /// margin_upper. Margins are the allowed candidate − reference difference, set in the
+    /// quality plan before the data are seen.
+    #[arg(long, value_name = "FILE")]
+    pub spec: Option<PathBuf>,
+    /// Margin for characteristics the file gives none: F × (upper − lower).
+    #[arg(long, value_name = "F", conflicts_with = "margin_sd")]
+    pub margin_fraction: Option<f64>,
+    /// Margin for characteristics the file gives none: K × the reference lot's SD.
+    #[arg(long, value_name = "K")]
+    pub margin_sd: Option<f64>,
+    /// Margin on the Mahalanobis distance between the lot means, for the multivariate
+    /// equivalence test (default: derived from the per-characteristic margins).
+    #[arg(long, value_name = "E")]
+    pub equivalence_distance: Option<f64>,
+}
+
+impl SpecArgs {
+    /// Reads the specification file and collects the margin options.
+    ///
+    /// # Errors
+    /// The specification file's load error (file, row, column).
+    pub fn request(&self) -> Result<SpecRequest, String> {
+        let file = match &self.spec {
+            Some(path) => Some(
+                data::spec::load_spec(path, &LoadOptions::default()).map_err(|e| e.to_string())?,
+            ),
+            None => None,
+        };
+        let rule = match (self.margin_fraction, self.margin_sd) {
+            (Some(f), _) => MarginRule::ToleranceFraction(f),
+            (None, Some(k)) => MarginRule::ReferenceSd(k),
+            (None, None) => MarginRule::FileOnly,
+        };
+        analysis::decision::check_rule(rule).map_err(|e| e.to_string())?;
+        Ok(SpecRequest {
+            file,
+            rule,
+            distance_margin: self.equivalence_distance,
+            recorded: None,
+        })
+    }
+}
+
+/// Arguments of `compare`.
+#[derive(Debug, Args)]
+pub struct CompareArgs {
+    /// Lots and characteristics.
+    #[command(flatten)]
+    pub lots: LotArgs,
+    /// Specification limits and equivalence margins.
+    #[command(flatten)]
+    pub spec: SpecArgs,
+    /// Significance level of the test; intervals are at 1 - alpha confidence.
+    #[arg(long, default_value_t = 0.05)]
+    pub alpha: f64,
+    /// Write the comparison record as JSON to FILE, or to standard output with "-".
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<String>,
+    /// Exit with status 1 when the lots differ (for pipelines). Exit 0 then means "no
+    /// difference detected": not "equivalent", and never an automatic release of a lot.
+    #[arg(long)]
+    pub fail_on_shift: bool,
+    /// Skip the leave-one-out misclassification rate.
+    #[arg(long)]
+    pub no_holdout: bool,
+    /// Skip the assumption checks (Box's M, Mardia, Shapiro–Wilk, outliers, unequal covariance).
+    #[arg(long)]
+    pub no_checks: bool,
+    /// Relabellings for the permutation p-value (0 skips it).
+    #[arg(long, default_value_t = analysis::DEFAULT_PERMUTATIONS)]
+    pub permutations: usize,
+    /// Seed of the permutation draws (the same seed gives the same p-value).
+    #[arg(long, default_value_t = analysis::DEFAULT_SEED)]
+    pub seed: u64,
+    /// Sign the summary with this private key (PEM); needs --meaning and --out.
+    #[arg(long, value_name = "KEY", requires_all = ["meaning", "out"])]
+    pub sign: Option<PathBuf>,
+    /// Meaning of the signature: review, approval or authorship.
+    #[arg(long, value_name = "MEANING", requires = "sign")]
+    pub meaning: Option<String>,
+    /// Printed name of the signer (default: the name stored beside the key by keygen).
+    #[arg(long, value_name = "NAME", requires = "sign")]
+    pub signer: Option<String>,
+    /// Where to write the signed summary (JSON).
+    #[arg(long, value_name = "FILE", requires = "sign")]
+    pub out: Option<PathBuf>,
+    /// Also write a self-contained HTML report of the comparison.
+    #[arg(long, value_name = "HTML")]
+    pub html: Option<PathBuf>,
+}
+
+/// Arguments of `compare-stats`.
+#[derive(Debug, Args)]
+pub struct StatsArgs {
+    /// JSON file with `characteristics` and two `lots`, each `{name, n, mean, covariance}`.
+    #[arg(value_name = "FILE")]
+    pub file: PathBuf,
+    /// Significance level (overrides the file's `alpha`).
+    #[arg(long)]
+    pub alpha: Option<f64>,
+    /// Write the comparison record as JSON to FILE, or to standard output with "-".
+    #[arg(long, value_name = "FILE")]
+    pub json: Option<String>,
+    /// Exit with status 1 when the lots differ. Exit 0 then means "no difference detected":
+    /// not "equivalent", and never an automatic release of a lot.
+    #[arg(long)]
+    pub fail_on_shift: bool,
+    /// Specification limits and equivalence margins.
+    #[command(flatten)]
+    pub spec: SpecArgs,
+}
+
+/// Arguments of `inspect`.
+#[derive(Debug, Args)]
+pub struct InspectArgs {
+    /// The file to look at.
+    #[arg(value_name = "FILE")]
+    pub file: PathBuf,
+    /// Sheet to read from a spreadsheet.
+    #[arg(long, value_name = "NAME")]
+    pub sheet: Option<String>,
+    /// Columns to treat as labels.
+    #[arg(long, value_name = "COL,...", value_delimiter = ',')]
+    pub labels: Vec<String>,
+    /// Data rows to show.
+    #[arg(long, default_value_t = 5)]
+    pub rows: usize,
+}
+
+/// Summary statistics input of `compare-stats`.
+#[derive(Debug, serde::Deserialize)]
+pub(crate) struct StatsFile {
+    pub(crate) characteristics: Vec<String>,
+    #[serde(default)]
+    pub(crate) units: Vec<Option<String>>,
+    #[serde(default)]
+    pub(crate) alpha: Option<f64>,
+    pub(crate) lots: Vec<SummaryLot>,
+}

@@ -1,0 +1,132 @@
+//! `compare` (lot files) and `compare-stats` (summary statistics).
+
+#[allow(unused_imports)]
+use super::*;
+
+pub(super) fn compare(a: CompareArgs) -> CliResult {
+    // The specification first: a bad file stops before the lots are read.
+    let spec = a.spec.request()?;
+    let mut lots = load_lots(&a.lots)?;
+    let request = Request {
+        selection: Selection {
+            only: a.lots.characteristics.clone(),
+            exclude: a.lots.exclude.clone(),
+        },
+        settings: Settings {
+            alpha: a.alpha,
+            leave_one_out: !a.no_holdout,
+            checks: !a.no_checks,
+            permutations: a.permutations,
+            seed: a.seed,
+        },
+        spec,
+    };
+    // The unit matrices take the numbers over, and the engine centres them in place: memory
+    // holds one copy of the units.
+    let (prepared, c) =
+        pipeline::run_owned(&mut lots, &request, &Silent).map_err(|e| e.to_string())?;
+    let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
+    record.analysed_at = Some(sign::now_rfc3339());
+    // Sign before printing anything, so a bad key or meaning stops with nothing written.
+    let signed = match &a.sign {
+        Some(key_path) => {
+            let meaning_text = a.meaning.as_deref().unwrap_or_default();
+            let meaning = sign::Meaning::parse(meaning_text).ok_or_else(|| {
+                format!("--meaning must be review, approval or authorship (got \"{meaning_text}\")")
+            })?;
+            let key = sign::read_signing_key(key_path).map_err(|e| e.to_string())?;
+            let signer = a.signer.clone().or_else(|| sign::signer_beside(key_path)).ok_or_else(|| {
+                format!(
+                    "no printed name for the signer: give --signer, or keep the .signer.json file \
+                     keygen wrote beside {}",
+                    key_path.display()
+                )
+            })?;
+            Some(
+                sign::sign(&record, &key, &signer, meaning, &sign::now_rfc3339())
+                    .map_err(|e| e.to_string())?,
+            )
+        }
+        None => None,
+    };
+    if a.json.as_deref() != Some("-") {
+        let files = [
+            lots[0].provenance.file_name.as_str(),
+            lots[1].provenance.file_name.as_str(),
+        ];
+        out(&report::render_text(&c, Some(&prepared), files));
+    }
+    emit_json(&a.json, &record)?;
+    if let (Some(summary), Some(out_path)) = (&signed, &a.out) {
+        sign::write_summary(out_path, summary)
+            .map_err(|e| format!("the signed summary was not written: {e}"))?;
+        if a.json.as_deref() != Some("-") {
+            outln!(
+                "Signed summary written to {} (signed by {}, meaning {}, key {})",
+                out_path.display(),
+                summary.signature.signer,
+                summary.signature.meaning,
+                summary.signature.key_fingerprint
+            );
+        }
+    }
+    if let Some(html_path) = &a.html {
+        let value = serde_json::to_value(&record).map_err(|e| e.to_string())?;
+        let sig = signed
+            .as_ref()
+            .map(|s| serde_json::to_value(&s.signature).unwrap_or_default());
+        let html = html::render_html(&value, sig.as_ref());
+        report::write_atomic(html_path, html.as_bytes())
+            .map_err(|e| format!("the report was not written: {e}"))?;
+    }
+    Ok(if a.fail_on_shift && c.hotelling.differ {
+        ExitCode::from(EXIT_SHIFT)
+    } else {
+        ExitCode::SUCCESS
+    })
+}
+
+pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
+    let text =
+        std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let spec: StatsFile =
+        serde_json::from_str(&text).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let [l1, l2] = spec.lots.as_slice() else {
+        return Err(format!(
+            "{}: \"lots\" must hold exactly two lots",
+            a.file.display()
+        ));
+    };
+    let units = if spec.units.is_empty() {
+        vec![None; spec.characteristics.len()]
+    } else {
+        spec.units.clone()
+    };
+    let settings = Settings {
+        alpha: a.alpha.or(spec.alpha).unwrap_or(0.05),
+        leave_one_out: false,
+        checks: true,
+        permutations: 0,
+        seed: analysis::DEFAULT_SEED,
+    };
+    let mut c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
+        .map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let plan = a.spec.request()?;
+    if !plan.is_empty() {
+        let given = plan
+            .specification(&c.characteristics, &c.units)
+            .map_err(|e| e.to_string())?;
+        analysis::apply_specification(&mut c, &given, None).map_err(|e| e.to_string())?;
+    }
+    let record = Record::new(&c, None);
+    if a.json.as_deref() != Some("-") {
+        let name = a.file.display().to_string();
+        out(&report::render_text(&c, None, [&name, &name]));
+    }
+    emit_json(&a.json, &record)?;
+    Ok(if a.fail_on_shift && c.hotelling.differ {
+        ExitCode::from(EXIT_SHIFT)
+    } else {
+        ExitCode::SUCCESS
+    })
+}

@@ -1,0 +1,158 @@
+//! The command line: one file per subcommand; `args` holds every subcommand's arguments.
+//! No subcommand opens the window (src/gui).
+
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+use clap::{Args, Parser, Subcommand};
+
+use crate::analysis::decision::MarginRule;
+use crate::analysis::{self, Settings, Silent, SummaryLot};
+use crate::data::{self, ColumnData, LoadOptions, Lot, Selection};
+use crate::format::format_sig;
+use crate::pipeline::{self, Request, SpecRequest};
+use crate::report::{self, Record, html, sign};
+
+/// Writes a line to standard output; a closed pipe (`lotshift ... | head`) is not an error
+/// worth a panic, so write failures are ignored.
+macro_rules! outln {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stdout().lock(), $($arg)*);
+    }};
+}
+
+/// Writes text to standard output, ignoring a closed pipe.
+fn out(text: &str) {
+    use std::io::Write as _;
+    let _ = std::io::stdout().lock().write_all(text.as_bytes());
+}
+
+pub use crate::exit::{EXIT_BAD_INPUT, EXIT_NOT_VERIFIED, EXIT_SHIFT};
+
+mod args;
+mod compare;
+mod inspect;
+mod keys;
+mod plan;
+mod verify;
+
+pub use args::*;
+use compare::{compare, compare_stats};
+use inspect::inspect;
+use keys::keygen;
+use plan::plan;
+use verify::{report_html, verify};
+
+/// lotshift: do two production lots differ on several characteristics at once, and why?
+#[derive(Debug, Parser)]
+#[command(name = "lotshift", version, args_conflicts_with_subcommands = true)]
+pub struct Cli {
+    /// What to do; without one, the window opens.
+    #[command(subcommand)]
+    pub command: Option<Command>,
+    /// Render the window to this PNG file and exit.
+    #[arg(long, value_name = "PNG")]
+    pub screenshot: Option<PathBuf>,
+    /// View to show first in the window (verdict, characteristics, intervals, pairs,
+    /// direction).
+    #[arg(long, value_name = "VIEW")]
+    pub view: Option<String>,
+    /// Lot files to open in the window (two files; default: the bundled sample lots).
+    #[arg(value_name = "FILE")]
+    pub files: Vec<PathBuf>,
+}
+
+/// Subcommands.
+// Parsed once per run: the size of the largest variant does not matter.
+#[allow(clippy::large_enum_variant)]
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Compare two lots (two files, or one file split by a lot column).
+    Compare(CompareArgs),
+    /// Compare two lots given only as summary statistics (n, mean vector, covariance).
+    CompareStats(StatsArgs),
+    /// Show what lotshift sees in a file: delimiter, columns and their roles, missing cells.
+    Inspect(InspectArgs),
+    /// Power of the test for a given shift and lot size, or the lot size for a target power.
+    Plan(PlanArgs),
+    /// Make an Ed25519 signing key pair for signed summaries.
+    Keygen(KeygenArgs),
+    /// Check a signed summary: its signature, and with the lot files, every number.
+    Verify(VerifyArgs),
+    /// Render a record or signed summary as a self-contained HTML page.
+    Report(ReportArgs),
+}
+
+pub(crate) type CliResult = Result<ExitCode, String>;
+
+/// Runs a subcommand; returns the process exit status.
+pub fn run(command: Command) -> ExitCode {
+    let result = match command {
+        Command::Compare(a) => compare(a),
+        Command::CompareStats(a) => compare_stats(a),
+        Command::Inspect(a) => inspect(a),
+        Command::Plan(a) => plan(a),
+        Command::Keygen(a) => keygen(a),
+        Command::Verify(a) => verify(a),
+        Command::Report(a) => report_html(a),
+    };
+    match result {
+        Ok(code) => code,
+        Err(msg) => {
+            eprintln!("lotshift: error: {msg}");
+            ExitCode::from(EXIT_BAD_INPUT)
+        }
+    }
+}
+
+/// Reads the two lots named by `args`.
+///
+/// # Errors
+/// The load error's message.
+pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], String> {
+    let options = LoadOptions {
+        sheet: args.sheet.clone(),
+        labels: args.labels.clone(),
+    };
+    let values = match &args.lot_values {
+        None => None,
+        Some(text) => Some(parse_lot_values(text)?),
+    };
+    if values.is_some() && args.lot_column.is_none() {
+        return Err("--lot-values needs --lot-column: the column the two values are in".into());
+    }
+    let wanted = values.as_ref().map(|v| [v[0].as_str(), v[1].as_str()]);
+    data::load_two(&args.files, args.lot_column.as_deref(), wanted, &options)
+        .map_err(|e| e.to_string())
+}
+
+/// Splits `--lot-values REFERENCE,CANDIDATE` into its two values.
+///
+/// # Errors
+/// When the text does not hold exactly two non-empty, distinct values.
+pub fn parse_lot_values(text: &str) -> Result<[String; 2], String> {
+    let parts: Vec<&str> = text.split(',').map(str::trim).collect();
+    match parts.as_slice() {
+        [a, b] if !a.is_empty() && !b.is_empty() && a != b => Ok([a.to_string(), b.to_string()]),
+        [a, b] if a == b && !a.is_empty() => Err(format!(
+            "--lot-values needs two different values (got \"{a}\" twice)"
+        )),
+        _ => Err(format!(
+            "--lot-values takes the reference and the candidate value separated by a comma, \
+             e.g. --lot-values A,B (got \"{text}\")"
+        )),
+    }
+}
+
+fn emit_json(target: &Option<String>, record: &Record) -> Result<(), String> {
+    match target.as_deref() {
+        None => Ok(()),
+        Some("-") => {
+            outln!("{}", record.to_json());
+            Ok(())
+        }
+        Some(path) => report::write_atomic(std::path::Path::new(path), record.to_json().as_bytes())
+            .map_err(|e| format!("cannot write the record: {e}")),
+    }
+}

@@ -1,0 +1,183 @@
+//! `verify` (signature, lot files, every number) and `report` (HTML from a record).
+
+#[allow(unused_imports)]
+use super::*;
+
+pub(super) fn verify(a: VerifyArgs) -> CliResult {
+    let text =
+        std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let expected = match &a.key {
+        Some(k) => Some(sign::read_verifying_key(k).map_err(|e| e.to_string())?),
+        None => None,
+    };
+    let fail = |why: String| -> CliResult {
+        outln!("NOT VERIFIED: {why}");
+        eprintln!("lotshift: {}: not verified: {why}", a.file.display());
+        Ok(ExitCode::from(EXIT_NOT_VERIFIED))
+    };
+    let summary = match sign::verify_signature(&text, expected.as_ref()) {
+        Ok(s) => s,
+        Err(e) => return fail(e.to_string()),
+    };
+    let sig = &summary.signature;
+    outln!(
+        "signature    valid: signed by {} on {} (UTC), meaning {}, key {}",
+        sig.signer,
+        sig.signed_at,
+        sig.meaning,
+        sig.key_fingerprint
+    );
+    if expected.is_some() {
+        outln!("signer key   matches the expected public key");
+    } else {
+        outln!(
+            "signer key   not checked against an expected key (give --key PUB to check who signed)"
+        );
+    }
+    if a.files.is_empty() {
+        outln!("lot files    not checked (give --files to check them and recompute every number)");
+        outln!("VERIFIED (signature only)");
+        return Ok(ExitCode::SUCCESS);
+    }
+    let rec = &summary.record;
+    // The record, typed: a record that does not parse is reported, never read with defaults.
+    let typed: Record = match serde_json::from_value(rec.clone()) {
+        Ok(r) => r,
+        Err(e) => return fail(format!("the signed record is not a comparison record: {e}")),
+    };
+    let [lot0, lot1] = match typed.lots.as_slice() {
+        [a, b] => [a, b],
+        _ => return fail("the record does not describe two lots".into()),
+    };
+    let split = match (&lot0.split, &lot1.split) {
+        (Some((column, v0)), Some((_, v1))) => Some((column.clone(), [v0.clone(), v1.clone()])),
+        _ => None,
+    };
+    let files: Vec<PathBuf> = match (a.files.len(), &split) {
+        (1, Some(_)) => vec![a.files[0].clone()],
+        (2, Some(_)) if std::fs::read(&a.files[0]).ok() == std::fs::read(&a.files[1]).ok() => {
+            vec![a.files[0].clone()]
+        }
+        (2, _) => a.files.clone(),
+        _ => {
+            return fail(
+                "give the two lot files (or the one file both lots were read from)".into(),
+            );
+        }
+    };
+    for (f, lot) in files.iter().zip([lot0, lot1]) {
+        let bytes = std::fs::read(f).map_err(|e| format!("{}: {e}", f.display()))?;
+        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+        let want = lot.sha256.as_deref().unwrap_or_default();
+        if got != want {
+            return fail(format!(
+                "lot file {} is not the file analysed: its SHA-256 is {got}, the record has {want}",
+                f.display()
+            ));
+        }
+        outln!("lot file     {} matches (SHA-256 {got})", f.display());
+    }
+    let options = LoadOptions {
+        sheet: lot0.sheet.clone(),
+        labels: lot0.forced_labels.clone(),
+    };
+    let lots = match &split {
+        Some((column, values)) => data::load_two(
+            &files,
+            Some(column),
+            Some([values[0].as_str(), values[1].as_str()]),
+            &options,
+        ),
+        None => data::load_two(&files, None, None, &options),
+    }
+    .map_err(|e| e.to_string())?;
+    let characteristics = typed.characteristics.clone();
+    let settings = typed.settings.clone();
+    let recorded_spec = typed.specification.clone();
+    let spec = match (&a.spec, recorded_spec) {
+        (None, recorded) => SpecRequest {
+            recorded,
+            ..SpecRequest::default()
+        },
+        (Some(_), None) => {
+            return fail(
+                "--spec was given, but the record was made without a specification".into(),
+            );
+        }
+        (Some(path), Some(recorded)) => {
+            let file =
+                data::spec::load_spec(path, &LoadOptions::default()).map_err(|e| e.to_string())?;
+            let want = recorded.sha256.clone().unwrap_or_default();
+            if file.sha256 != want {
+                return fail(format!(
+                    "specification file {} is not the file used: its SHA-256 is {}, the record \
+                     has {}",
+                    path.display(),
+                    file.sha256,
+                    if want.is_empty() {
+                        "none (margins from a rule only)"
+                    } else {
+                        &want
+                    }
+                ));
+            }
+            outln!(
+                "spec file    {} matches (SHA-256 {})",
+                path.display(),
+                file.sha256
+            );
+            SpecRequest {
+                file: Some(file),
+                rule: recorded.rule,
+                distance_margin: recorded.distance_margin,
+                recorded: None,
+            }
+        }
+    };
+    let request = Request {
+        selection: Selection {
+            only: Some(characteristics),
+            exclude: Vec::new(),
+        },
+        settings,
+        spec,
+    };
+    let mut lots = lots;
+    let (prepared, c) =
+        pipeline::run_owned(&mut lots, &request, &Silent).map_err(|e| e.to_string())?;
+    let recomputed = serde_json::to_value(Record::new(&c, Some((&prepared, [&lots[0], &lots[1]]))))
+        .map_err(|e| e.to_string())?;
+    if let Some(diff) = sign::first_difference(rec, &recomputed) {
+        return fail(format!("a recomputed number differs: {diff}"));
+    }
+    outln!("recomputed   every number in the record matches the lot files");
+    outln!("VERIFIED");
+    Ok(ExitCode::SUCCESS)
+}
+
+pub(super) fn report_html(a: ReportArgs) -> CliResult {
+    let text =
+        std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let doc: serde_json::Value =
+        serde_json::from_str(&text).map_err(|e| format!("{}: not JSON: {e}", a.file.display()))?;
+    let html = if doc.get("signature").is_some() && doc.get("record").is_some() {
+        match sign::verify_signature(&text, None) {
+            Ok(_) => eprintln!(
+                "lotshift: the signature verifies (use lotshift verify to check the lot files too)"
+            ),
+            Err(e) => eprintln!("lotshift: warning: {e}"),
+        }
+        html::render_html(&doc["record"], Some(&doc["signature"]))
+    } else if doc.get("schema").and_then(|s| s.as_str()) == Some(report::SCHEMA) {
+        html::render_html(&doc, None)
+    } else {
+        return Err(format!(
+            "{}: neither a comparison record nor a signed summary",
+            a.file.display()
+        ));
+    };
+    report::write_atomic(&a.out, html.as_bytes())
+        .map_err(|e| format!("the report was not written: {e}"))?;
+    outln!("report written to {}", a.out.display());
+    Ok(ExitCode::SUCCESS)
+}
