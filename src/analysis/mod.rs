@@ -497,90 +497,39 @@ fn validate(
     Ok(())
 }
 
-fn summaries_of(data: [&DMatrix<f64>; 2], m: [&LotMoments; 2]) -> Vec<[ColumnSummary; 2]> {
+/// Unit data for [`compare_units`]: borrowed (the engine works on centred copies; the
+/// window's path, which keeps the lots) or owned (centred in place, so memory holds one copy;
+/// the command line's path for big lots). Both give the same numbers to the last bit: the
+/// arithmetic is the same, only where the centred values are stored differs.
+pub enum Units<'a> {
+    /// `n × p` matrices of the two lots, left untouched.
+    Borrowed([&'a DMatrix<f64>; 2]),
+    /// `n × p` matrices the engine may consume.
+    Owned([DMatrix<f64>; 2]),
+}
+
+impl Units<'_> {
+    fn matrix(&self, g: usize) -> &DMatrix<f64> {
+        match self {
+            Units::Borrowed(d) => d[g],
+            Units::Owned(d) => &d[g],
+        }
+    }
+}
+
+/// Per characteristic and lot: min, median and max of the values as measured (taken before
+/// any centring), with mean and SD still to come from the moments.
+fn order_statistics(data: [&DMatrix<f64>; 2]) -> Vec<[ColumnSummary; 2]> {
     (0..data[0].ncols())
-        .map(|k| {
-            [0, 1].map(|g| {
-                let mean = m[g].origin[k] + m[g].offset[k];
-                column_summary(data[g].column(k).as_slice(), mean, m[g].ssp[(k, k)])
-            })
-        })
+        .map(|k| [0, 1].map(|g| column_summary(data[g].column(k).as_slice(), f64::NAN, f64::NAN)))
         .collect()
 }
 
-/// Compares two lots from their unit data (borrowed: the engine works on centred copies).
-///
-/// # Errors
-/// Too few units for the number of characteristics, a constant characteristic, collinear
-/// characteristics, mismatched shapes, a bad alpha, or cancellation.
-pub fn compare(
-    characteristics: &[String],
-    units: &[Option<String>],
-    lots: [LotData<'_>; 2],
-    settings: &Settings,
-    progress: &dyn Progress,
-) -> Result<Comparison, EngineError> {
-    validate(
-        characteristics,
-        [lots[0].data.shape(), lots[1].data.shape()],
-        [lots[0].name, lots[1].name],
-        settings.alpha,
-    )?;
-    progress.report("moments", 0.0);
-    // Common origin: the first unit of the first lot.
-    let origin: DVector<f64> = lots[0].data.row(0).transpose();
-    let (m1, c1) = LotMoments::from_data_centred(lots[0].data, &origin);
-    let (m2, c2) = LotMoments::from_data_centred(lots[1].data, &origin);
-    if progress.cancelled() {
-        return Err(EngineError::Cancelled);
-    }
-    let summaries = summaries_of([lots[0].data, lots[1].data], [&m1, &m2]);
-    compare_centred(
-        characteristics,
-        units,
-        [lots[0].name, lots[1].name],
-        [m1, m2],
-        [c1, c2],
-        summaries,
-        settings,
-        progress,
-    )
-}
-
-/// Compares two lots from unit data it may consume: the data are centred in place, so memory
-/// holds one copy of the units (the command line's path for big lots). Gives exactly the
-/// numbers [`compare`] gives.
-///
-/// # Errors
-/// As [`compare`].
-pub fn compare_owned(
-    characteristics: &[String],
-    units: &[Option<String>],
-    names: [&str; 2],
-    data: [DMatrix<f64>; 2],
-    settings: &Settings,
-    progress: &dyn Progress,
-) -> Result<Comparison, EngineError> {
-    validate(
-        characteristics,
-        [data[0].shape(), data[1].shape()],
-        names,
-        settings.alpha,
-    )?;
-    progress.report("moments", 0.0);
-    let origin: DVector<f64> = data[0].row(0).transpose();
-    let [mut x, mut y] = data;
-    // Summaries need the values as measured: taken before centring.
-    let pre = [
-        LotMoments::from_data_summary(&x, &origin),
-        LotMoments::from_data_summary(&y, &origin),
-    ];
-    let mut summaries = summaries_of([&x, &y], [&pre[0], &pre[1]]);
-    let m1 = LotMoments::centre_in_place(&mut x, &origin);
-    let m2 = LotMoments::centre_in_place(&mut y, &origin);
-    // Mean and SD from the same moments as the borrowed path, to the last bit.
+/// Completes the summaries with the mean and SD of the lots' moments: one rule for every kind
+/// of unit input.
+fn complete_summaries(summaries: &mut [[ColumnSummary; 2]], m: [&LotMoments; 2]) {
     for (k, pair) in summaries.iter_mut().enumerate() {
-        for (sum, m) in pair.iter_mut().zip([&m1, &m2]) {
+        for (sum, m) in pair.iter_mut().zip(m) {
             let again = column_summary(&[], m.origin[k] + m.offset[k], m.ssp[(k, k)]);
             sum.mean = again.mean;
             sum.sd = if m.n > 1 {
@@ -590,16 +539,97 @@ pub fn compare_owned(
             };
         }
     }
+}
+
+/// Compares two lots from their unit data: the one entry point for unit input.
+///
+/// # Errors
+/// Too few units for the number of characteristics, a constant characteristic, collinear
+/// characteristics, mismatched shapes, a bad alpha, or cancellation.
+pub fn compare_units(
+    characteristics: &[String],
+    units: &[Option<String>],
+    names: [&str; 2],
+    data: Units<'_>,
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Comparison, EngineError> {
+    validate(
+        characteristics,
+        [data.matrix(0).shape(), data.matrix(1).shape()],
+        names,
+        settings.alpha,
+    )?;
+    progress.report("moments", 0.0);
+    // Common origin: the first unit of the first lot.
+    let origin: DVector<f64> = data.matrix(0).row(0).transpose();
+    let mut summaries = order_statistics([data.matrix(0), data.matrix(1)]);
+    let ([m1, m2], centred) = match data {
+        Units::Borrowed(d) => {
+            let (m1, c1) = LotMoments::from_data_centred(d[0], &origin);
+            let (m2, c2) = LotMoments::from_data_centred(d[1], &origin);
+            ([m1, m2], [c1, c2])
+        }
+        Units::Owned([mut x, mut y]) => {
+            let m1 = LotMoments::centre_in_place(&mut x, &origin);
+            let m2 = LotMoments::centre_in_place(&mut y, &origin);
+            ([m1, m2], [x, y])
+        }
+    };
     if progress.cancelled() {
         return Err(EngineError::Cancelled);
     }
+    complete_summaries(&mut summaries, [&m1, &m2]);
     compare_centred(
         characteristics,
         units,
         names,
         [m1, m2],
-        [x, y],
+        centred,
         summaries,
+        settings,
+        progress,
+    )
+}
+
+/// Compares two lots from borrowed unit data ([`compare_units`] with [`Units::Borrowed`]).
+///
+/// # Errors
+/// As [`compare_units`].
+pub fn compare(
+    characteristics: &[String],
+    units: &[Option<String>],
+    lots: [LotData<'_>; 2],
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Comparison, EngineError> {
+    compare_units(
+        characteristics,
+        units,
+        [lots[0].name, lots[1].name],
+        Units::Borrowed([lots[0].data, lots[1].data]),
+        settings,
+        progress,
+    )
+}
+
+/// Compares two lots from unit data it consumes ([`compare_units`] with [`Units::Owned`]).
+///
+/// # Errors
+/// As [`compare_units`].
+pub fn compare_owned(
+    characteristics: &[String],
+    units: &[Option<String>],
+    names: [&str; 2],
+    data: [DMatrix<f64>; 2],
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Comparison, EngineError> {
+    compare_units(
+        characteristics,
+        units,
+        names,
+        Units::Owned(data),
         settings,
         progress,
     )

@@ -53,28 +53,6 @@ impl LotMoments {
         )
     }
 
-    /// Moments without keeping centred data (for summaries before centring in place).
-    pub fn from_data_summary(x: &DMatrix<f64>, origin: &DVector<f64>) -> Self {
-        let (n, p) = x.shape();
-        let mut offset = DVector::zeros(p);
-        let mut ssp_diag = DVector::zeros(p);
-        let mut spread_scale = DVector::zeros(p);
-        for k in 0..p {
-            let (m, ss, scale) = column_moments(x.column(k).as_slice(), origin[k]);
-            offset[k] = m;
-            ssp_diag[k] = ss;
-            spread_scale[k] = scale;
-        }
-        let _ = n;
-        LotMoments {
-            n,
-            origin: origin.clone(),
-            offset,
-            ssp: DMatrix::from_diagonal(&ssp_diag),
-            spread_scale,
-        }
-    }
-
     /// Centres `x` in place (`x − origin − offset`, the same arithmetic as
     /// [`LotMoments::from_data_centred`]) and returns its moments.
     pub fn centre_in_place(x: &mut DMatrix<f64>, origin: &DVector<f64>) -> Self {
