@@ -4,9 +4,10 @@
 use std::borrow::Cow;
 use std::path::Path;
 
+use super::header::Headers;
 use super::{
     Cell, Column, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot, Provenance, TextColumn,
-    classify, column_letter, match_key, parse_cell_bytes, split_header,
+    classify, column_letter, parse_cell_bytes,
 };
 
 /// Rows used to decide each column's role.
@@ -503,9 +504,8 @@ fn read_source(
         return Err(LoadError::new(path, LoadErrorKind::Empty));
     }
     let header = header_fields;
-    let forced: Vec<String> = options.labels.iter().map(|l| match_key(l)).collect();
+    let mut headers = Headers::new(options);
     let mut columns: Vec<Builder> = Vec::with_capacity(header.len());
-    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
     for (pos, raw) in header.iter().enumerate() {
         if raw.len() > MAX_HEADER_CELL {
             return Err(LoadError {
@@ -514,28 +514,8 @@ fn read_source(
             });
         }
         let text = decode(raw, latin1).trim().to_string();
-        let (name, unit) = if text.is_empty() {
-            (format!("column {}", column_letter(pos)), None)
-        } else {
-            split_header(&text)
-        };
-        let key = match_key(&name);
-        if let Some(prev) = seen.get(&key).map(|&i| &columns[i]) {
-            return Err(LoadError::at_cell(
-                path,
-                1,
-                &text,
-                pos,
-                LoadErrorKind::DuplicateColumn {
-                    first: format!(
-                        "column {} \"{}\"",
-                        column_letter(prev.position),
-                        prev.header
-                    ),
-                },
-            ));
-        }
-        seen.insert(key, columns.len());
+        let (name, unit) = Headers::name(&text, pos);
+        headers.claim(path, 1, &text, &name, pos)?;
         columns.push(Builder {
             header: text,
             name,
@@ -571,9 +551,7 @@ fn read_source(
         return Err(LoadError::at_row(path, 1, LoadErrorKind::HeaderOnly));
     }
     for (col, &(num, txt)) in columns.iter_mut().zip(&counts) {
-        let forced_label =
-            forced.contains(&match_key(&col.name)) || forced.contains(&match_key(&col.header));
-        col.numeric = classify(num, txt, forced_label);
+        col.numeric = classify(num, txt, headers.forced_label(&col.name, &col.header));
     }
 
     for col in columns.iter_mut() {

@@ -3,6 +3,7 @@
 
 mod delimited;
 mod error;
+mod header;
 mod pair;
 mod sheet;
 pub mod spec;

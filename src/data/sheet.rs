@@ -5,9 +5,10 @@ use std::io::Cursor;
 
 use calamine::{Data, Range, Reader as _, open_workbook_auto_from_rs};
 
+use super::header::Headers;
 use super::{
     Cell, Column, ColumnData, LoadError, LoadErrorKind, LoadOptions, Lot, Provenance, TextColumn,
-    classify, column_letter, match_key, parse_cell, split_header,
+    classify, parse_cell,
 };
 
 const CLASSIFY_ROWS: usize = 1000;
@@ -123,17 +124,12 @@ pub(super) fn read(
             LoadErrorKind::HeaderOnly,
         ));
     }
-    let forced: Vec<String> = options.labels.iter().map(|l| match_key(l)).collect();
+    let mut headers = Headers::new(options);
     let mut columns: Vec<Column> = Vec::new();
-    let mut seen: std::collections::HashMap<String, usize> = std::collections::HashMap::new();
     for (k, h) in header.iter().enumerate() {
         let pos = col0 as usize + k;
         let text = cell_text(h);
-        let (name, unit) = if text.is_empty() {
-            (format!("column {}", column_letter(pos)), None)
-        } else {
-            split_header(&text)
-        };
+        let (name, unit) = Headers::name(&text, pos);
         let all_empty = body.iter().all(|(_, r)| {
             r.get(k)
                 .is_none_or(|c| matches!(cell_kind(c), Cell::Missing))
@@ -141,21 +137,7 @@ pub(super) fn read(
         if text.is_empty() && all_empty {
             continue;
         }
-        if let Some(prev) = seen.get(&match_key(&name)).map(|&i| &columns[i]) {
-            return Err(LoadError::at_cell(
-                path,
-                header_row,
-                &text,
-                pos,
-                LoadErrorKind::DuplicateColumn {
-                    first: format!(
-                        "column {} \"{}\"",
-                        column_letter(prev.position),
-                        prev.header
-                    ),
-                },
-            ));
-        }
+        headers.claim(path, header_row, &text, &name, pos)?;
         let (mut num, mut txt) = (0, 0);
         for (_, r) in body.iter().take(CLASSIFY_ROWS) {
             match r.get(k).map(cell_kind) {
@@ -164,8 +146,7 @@ pub(super) fn read(
                 _ => {}
             }
         }
-        let forced_label = forced.contains(&match_key(&name)) || forced.contains(&match_key(&text));
-        let numeric = classify(num, txt, forced_label);
+        let numeric = classify(num, txt, headers.forced_label(&name, &text));
         let mut missing = 0;
         let data = if numeric {
             let mut values = Vec::with_capacity(body.len());
@@ -213,7 +194,6 @@ pub(super) fn read(
             }
             ColumnData::Text(tc)
         };
-        seen.insert(match_key(&name), columns.len());
         columns.push(Column {
             header: text,
             name,
