@@ -397,3 +397,43 @@ pub fn unequal_covariance(m1: &LotMoments, m2: &LotMoments) -> Option<UnequalCov
         p_value: dist::f_sf(f, pf, df2),
     })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use nalgebra::{DMatrix, DVector};
+
+    /// Two lots with the same sample covariance matrix: Box's M is exactly zero (every
+    /// log-determinant equals the pooled one) and its p-value 1.
+    #[test]
+    fn box_m_is_zero_for_equal_covariances() {
+        let rows = [[1.0, 2.0], [2.0, 1.5], [3.0, 3.5], [4.0, 3.0], [5.0, 5.5]];
+        let x = DMatrix::from_fn(5, 2, |i, k| rows[i][k]);
+        let y = x.map(|v| v + 10.0);
+        let origin = DVector::from_vec(vec![1.0, 2.0]);
+        let (m1, _) = LotMoments::from_data_centred(&x, &origin);
+        let (m2, _) = LotMoments::from_data_centred(&y, &origin);
+        let b = box_m(&m1, &m2).expect("computable");
+        assert!(b.m.abs() < 1e-10, "{}", b.m);
+        assert!(b.p_value > 0.999_999, "{}", b.p_value);
+    }
+
+    /// A lot symmetric about its mean (every unit has its mirror image) has zero multivariate
+    /// skewness, b1,p = 0 (Mardia 1970, the definition).
+    #[test]
+    fn mardia_skewness_is_zero_for_a_symmetric_lot() {
+        let half = [
+            [0.3, 1.2],
+            [-0.7, 0.4],
+            [1.1, -0.2],
+            [0.5, 0.9],
+            [-1.3, 0.1],
+        ];
+        let mut rows: Vec<[f64; 2]> = half.to_vec();
+        rows.extend(half.iter().map(|r| [-r[0], -r[1]]));
+        let mut z = DMatrix::from_fn(rows.len(), 2, |i, k| rows[i][k]);
+        assert!(whiten_in_place(&mut z));
+        let m = mardia("lot", &z);
+        assert!(m.skewness.abs() < 1e-12, "{}", m.skewness);
+    }
+}
