@@ -73,6 +73,21 @@ pub struct Request {
     pub settings: Settings,
     /// Specification, margins.
     pub spec: SpecRequest,
+    /// Every numeric column must be compared: an unmatched one is an error.
+    pub strict_columns: bool,
+}
+
+/// Refuses lots that do not line up when every column must be compared.
+fn check_strict(request: &Request, prepared: &Prepared) -> Result<(), PipelineError> {
+    let missing = prepared.not_compared();
+    if request.strict_columns && !missing.is_empty() {
+        return Err(PrepareError::NotCompared {
+            count: missing.len(),
+            list: missing.join(", "),
+        }
+        .into());
+    }
+    Ok(())
 }
 
 /// Why the pipeline stopped.
@@ -118,6 +133,7 @@ pub fn run_owned(
     progress: &dyn Progress,
 ) -> Result<(Prepared, Comparison), PipelineError> {
     let mut prepared = data::prepare_releasing(lots, &request.selection)?;
+    check_strict(request, &prepared)?;
     let spec = specification_and_counts(request, &prepared)?;
     let units = [
         std::mem::replace(&mut prepared.lots[0].data, DMatrix::zeros(0, 0)),
@@ -135,6 +151,7 @@ pub fn run_owned(
     if let Some((s, observed)) = spec {
         analysis::apply_specification(&mut c, &s, Some(&observed))?;
     }
+    analysis::note_not_compared(&mut c, prepared.not_compared());
     Ok((prepared, c))
 }
 
@@ -144,7 +161,9 @@ pub fn run_owned(
 /// # Errors
 /// Unmatched columns.
 pub fn prepare_shared(lots: &[Arc<Lot>; 2], request: &Request) -> Result<Prepared, PipelineError> {
-    Ok(data::prepare(&lots[0], &lots[1], &request.selection)?)
+    let prepared = data::prepare(&lots[0], &lots[1], &request.selection)?;
+    check_strict(request, &prepared)?;
+    Ok(prepared)
 }
 
 /// Compares prepared lots without consuming them, with `settings` in place of the request's
@@ -179,5 +198,6 @@ pub fn run_prepared(
     if let Some((s, observed)) = spec {
         analysis::apply_specification(&mut c, &s, Some(&observed))?;
     }
+    analysis::note_not_compared(&mut c, prepared.not_compared());
     Ok(c)
 }

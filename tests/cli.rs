@@ -527,3 +527,85 @@ fn inspect_reports_the_decimal_mark_it_read() {
     assert!(out.contains("1.5 | 2.25"), "{out}");
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// A header written differently (`hub-length` for `hub length`) still pairs, and the pairing
+/// is reported; the T² is the sample pair's (numpy/scipy, fixture key `sample_lots`).
+/// A misspelt header cannot pair: the verdict opens by naming both columns, with the nearest
+/// name, and `--strict-columns` turns it into an error.
+#[test]
+fn renamed_and_misspelt_columns_are_never_dropped_silently() {
+    let dir = tmpdir("renamed");
+    let text = std::fs::read_to_string(sample("candidate-route-b.csv")).unwrap();
+    let (head, body) = text.split_once('\n').unwrap();
+    let hyphen = dir.join("hyphen.csv");
+    std::fs::write(
+        &hyphen,
+        format!("{}\n{body}", head.replace("hub length", "hub-length")),
+    )
+    .unwrap();
+    let typo = dir.join("typo.csv");
+    std::fs::write(
+        &typo,
+        format!("{}\n{body}", head.replace("hub length", "hub lenght")),
+    )
+    .unwrap();
+    let reference = sample("reference-route-a.csv");
+    let r = reference.to_str().unwrap();
+    let want = common::reference_fixtures()["sample_lots"]["reference_candidate"]["t2"]
+        .as_f64()
+        .unwrap();
+    let o = run(&[
+        "compare",
+        r,
+        hyphen.to_str().unwrap(),
+        "--permutations",
+        "0",
+        "--json",
+        "-",
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let rec: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let t2 = rec["hotelling"]["t2"].as_f64().unwrap();
+    assert!((t2 - want).abs() < 1e-9 * want, "{t2} vs {want}");
+    let o = run(&[
+        "compare",
+        r,
+        hyphen.to_str().unwrap(),
+        "--permutations",
+        "0",
+    ]);
+    assert!(
+        stdout(&o).contains(
+            "paired by name: \"hub length (mm)\" (lot 1) with \"hub-length (mm)\" (lot 2)"
+        ),
+        "{}",
+        stdout(&o)
+    );
+    let o = run(&["compare", r, typo.to_str().unwrap(), "--permutations", "0"]);
+    assert!(o.status.success());
+    let out = stdout(&o);
+    let verdict = out
+        .split("Verdict\n")
+        .nth(1)
+        .unwrap()
+        .lines()
+        .next()
+        .unwrap();
+    assert!(
+        verdict.starts_with("  2 numeric columns were not compared: \"hub length (mm)\""),
+        "{verdict}"
+    );
+    assert!(
+        verdict.contains("nearest there: \"hub lenght (mm)\""),
+        "{verdict}"
+    );
+    let o = run(&["compare", r, typo.to_str().unwrap(), "--strict-columns"]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("2 numeric columns are not compared"),
+        "{}",
+        stderr(&o)
+    );
+    assert!(o.stdout.is_empty());
+    std::fs::remove_dir_all(dir).unwrap();
+}

@@ -634,3 +634,72 @@ fn text_output_says_what_equivalence_needs() {
     assert!(out.contains("margin 1.5 × the reference lot's SD"), "{out}");
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// Summaries made with `--exclude`, with `--characteristics` in another order, and with a
+/// misspelt column verify: `verify` replays the selection and each left-out column keeps its
+/// recorded reason.
+#[test]
+fn verify_replays_exclusions_selections_and_columns_not_compared() {
+    let dir = tmpdir("replay");
+    let text = std::fs::read_to_string(dir.join("candidate-route-b.csv")).unwrap();
+    let (head, body) = text.split_once('\n').unwrap();
+    std::fs::write(
+        dir.join("typo.csv"),
+        format!("{}\n{body}", head.replace("mass", "mas")),
+    )
+    .unwrap();
+    let ok = |o: &Output| {
+        assert!(
+            o.status.success(),
+            "{}{}",
+            String::from_utf8_lossy(&o.stdout),
+            String::from_utf8_lossy(&o.stderr)
+        )
+    };
+    ok(&run(
+        &["keygen", "--signer", "Ana Reyes", "--out", "keys"],
+        &dir,
+    ));
+    for (i, (cand, extra)) in [
+        (
+            "candidate-route-b.csv",
+            vec!["--exclude", "mass,bore diameter"],
+        ),
+        (
+            "candidate-route-b.csv",
+            vec!["--characteristics", "mass,hub length,flange thickness"],
+        ),
+        ("typo.csv", vec![]),
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let out = format!("s{i}.json");
+        let mut args = vec![
+            "compare",
+            "reference-route-a.csv",
+            cand,
+            "--permutations",
+            "0",
+            "--sign",
+            "keys/lotshift-signing-key.pem",
+            "--meaning",
+            "review",
+            "--out",
+            &out,
+        ];
+        args.extend(extra.iter().copied());
+        ok(&run(&args, &dir));
+        let o = run(
+            &["verify", &out, "--files", "reference-route-a.csv", cand],
+            &dir,
+        );
+        ok(&o);
+        assert!(
+            String::from_utf8_lossy(&o.stdout)
+                .trim_end()
+                .ends_with("VERIFIED")
+        );
+    }
+    std::fs::remove_dir_all(dir).unwrap();
+}

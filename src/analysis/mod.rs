@@ -375,6 +375,10 @@ pub struct Comparison {
     /// margin rule was given.
     #[serde(default)]
     pub decision: Option<Decision>,
+    /// Numeric columns the lots did not line up on (not the ones left out by choice), as
+    /// `"header" (lot N: why)`; named in the verdict's first sentence.
+    #[serde(default)]
+    pub not_compared: Vec<String>,
 }
 
 /// Box's M is judged at this level (common practice: M is very sensitive to non-normality).
@@ -985,6 +989,7 @@ fn finish(
         verdict: String::new(),
         warnings,
         decision: None,
+        not_compared: Vec::new(),
     };
     conclude(&mut out);
     Ok(out)
@@ -996,13 +1001,28 @@ fn finish(
 fn conclude(c: &mut Comparison) {
     c.favoured = favour(c);
     let t2 = verdict_text(c);
-    c.verdict = match &c.decision {
+    let verdict = match &c.decision {
         Some(d) => format!(
             "{} {t2}",
             decision::decision_text(d, [&c.lots[0].name, &c.lots[1].name])
         ),
         None => t2,
     };
+    c.verdict = match c.not_compared.len() {
+        0 => verdict,
+        n => format!(
+            "{n} numeric {} not compared: {}. {verdict}",
+            if n == 1 { "column was" } else { "columns were" },
+            c.not_compared.join(", ")
+        ),
+    };
+}
+
+/// Names the numeric columns the lots did not line up on, so the verdict opens with them
+/// (a dropped column can change the result).
+pub fn note_not_compared(c: &mut Comparison, columns: Vec<String>) {
+    c.not_compared = columns;
+    conclude(c);
 }
 
 /// Applies a specification (limits, margins, margin rule) to a finished comparison: the

@@ -111,6 +111,10 @@ pub struct LotArgs {
     /// Leave these characteristics out.
     #[arg(long, value_name = "COL,...", value_delimiter = ',')]
     pub exclude: Vec<String>,
+    /// Every numeric column must be compared: a column the lots do not line up on (missing
+    /// from one lot, text in the other, empty) is an error (exit status 2) instead of a note.
+    #[arg(long)]
+    pub strict_columns: bool,
 }
 
 /// Specification limits and equivalence margins.

@@ -20,6 +20,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
             seed: a.seed,
         },
         spec,
+        strict_columns: a.lots.strict_columns,
     };
     // The unit matrices take the numbers over, and the engine centres them in place: memory
     // holds one copy of the units.

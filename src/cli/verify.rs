@@ -134,13 +134,22 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
             }
         }
     };
+    // The same selection: the compared characteristics in their order, and the columns the
+    // user excluded (so each left-out column keeps its recorded reason).
+    let exclude = typed
+        .unmatched
+        .iter()
+        .filter(|u| u.lot == 0 && u.why == "excluded")
+        .map(|u| u.column.clone())
+        .collect();
     let request = Request {
         selection: Selection {
             only: Some(characteristics),
-            exclude: Vec::new(),
+            exclude,
         },
         settings,
         spec,
+        strict_columns: false,
     };
     let mut lots = lots;
     let (prepared, c) =

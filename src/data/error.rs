@@ -208,7 +208,7 @@ pub enum PrepareError {
     /// No numeric column appears in both lots.
     #[error(
         "\"{0}\" and \"{1}\" have no numeric column in common (columns are matched by name, \
-         ignoring case and spaces)"
+         ignoring case, spaces, hyphens, underscores and dots)"
     )]
     NoCommonColumns(String, String),
     /// A characteristic asked for is not a numeric column of both lots.
@@ -239,4 +239,16 @@ pub enum PrepareError {
     /// Every characteristic was excluded.
     #[error("no characteristics left to compare")]
     NothingSelected,
+    /// Numeric columns that are not compared, when every one must be.
+    #[error(
+        "{count} numeric {} not compared: {list} (--strict-columns makes this an error; \
+         rename, exclude or read them as labels)",
+        if *count == 1 { "column is" } else { "columns are" }
+    )]
+    NotCompared {
+        /// How many.
+        count: usize,
+        /// Each with its lot and reason.
+        list: String,
+    },
 }

@@ -10,7 +10,7 @@ pub mod spec;
 mod split;
 
 pub use error::{LoadError, LoadErrorKind, PrepareError};
-pub use pair::{Prepared, PreparedLot, Selection, Unmatched, prepare, prepare_releasing};
+pub use pair::{Pairing, Prepared, PreparedLot, Selection, Unmatched, prepare, prepare_releasing};
 pub use split::{lot_column_candidates, lot_values, split_lot};
 
 use std::path::Path;
@@ -184,10 +184,11 @@ impl Lot {
     }
 }
 
-/// Column-matching key: lower case, whitespace removed.
+/// Column-matching key: lower case, with whitespace, hyphens, underscores and dots removed,
+/// so `hub length`, `Hub-Length`, `hub_length` and `hub.length` are one column.
 pub fn match_key(name: &str) -> String {
     name.chars()
-        .filter(|c| !c.is_whitespace())
+        .filter(|c| !c.is_whitespace() && !matches!(c, '-' | '_' | '.'))
         .flat_map(char::to_lowercase)
         .collect()
 }

@@ -25,6 +25,24 @@ pub struct Unmatched {
     pub why: String,
 }
 
+/// Two columns paired although their headers are written differently (`hub-length` with
+/// `hub length`): reported so the pairing can be checked.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Pairing {
+    /// The reference lot's header.
+    pub reference: String,
+    /// The candidate lot's header.
+    pub candidate: String,
+}
+
+impl Unmatched {
+    /// True when the column was left out by the user's choice (not selected, excluded),
+    /// false when it was left out because the lots do not line up.
+    pub fn chosen(&self) -> bool {
+        self.why == "not selected" || self.why == "excluded"
+    }
+}
+
 /// One lot ready for the engine.
 #[derive(Debug, Clone, PartialEq)]
 pub struct PreparedLot {
@@ -53,6 +71,20 @@ pub struct Prepared {
     pub lots: [PreparedLot; 2],
     /// Columns not compared, with the reason.
     pub unmatched: Vec<Unmatched>,
+    /// Compared columns whose headers are written differently in the two lots.
+    pub pairings: Vec<Pairing>,
+}
+
+impl Prepared {
+    /// The numeric columns left out because the lots do not line up (not the ones the user
+    /// excluded or did not select), as `"header" (lot N: why)`.
+    pub fn not_compared(&self) -> Vec<String> {
+        self.unmatched
+            .iter()
+            .filter(|u| !u.chosen())
+            .map(|u| format!("\"{}\" (lot {}: {})", u.column, u.lot + 1, u.why))
+            .collect()
+    }
 }
 
 /// The matched columns, before any number is copied.
@@ -60,6 +92,7 @@ struct Plan {
     characteristics: Vec<String>,
     units: Vec<Option<String>>,
     unmatched: Vec<Unmatched>,
+    pairings: Vec<Pairing>,
     /// Column indices in the first and the second lot.
     pairs: Vec<(usize, usize)>,
 }
@@ -78,6 +111,7 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
         units: plan.units,
         lots: [build(a, &idx_a), build(b, &idx_b)],
         unmatched: plan.unmatched,
+        pairings: plan.pairings,
     })
 }
 
@@ -102,6 +136,7 @@ pub fn prepare_releasing(
         units: plan.units,
         lots: [first, second],
         unmatched: plan.unmatched,
+        pairings: plan.pairings,
     })
 }
 
@@ -157,6 +192,22 @@ fn plan(a: &Lot, b: &Lot, selection: &Selection) -> Result<Plan, PrepareError> {
             _ => {}
         }
     }
+    // For a column in one lot only, the nearest name among the other lot's unmatched numeric
+    // columns: most often the same characteristic written differently.
+    let lone: [Vec<String>; 2] = [0, 1].map(|g| {
+        unmatched
+            .iter()
+            .filter(|u| u.lot == g && u.why == "not in the other lot")
+            .map(|u| u.column.clone())
+            .collect()
+    });
+    for u in &mut unmatched {
+        if u.why == "not in the other lot"
+            && let Some(n) = super::spec::nearest(&u.column, &lone[1 - u.lot])
+        {
+            u.why = format!("not in the other lot; nearest there: \"{n}\"");
+        }
+    }
     if pairs.is_empty() {
         return Err(PrepareError::NoCommonColumns(
             a.provenance.file_name.clone(),
@@ -187,6 +238,30 @@ fn plan(a: &Lot, b: &Lot, selection: &Selection) -> Result<Plan, PrepareError> {
         list.iter()
             .any(|n| match_key(n) == match_key(&ca.name) || match_key(n) == match_key(&ca.header))
     };
+    // Exclusions first, then the selection (so verify can replay both from a record).
+    for name in &selection.exclude {
+        let key = match_key(name);
+        let known = pairs.iter().any(|&(ia, _)| {
+            match_key(&a.columns[ia].name) == key || match_key(&a.columns[ia].header) == key
+        });
+        if !known {
+            return Err(PrepareError::UnknownCharacteristic {
+                name: name.clone(),
+                why: describe(name),
+            });
+        }
+    }
+    pairs.retain(|&(ia, _)| {
+        let out = is_named(&selection.exclude, ia);
+        if out {
+            unmatched.push(Unmatched {
+                lot: 0,
+                column: a.columns[ia].header.clone(),
+                why: "excluded".into(),
+            });
+        }
+        !out
+    });
     if let Some(only) = &selection.only {
         for name in only {
             let key = match_key(name);
@@ -222,29 +297,6 @@ fn plan(a: &Lot, b: &Lot, selection: &Selection) -> Result<Plan, PrepareError> {
         }
         pairs = ordered;
     }
-    for name in &selection.exclude {
-        let key = match_key(name);
-        let known = pairs.iter().any(|&(ia, _)| {
-            match_key(&a.columns[ia].name) == key || match_key(&a.columns[ia].header) == key
-        });
-        if !known {
-            return Err(PrepareError::UnknownCharacteristic {
-                name: name.clone(),
-                why: describe(name),
-            });
-        }
-    }
-    pairs.retain(|&(ia, _)| {
-        let out = is_named(&selection.exclude, ia);
-        if out {
-            unmatched.push(Unmatched {
-                lot: 0,
-                column: a.columns[ia].header.clone(),
-                why: "excluded".into(),
-            });
-        }
-        !out
-    });
     // A column with no values in a lot cannot be compared.
     pairs.retain(|&(ia, ib)| {
         for (lot, idx) in [(0usize, ia), (1usize, ib)] {
@@ -283,10 +335,19 @@ fn plan(a: &Lot, b: &Lot, selection: &Selection) -> Result<Plan, PrepareError> {
         .iter()
         .map(|&(ia, _)| a.columns[ia].name.clone())
         .collect();
+    let pairings = pairs
+        .iter()
+        .filter(|&&(ia, ib)| a.columns[ia].name != b.columns[ib].name)
+        .map(|&(ia, ib)| Pairing {
+            reference: a.columns[ia].header.clone(),
+            candidate: b.columns[ib].header.clone(),
+        })
+        .collect();
     Ok(Plan {
         characteristics,
         units,
         unmatched,
+        pairings,
         pairs,
     })
 }

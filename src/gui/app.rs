@@ -298,6 +298,7 @@ impl LotshiftApp {
                 selection: sel,
                 settings: self.saved.settings.clone(),
                 spec: self.spec_request(),
+                strict_columns: false,
             };
             self.worker.compare(lots, request);
         }

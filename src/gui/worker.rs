@@ -356,6 +356,7 @@ pub fn run_comparison(
         selection: selection.clone(),
         settings: settings.clone(),
         spec: SpecRequest::default(),
+        strict_columns: false,
     };
     run_comparison_staged(lots, &request, progress, &|_| {})
 }

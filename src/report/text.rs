@@ -44,6 +44,13 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
         );
     }
     if let Some(p) = prepared {
+        for m in &p.pairings {
+            let _ = writeln!(
+                s,
+                "  paired by name: \"{}\" (lot 1) with \"{}\" (lot 2)",
+                m.reference, m.candidate
+            );
+        }
         for u in &p.unmatched {
             let _ = writeln!(
                 s,
