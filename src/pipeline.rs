@@ -107,6 +107,19 @@ pub enum PipelineError {
     Decision(#[from] DecisionError),
 }
 
+/// Screens the lots and the matched columns for mistakes ([`data::screen`]).
+fn screen(lots: [&Lot; 2], prepared: &Prepared) -> analysis::InputNotes {
+    let same = data::screen::same_file(lots[0], lots[1]);
+    analysis::InputNotes {
+        not_compared: prepared.not_compared(),
+        warnings: data::screen::repeated_identifiers(lots, same.is_none())
+            .into_iter()
+            .chain(data::screen::code_like(prepared))
+            .collect(),
+        alerts: same.into_iter().collect(),
+    }
+}
+
 fn specification_and_counts(
     request: &Request,
     prepared: &Prepared,
@@ -135,6 +148,7 @@ pub fn run_owned(
     let mut prepared = data::prepare_releasing(lots, &request.selection)?;
     check_strict(request, &prepared)?;
     let spec = specification_and_counts(request, &prepared)?;
+    let notes = screen([&lots[0], &lots[1]], &prepared);
     let units = [
         std::mem::replace(&mut prepared.lots[0].data, DMatrix::zeros(0, 0)),
         std::mem::replace(&mut prepared.lots[1].data, DMatrix::zeros(0, 0)),
@@ -151,7 +165,7 @@ pub fn run_owned(
     if let Some((s, observed)) = spec {
         analysis::apply_specification(&mut c, &s, Some(&observed))?;
     }
-    analysis::note_not_compared(&mut c, prepared.not_compared());
+    analysis::note_inputs(&mut c, notes);
     Ok((prepared, c))
 }
 
@@ -173,6 +187,7 @@ pub fn prepare_shared(lots: &[Arc<Lot>; 2], request: &Request) -> Result<Prepare
 /// # Errors
 /// A specification that does not fit, or an engine error.
 pub fn run_prepared(
+    lots: &[Arc<Lot>; 2],
     prepared: &Prepared,
     request: &Request,
     settings: &Settings,
@@ -198,6 +213,6 @@ pub fn run_prepared(
     if let Some((s, observed)) = spec {
         analysis::apply_specification(&mut c, &s, Some(&observed))?;
     }
-    analysis::note_not_compared(&mut c, prepared.not_compared());
+    analysis::note_inputs(&mut c, screen([&lots[0], &lots[1]], prepared));
     Ok(c)
 }

@@ -609,3 +609,82 @@ fn renamed_and_misspelt_columns_are_never_dropped_silently() {
     assert!(o.stdout.is_empty());
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// The same file for both lots, a serial number measured twice or in both lots, and a
+/// cavity-number column are each named (a test per mistake); units left out for missing
+/// cells are named by row and label.
+#[test]
+fn input_mistakes_are_named() {
+    let dir = tmpdir("mistakes");
+    let r = sample("reference-route-a.csv");
+    let r = r.to_str().unwrap();
+    let o = run(&["compare", r, r, "--permutations", "0"]);
+    let out = stdout(&o);
+    let verdict = out
+        .split("Verdict\n")
+        .nth(1)
+        .unwrap()
+        .lines()
+        .next()
+        .unwrap();
+    assert!(
+        verdict.starts_with("  Both lots are the same file"),
+        "{verdict}"
+    );
+    assert!(!out.contains("appear in both lots"), "{out}");
+    // Row 19 of the reference lot has no mass (sample-lots/generate.py plants it).
+    assert!(
+        out.contains("left out of lot 1 for missing cells: row 19 (serial HX40-A-0018;"),
+        "{out}"
+    );
+    assert!(out.contains("missing mass)"), "{out}");
+    let text = std::fs::read_to_string(sample("candidate-route-b.csv")).unwrap();
+    let mut lines: Vec<String> = text.lines().map(str::to_string).collect();
+    // Row 6 repeats row 4's serial; row 8 takes a serial of the reference lot; a cavity
+    // number 1..4 is added to every unit.
+    let serial = |l: &str| l.split(',').next().unwrap().to_string();
+    let s4 = serial(&lines[3]);
+    lines[5] = lines[5].replacen(&serial(&lines[5]), &s4, 1);
+    lines[7] = lines[7].replacen(&serial(&lines[7]), "HX40-A-0007", 1);
+    lines[0].push_str(",cavity");
+    for (i, l) in lines.iter_mut().enumerate().skip(1) {
+        l.push_str(&format!(",{}", 1 + i % 4));
+    }
+    let cand = dir.join("cand.csv");
+    std::fs::write(&cand, lines.join("\n") + "\n").unwrap();
+    let reftext = std::fs::read_to_string(sample("reference-route-a.csv")).unwrap();
+    let mut rl: Vec<String> = reftext.lines().map(str::to_string).collect();
+    rl[0].push_str(",cavity");
+    for (i, l) in rl.iter_mut().enumerate().skip(1) {
+        l.push_str(&format!(",{}", 1 + i % 4));
+    }
+    let refc = dir.join("ref.csv");
+    std::fs::write(&refc, rl.join("\n") + "\n").unwrap();
+    let o = run(&[
+        "compare",
+        refc.to_str().unwrap(),
+        cand.to_str().unwrap(),
+        "--permutations",
+        "0",
+        "--json",
+        "-",
+    ]);
+    let rec: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let warnings: Vec<String> = rec["warnings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w.as_str().unwrap().to_string())
+        .collect();
+    let has = |s: &str| warnings.iter().any(|w| w.contains(s));
+    assert!(has(&format!("\"{s4}\" on rows 4 and 6")), "{warnings:?}");
+    assert!(
+        has("appear in both lots") && has("\"HX40-A-0007\""),
+        "{warnings:?}"
+    );
+    assert!(
+        has("\"cavity\" holds only the whole numbers 1, 2, 3, 4"),
+        "{warnings:?}"
+    );
+    std::fs::remove_dir_all(dir).unwrap();
+}

@@ -379,6 +379,10 @@ pub struct Comparison {
     /// `"header" (lot N: why)`; named in the verdict's first sentence.
     #[serde(default)]
     pub not_compared: Vec<String>,
+    /// Sentences about the inputs that must be read before the result (the same file given
+    /// for both lots); they open the verdict.
+    #[serde(default)]
+    pub input_alerts: Vec<String>,
 }
 
 /// Box's M is judged at this level (common practice: M is very sensitive to non-normality).
@@ -990,6 +994,7 @@ fn finish(
         warnings,
         decision: None,
         not_compared: Vec::new(),
+        input_alerts: Vec::new(),
     };
     conclude(&mut out);
     Ok(out)
@@ -1008,20 +1013,36 @@ fn conclude(c: &mut Comparison) {
         ),
         None => t2,
     };
-    c.verdict = match c.not_compared.len() {
-        0 => verdict,
-        n => format!(
-            "{n} numeric {} not compared: {}. {verdict}",
+    let mut opening: Vec<String> = c.input_alerts.clone();
+    if !c.not_compared.is_empty() {
+        let n = c.not_compared.len();
+        opening.push(format!(
+            "{n} numeric {} not compared: {}.",
             if n == 1 { "column was" } else { "columns were" },
             c.not_compared.join(", ")
-        ),
-    };
+        ));
+    }
+    opening.push(verdict);
+    c.verdict = opening.join(" ");
 }
 
-/// Names the numeric columns the lots did not line up on, so the verdict opens with them
-/// (a dropped column can change the result).
-pub fn note_not_compared(c: &mut Comparison, columns: Vec<String>) {
-    c.not_compared = columns;
+/// What screening the inputs found, for [`note_inputs`].
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct InputNotes {
+    /// Numeric columns the lots did not line up on (a dropped column can change the result).
+    pub not_compared: Vec<String>,
+    /// Sentences that open the verdict (the same file for both lots).
+    pub alerts: Vec<String>,
+    /// Warnings shown with the result (repeated serial numbers, code-like columns).
+    pub warnings: Vec<String>,
+}
+
+/// Adds what screening the inputs found: the verdict opens with the alerts and the columns
+/// not compared; the warnings join the result's warnings.
+pub fn note_inputs(c: &mut Comparison, notes: InputNotes) {
+    c.not_compared = notes.not_compared;
+    c.input_alerts = notes.alerts;
+    c.warnings.extend(notes.warnings);
     conclude(c);
 }
 

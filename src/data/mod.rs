@@ -5,6 +5,7 @@ mod delimited;
 mod error;
 mod header;
 mod pair;
+pub mod screen;
 mod sheet;
 pub mod spec;
 mod split;

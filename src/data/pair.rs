@@ -58,6 +58,35 @@ pub struct PreparedLot {
     pub n_excluded: usize,
     /// Missing cells per compared characteristic.
     pub missing: Vec<usize>,
+    /// The units left out, each with its row and labels.
+    pub left_out: Vec<LeftOut>,
+}
+
+/// A unit left out for a missing cell in a compared characteristic.
+#[derive(Debug, Clone, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct LeftOut {
+    /// Row as a spreadsheet shows it (header row 1).
+    pub row: u32,
+    /// The unit's labels: `[header, value]` of each text column.
+    pub labels: Vec<(String, String)>,
+    /// The compared characteristics whose cell is missing.
+    pub missing: Vec<String>,
+}
+
+impl LeftOut {
+    /// `row 19 (serial HX40-A-0018; missing mass)`.
+    pub fn describe(&self) -> String {
+        let labels: Vec<String> = self
+            .labels
+            .iter()
+            .filter(|(_, v)| !v.is_empty())
+            .take(2)
+            .map(|(h, v)| format!("{h} {v}"))
+            .collect();
+        let mut parts = labels;
+        parts.push(format!("missing {}", self.missing.join(", ")));
+        format!("row {} ({})", self.row, parts.join("; "))
+    }
 }
 
 /// Two lots ready for the engine.
@@ -369,11 +398,13 @@ fn build(lot: &Lot, idx: &[usize]) -> PreparedLot {
     for c in &cols {
         data.extend(kept.iter().map(|&r| c[r]));
     }
-    finish_lot(lot, idx, kept, data)
+    let out = left_out(lot, idx, &kept);
+    finish_lot(lot, idx, kept, data, out)
 }
 
 fn build_releasing(lot: &mut Lot, idx: &[usize]) -> PreparedLot {
     let kept = complete_rows(lot.len(), &numeric_cols(lot, idx));
+    let out = left_out(lot, idx, &kept);
     let mut data = Vec::with_capacity(kept.len() * idx.len());
     for &i in idx {
         if let ColumnData::Numeric(v) = &mut lot.columns[i].data {
@@ -381,7 +412,7 @@ fn build_releasing(lot: &mut Lot, idx: &[usize]) -> PreparedLot {
             *v = Vec::new();
         }
     }
-    finish_lot(lot, idx, kept, data)
+    finish_lot(lot, idx, kept, data, out)
 }
 
 /// Units with a value in every compared characteristic (listwise).
@@ -391,9 +422,52 @@ fn complete_rows(n: usize, cols: &[&[f64]]) -> Vec<usize> {
         .collect()
 }
 
-fn finish_lot(lot: &Lot, idx: &[usize], kept: Vec<usize>, data: Vec<f64>) -> PreparedLot {
+/// The units not in `kept`, with their rows, labels and missing characteristics (read before
+/// the numbers are released).
+fn left_out(lot: &Lot, idx: &[usize], kept: &[usize]) -> Vec<LeftOut> {
+    let n = lot.len();
+    let mut left_out = Vec::new();
+    let mut next = kept.iter().peekable();
+    for i in 0..n {
+        if next.peek() == Some(&&i) {
+            next.next();
+            continue;
+        }
+        let missing = idx
+            .iter()
+            .filter(|&&c| match &lot.columns[c].data {
+                ColumnData::Numeric(v) => v.get(i).is_none_or(|x| x.is_nan()),
+                ColumnData::Text(_) => false,
+            })
+            .map(|&c| lot.columns[c].name.clone())
+            .collect();
+        let labels = lot
+            .columns
+            .iter()
+            .filter_map(|c| match &c.data {
+                ColumnData::Text(t) => Some((c.header.clone(), t.get(i).to_string())),
+                ColumnData::Numeric(_) => None,
+            })
+            .collect();
+        left_out.push(LeftOut {
+            row: lot.rows[i],
+            labels,
+            missing,
+        });
+    }
+    left_out
+}
+
+fn finish_lot(
+    lot: &Lot,
+    idx: &[usize],
+    kept: Vec<usize>,
+    data: Vec<f64>,
+    left_out: Vec<LeftOut>,
+) -> PreparedLot {
     let n = lot.len();
     PreparedLot {
+        left_out,
         name: lot.name.clone(),
         n_read: n,
         n_excluded: n - kept.len(),

@@ -380,8 +380,8 @@ pub fn run_comparison_staged(
         permutations: 0,
         ..settings.clone()
     };
-    let mut c =
-        pipeline::run_prepared(&prepared, request, &quick, progress).map_err(|e| e.to_string())?;
+    let mut c = pipeline::run_prepared(lots, &prepared, request, &quick, progress)
+        .map_err(|e| e.to_string())?;
     let bundle = |c: Comparison| {
         let record = Record::new(&c, Some((&*prepared, [&lots[0], &lots[1]])));
         let mut shown = Shown::new(c, prepared.clone(), lots.clone(), record);

@@ -44,6 +44,23 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
         );
     }
     if let Some(p) = prepared {
+        for (i, pl) in p.lots.iter().enumerate() {
+            if !pl.left_out.is_empty() {
+                let all: Vec<String> = pl.left_out.iter().map(|u| u.describe()).collect();
+                let shown = all.iter().take(10).cloned().collect::<Vec<_>>().join(", ");
+                let more = all.len().saturating_sub(10);
+                let _ = writeln!(
+                    s,
+                    "  left out of lot {} for missing cells: {shown}{}",
+                    i + 1,
+                    if more > 0 {
+                        format!(" and {more} more (all in the record)")
+                    } else {
+                        String::new()
+                    }
+                );
+            }
+        }
         for m in &p.pairings {
             let _ = writeln!(
                 s,
