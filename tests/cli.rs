@@ -688,3 +688,34 @@ fn input_mistakes_are_named() {
     );
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// A tiny candidate lot: the checks that cannot be computed are named with the reason, and
+/// the result never claims that no check contradicts its assumptions.
+#[test]
+fn a_tiny_lot_says_which_checks_could_not_run() {
+    let dir = tmpdir("tiny");
+    let text = std::fs::read_to_string(sample("candidate-route-b.csv")).unwrap();
+    let tiny = dir.join("tiny.csv");
+    std::fs::write(
+        &tiny,
+        text.lines().take(3).collect::<Vec<_>>().join("\n") + "\n",
+    )
+    .unwrap();
+    let r = sample("reference-route-a.csv");
+    let o = run(&[
+        "compare",
+        r.to_str().unwrap(),
+        tiny.to_str().unwrap(),
+        "--json",
+        "-",
+        "--permutations",
+        "0",
+    ]);
+    let rec: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let why = rec["favoured"]["why"].as_str().unwrap();
+    assert!(!why.starts_with("no check contradicts"), "{why}");
+    assert!(why.contains("Box's M needs more units"), "{why}");
+    assert!(why.contains("Mardia's tests for \"tiny\""), "{why}");
+    assert!(why.contains("Shapiro–Wilk needs at least 3 units"), "{why}");
+    std::fs::remove_dir_all(dir).unwrap();
+}

@@ -414,3 +414,21 @@ fn the_owned_path_gives_exactly_the_borrowed_numbers() {
         serde_json::to_string(&staged).unwrap()
     );
 }
+
+/// The detectable shift is the distance at which the T² test's power is exactly 80% (the
+/// definition; the power itself is checked against scipy.stats.ncf in the stats tests), and
+/// more units detect a smaller shift.
+#[test]
+fn the_detectable_shift_has_the_stated_power() {
+    use lotshift::analysis::detectable_distance;
+    use lotshift::stats::power::power;
+    for (p, n1, n2) in [(5, 39, 40), (2, 10, 12), (12, 200, 150)] {
+        let d = detectable_distance(p, n1, n2, 0.05, 0.8).unwrap();
+        let pw = power(p, n1, n2, d * d, 0.05);
+        assert!((pw - 0.8).abs() < 1e-6, "{p} {n1} {n2}: {pw}");
+        let bigger = detectable_distance(p, 2 * n1, 2 * n2, 0.05, 0.8).unwrap();
+        assert!(bigger < d);
+    }
+    // Too few units for a test: no detectable shift.
+    assert_eq!(detectable_distance(5, 3, 3, 0.05, 0.8), None);
+}

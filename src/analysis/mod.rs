@@ -383,12 +383,109 @@ pub struct Comparison {
     /// for both lots); they open the verdict.
     #[serde(default)]
     pub input_alerts: Vec<String>,
+    /// The shift these lot sizes detect with [`DETECTABLE_POWER`] (absent when no shift
+    /// reaches it, as with too few units).
+    #[serde(default)]
+    pub detectable: Option<Detectable>,
+}
+
+/// Power at which the detectable shift is stated (common practice for planning).
+pub const DETECTABLE_POWER: f64 = 0.8;
+
+/// The smallest shift the T² test detects with [`DETECTABLE_POWER`] at these lot sizes
+/// (normal lots, equal covariance matrices), so that "no difference detected" can be read
+/// against what could have been seen.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Detectable {
+    /// Power the shift is detected with.
+    pub power: f64,
+    /// Mahalanobis distance of that shift.
+    pub distance: f64,
+    /// The same shift along the observed direction of the difference, in each
+    /// characteristic's pooled SD (the distance times the structure correlation).
+    pub per_characteristic_sd: Vec<f64>,
+}
+
+/// Mahalanobis distance the level-`alpha` T² test detects with power `target` (bisection on
+/// the noncentral F power, which grows with the distance).
+pub fn detectable_distance(p: usize, n1: usize, n2: usize, alpha: f64, target: f64) -> Option<f64> {
+    use crate::stats::power::power;
+    let reaches = |d: f64| power(p, n1, n2, d * d, alpha) >= target;
+    if power(p, n1, n2, 0.0, alpha).is_nan() {
+        return None;
+    }
+    let mut hi = 1.0;
+    while !reaches(hi) {
+        hi *= 2.0;
+        if hi > 1e6 {
+            return None;
+        }
+    }
+    let mut lo = 0.0;
+    while hi - lo > 1e-9 * hi {
+        let mid = 0.5 * (lo + hi);
+        if reaches(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    Some(hi)
 }
 
 /// Box's M is judged at this level (common practice: M is very sensitive to non-normality).
 pub const BOX_M_LEVEL: f64 = 0.001;
 /// Lot sizes differing by more than this ratio count as unbalanced (common practice).
 pub const UNBALANCED_RATIO: f64 = 1.2;
+
+/// The assumption checks that could not be computed for these lots, each with the reason
+/// (empty when the checks were switched off: that is said on its own).
+pub fn checks_not_computed(c: &Comparison) -> Vec<String> {
+    if !c.settings.checks {
+        return Vec::new();
+    }
+    let p = c.characteristics.len();
+    let mut out = Vec::new();
+    if c.box_m.is_none() {
+        out.push(format!(
+            "Box's M needs more units than characteristics in each lot ({} and {} units for \
+             {p} characteristics)",
+            c.lots[0].n, c.lots[1].n
+        ));
+    }
+    let unit_data = c.discriminant.scores.is_some();
+    if !unit_data {
+        out.push("Mardia's tests, Shapiro–Wilk and the outlier screen need unit data".into());
+        return out;
+    }
+    for lot in &c.lots {
+        if !c.mardia.iter().any(|m| m.lot == lot.name) {
+            out.push(format!(
+                "Mardia's tests for \"{}\" need a non-singular covariance ({} units for {p} \
+                 characteristics)",
+                lot.name, lot.n
+            ));
+        }
+    }
+    let mut no_sw: Vec<String> = Vec::new();
+    for row in &c.normality {
+        for (g, r) in row.lots.iter().enumerate() {
+            if r.is_none() {
+                no_sw.push(format!(
+                    "\"{}\" in \"{}\"",
+                    row.characteristic, c.lots[g].name
+                ));
+            }
+        }
+    }
+    if !no_sw.is_empty() {
+        out.push(format!(
+            "Shapiro–Wilk needs at least 3 units with some spread: not computed for {}",
+            no_sw.join(", ")
+        ));
+    }
+    out
+}
 
 /// Decides which test the assumption checks favour.
 pub fn favour(c: &Comparison) -> Favoured {
@@ -450,12 +547,19 @@ pub fn favour(c: &Comparison) -> Favoured {
             p_value: perm.p_value,
         };
     }
-    let why = if c.box_m.is_none() && c.mardia.is_empty() {
+    let skipped = checks_not_computed(c);
+    let why = if !c.settings.checks {
         "the assumption checks were not run".to_string()
-    } else {
+    } else if skipped.is_empty() {
         "no check contradicts its assumptions (equal covariance matrices, multivariate \
          normal lots)"
             .to_string()
+    } else {
+        format!(
+            "no check that could be computed contradicts its assumptions, but not every check \
+             could be: {}",
+            skipped.join("; ")
+        )
     };
     Favoured {
         test: FavouredTest::PooledT2,
@@ -995,6 +1099,13 @@ fn finish(
         decision: None,
         not_compared: Vec::new(),
         input_alerts: Vec::new(),
+        detectable: detectable_distance(p, m1.n, m2.n, alpha, DETECTABLE_POWER).map(|d| {
+            Detectable {
+                power: DETECTABLE_POWER,
+                distance: d,
+                per_characteristic_sd: test.structure.iter().map(|s| d * s).collect(),
+            }
+        }),
     };
     conclude(&mut out);
     Ok(out)
@@ -1140,7 +1251,21 @@ fn verdict_text(c: &Comparison) -> String {
             }
         ));
         if differ != h.differ {
-            s.push_str(" The two tests disagree: read the checks before deciding.");
+            s = format!(
+                "The tests disagree at alpha {alpha}: the pooled T² says the lots {}, the {} \
+                 says they {}; read the checks before deciding. {s}",
+                if h.differ {
+                    "differ"
+                } else {
+                    "do not differ detectably"
+                },
+                f.test,
+                if differ {
+                    "differ"
+                } else {
+                    "do not differ detectably"
+                }
+            );
         }
     }
     s

@@ -412,17 +412,28 @@ pub fn verify_signature(
     Ok(summary)
 }
 
+/// Record keys holding the program's wording (the verdict, reasons, warnings): a later
+/// version may word the same result differently, so they are compared only with a record
+/// made by this version.
+const PROSE: [&str; 3] = ["verdict", "why", "warnings"];
+
 /// The first number (or string) that differs between two records, as `path: recorded vs
 /// recomputed`. Numbers agree when within 1e-9 relative (floating-point results may differ in
 /// the last digits between processors); fields that describe the run itself (time, program
-/// version, file names) are not compared.
+/// version, file names) are not compared, and the wording ([`PROSE`]) only when the record was
+/// made by this version of the program (the numbers and every data-derived text always are).
 pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> {
-    fn walk(path: &str, a: &Value, b: &Value) -> Option<String> {
+    let same_version = recorded["software"]["version"].as_str() == Some(env!("CARGO_PKG_VERSION"));
+    walk("", recorded, recomputed, same_version)
+}
+
+fn walk(path: &str, a: &Value, b: &Value, prose: bool) -> Option<String> {
+    {
         const SKIP: [&str; 3] = ["analysed_at", "software", "file"];
         match (a, b) {
             (Value::Object(x), Value::Object(y)) => {
                 for (k, va) in x {
-                    if SKIP.contains(&k.as_str()) {
+                    if SKIP.contains(&k.as_str()) || (!prose && PROSE.contains(&k.as_str())) {
                         continue;
                     }
                     let p = if path.is_empty() {
@@ -432,7 +443,7 @@ pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> 
                     };
                     match y.get(k) {
                         Some(vb) => {
-                            if let Some(d) = walk(&p, va, vb) {
+                            if let Some(d) = walk(&p, va, vb, prose) {
                                 return Some(d);
                             }
                         }
@@ -452,7 +463,7 @@ pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> 
                 x.iter()
                     .zip(y)
                     .enumerate()
-                    .find_map(|(i, (va, vb))| walk(&format!("{path}[{i}]"), va, vb))
+                    .find_map(|(i, (va, vb))| walk(&format!("{path}[{i}]"), va, vb, prose))
             }
             (Value::Number(x), Value::Number(y)) => {
                 let (x, y) = (
@@ -466,7 +477,6 @@ pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> 
             (x, y) => Some(format!("{path}: recorded {x}, recomputed {y}")),
         }
     }
-    walk("", recorded, recomputed)
 }
 
 /// Writes a signed summary atomically.

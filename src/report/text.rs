@@ -96,6 +96,21 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
     let _ = writeln!(s, "  critical T²   {}", format_sig(h.critical_t2, 6));
     let _ = writeln!(s, "  critical F    {}", format_sig(h.critical_f, 6));
     let _ = writeln!(s, "  Mahalanobis D² {}", format_sig(h.mahalanobis_d2, 6));
+    if let Some(d) = &c.detectable {
+        let _ = writeln!(
+            s,
+            "  detectable    a shift of Mahalanobis distance {} is detected with power {} at \
+             these lot sizes (along the observed direction: {})",
+            format_sig(d.distance, 3),
+            d.power,
+            c.characteristics
+                .iter()
+                .zip(&d.per_characteristic_sd)
+                .map(|(n, v)| format!("{n} {} SD", format_sig(*v, 2)))
+                .collect::<Vec<_>>()
+                .join(", ")
+        );
+    }
 
     let _ = writeln!(s, "\nPer characteristic");
     let _ = writeln!(
