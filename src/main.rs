@@ -9,10 +9,10 @@ fn main() -> ExitCode {
     match cli.command {
         Some(command) => lotshift::cli::run(command),
         #[cfg(feature = "gui")]
-        None => lotshift::gui::run(cli.files, cli.screenshot, cli.view),
+        None => lotshift::gui::run_with_spec(cli.files, cli.screenshot, cli.view, cli.spec),
         #[cfg(not(feature = "gui"))]
         None => {
-            let _ = (cli.files, cli.screenshot, cli.view);
+            let _ = (cli.files, cli.screenshot, cli.view, cli.spec);
             eprintln!(
                 "lotshift: this build has no window (built without the \"gui\" feature); see lotshift --help"
             );

@@ -315,3 +315,302 @@ fn a_summary_signed_in_the_window_from_a_split_file_verifies_on_the_command_line
     );
     let _ = std::fs::remove_dir_all(dir);
 }
+
+fn sha256_of(bytes: &[u8]) -> String {
+    use sha2::Digest as _;
+    lotshift::data::hex(&sha2::Sha256::digest(bytes))
+}
+
+/// The decision the command line's pipeline makes from the same files and specification.
+fn pipeline_decision(spec: &std::path::Path) -> lotshift::analysis::decision::Decision {
+    use lotshift::data::{self, LoadOptions};
+    use lotshift::pipeline::{self, Request, SpecRequest};
+    let options = LoadOptions::default();
+    let mut lots = [
+        data::load(&common::sample("reference-route-a.csv"), &options).unwrap(),
+        data::load(&common::sample("candidate-route-b.csv"), &options).unwrap(),
+    ];
+    let request = Request {
+        spec: SpecRequest {
+            file: Some(data::spec::load_spec(spec, &options).unwrap()),
+            ..SpecRequest::default()
+        },
+        ..Request::default()
+    };
+    let (_, c) = pipeline::run_owned(&mut lots, &request, &lotshift::analysis::Silent).unwrap();
+    c.decision.unwrap()
+}
+
+#[test]
+fn a_specification_file_loaded_in_the_window_updates_the_run_and_the_verdict() {
+    let mut h = harness();
+    // Without margins the verdict says what equivalence needs, and links to the editor.
+    h.get_by_label_contains("Equivalence is not assessed: it needs margins");
+    let path = common::sample("hub-spec.csv");
+    h.state_mut().load_spec_path(path.clone());
+    settle(&mut h);
+    let state = h.state();
+    assert!(state.shown_current);
+    let d = state.shown.as_ref().unwrap().comparison.decision.clone();
+    let d = d.expect("a decision");
+    // The record names the file and its SHA-256.
+    let spec = &d.specification;
+    assert_eq!(spec.file.as_deref(), Some("hub-spec.csv"));
+    let sha = sha256_of(&std::fs::read(&path).unwrap());
+    assert_eq!(spec.sha256.as_deref(), Some(sha.as_str()));
+    let recorded = state.shown.as_ref().unwrap().record.specification.clone();
+    assert_eq!(recorded.as_ref(), Some(spec));
+    // The same decision as the command line's path, and its outcome leads the verdict view.
+    assert_eq!(d, pipeline_decision(&path));
+    let outcome = d.outcome.expect("margins give an outcome");
+    h.get_by_label(outcome.words());
+    assert_eq!(
+        h.query_all_by_label_contains("Equivalence is not assessed")
+            .count(),
+        0
+    );
+    // The other views draw what the specification adds.
+    h.get_by_label("Intervals").click();
+    h.run_steps(2);
+    h.get_by_label("Does it matter? Candidate − reference against the margins");
+    h.get_by_label("Characteristics").click();
+    h.run_steps(2);
+    h.get_by_label_contains("Capability against the specification limits");
+    h.get_by_label("Pairs").click();
+    h.run_steps(2);
+    h.get_by_label_contains("Green: the specification limits.");
+    // The editor shows the file's cells and says the file is what is applied.
+    h.get_by_label("Specification").click();
+    h.run_steps(2);
+    assert_eq!(
+        h.get_by_label("hub length: upper limit").value().as_deref(),
+        Some("28.1")
+    );
+    h.get_by_label_contains("Applied to the result: hub-spec.csv");
+}
+
+#[test]
+fn a_bad_specification_file_leaves_the_lots_and_the_result_alone() {
+    let mut h = harness();
+    h.state_mut().load_spec_path(common::sample("hub-spec.csv"));
+    settle(&mut h);
+    let before = h.state().shown.as_ref().unwrap().comparison.clone();
+    assert!(before.decision.is_some());
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-spec-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    // Content the loader refuses: the upper limit below the lower one.
+    let bad = dir.join("bad-spec.csv");
+    std::fs::write(&bad, "characteristic,lower,upper\nmass,143,142\n").unwrap();
+    h.state_mut().load_spec_path(bad);
+    settle(&mut h);
+    h.get_by_label_contains("bad-spec.csv, row 2, column C \"upper\"");
+    // A file that reads but names a characteristic the lots do not have.
+    let stray = dir.join("stray-spec.csv");
+    std::fs::write(&stray, "characteristic,margin\nhub lenght,0.02\n").unwrap();
+    h.state_mut().load_spec_path(stray);
+    settle(&mut h);
+    h.get_by_label_contains("did you mean \"hub length\"");
+    // A file that is not there.
+    h.state_mut().load_spec_path(dir.join("missing.csv"));
+    settle(&mut h);
+    h.get_by_label_contains("missing.csv");
+    let state = h.state();
+    assert_eq!(state.messages.len(), 3, "{:?}", state.messages);
+    assert_eq!(state.slots[0].as_ref().unwrap().name, "reference-route-a");
+    assert_eq!(state.slots[1].as_ref().unwrap().name, "candidate-route-b");
+    assert!(state.shown_current);
+    let after = &state.shown.as_ref().unwrap().comparison;
+    assert_eq!(after.hotelling.t2, before.hotelling.t2);
+    assert_eq!(after.decision, before.decision);
+    assert_eq!(
+        state.spec.file.as_ref().map(|f| f.file_name.as_str()),
+        Some("hub-spec.csv")
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn an_invalid_cell_holds_the_run_and_shows_the_problem_beside_it() {
+    let mut h = harness();
+    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    h.get_by_label("Specification tab").click();
+    h.run_steps(2);
+    assert_eq!(h.state().saved.view, lotshift::gui::View::Specification);
+    h.get_by_label_contains(
+        "Margins belong to the quality plan and are set before the data are seen",
+    );
+    // Type a limit that is not a number and finish the edit with Enter.
+    h.get_by_label("hub length: lower limit").focus();
+    h.run_steps(1);
+    h.get_by_label("hub length: lower limit")
+        .type_text("28,0,1");
+    h.run_steps(1);
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    settle(&mut h);
+    let state = h.state();
+    assert!(state.spec_blocked, "the run is held");
+    assert!(!state.worker.busy(), "no run started");
+    assert!(!state.shown_current);
+    assert_eq!(state.shown.as_ref().unwrap().comparison.hotelling.t2, t2);
+    assert!(state.shown.as_ref().unwrap().comparison.decision.is_none());
+    // Beside the cell, and as the reason the run is held.
+    h.get_by_label("lower limit: \"28,0,1\" is not a number");
+    h.get_by_label_contains("1 problem to fix");
+    h.get_by_label_contains("The comparison could not be made: the specification does not check");
+    // An upper limit below the lower one, once the lower limit reads.
+    h.get_by_label("hub length: lower limit").focus();
+    h.run_steps(1);
+    h.key_press_modifiers(egui::Modifiers::COMMAND, egui::Key::A);
+    h.get_by_label("hub length: lower limit").type_text("28.2");
+    h.get_by_label("hub length: upper limit").focus();
+    h.run_steps(1);
+    h.get_by_label("hub length: upper limit").type_text("28.1");
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    settle(&mut h);
+    assert!(h.state().spec_blocked);
+    h.get_by_label("upper limit: must be above the lower limit 28.2");
+    // Fixed: the run goes ahead with the edited specification, named as edited.
+    h.get_by_label("hub length: lower limit").focus();
+    h.run_steps(1);
+    h.key_press_modifiers(egui::Modifiers::COMMAND, egui::Key::A);
+    h.get_by_label("hub length: lower limit").type_text("27.9");
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    settle(&mut h);
+    let state = h.state();
+    assert!(!state.spec_blocked && state.shown_current);
+    let spec = &state
+        .shown
+        .as_ref()
+        .unwrap()
+        .comparison
+        .decision
+        .as_ref()
+        .unwrap()
+        .specification;
+    assert_eq!(spec.file.as_deref(), Some("(edited in the window)"));
+    let rows = &state.spec.file.as_ref().unwrap().rows;
+    assert_eq!((rows[0].lower, rows[0].upper), (Some(27.9), Some(28.1)));
+    assert_eq!(
+        spec.sha256.as_deref(),
+        Some(sha256_of(lotshift::data::spec::to_csv(rows).as_bytes()).as_str())
+    );
+}
+
+#[test]
+fn a_specification_saved_from_the_window_is_what_the_record_names() {
+    let mut h = harness();
+    h.state_mut().load_spec_path(common::sample("hub-spec.csv"));
+    settle(&mut h);
+    // Edit a margin in the window, then save.
+    h.state_mut().spec_editor.rows[2].margin = "0.025".into();
+    h.state_mut().apply_spec();
+    settle(&mut h);
+    assert_eq!(
+        h.state().spec.file.as_ref().unwrap().file_name,
+        "(edited in the window)"
+    );
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-save-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("hub-spec-revised.csv");
+    h.state_mut().save_spec_to(Some(path.clone()));
+    settle(&mut h);
+    h.get_by_label_contains("Specification written to");
+    let state = h.state();
+    let spec = &state
+        .shown
+        .as_ref()
+        .unwrap()
+        .comparison
+        .decision
+        .as_ref()
+        .unwrap()
+        .specification;
+    assert_eq!(spec.file.as_deref(), Some("hub-spec-revised.csv"));
+    let bytes = std::fs::read(&path).unwrap();
+    assert_eq!(spec.sha256.as_deref(), Some(sha256_of(&bytes).as_str()));
+    // The saved file reads back to the rows applied, and gives the same decision.
+    let back =
+        lotshift::data::spec::load_spec(&path, &lotshift::data::LoadOptions::default()).unwrap();
+    assert_eq!(back.rows, state.spec.file.as_ref().unwrap().rows);
+    assert_eq!(back.rows[2].margin, Some([-0.025, 0.025]));
+    let d = state
+        .shown
+        .as_ref()
+        .unwrap()
+        .comparison
+        .decision
+        .clone()
+        .unwrap();
+    assert_eq!(d, pipeline_decision(&path));
+    // Signed in the window, the summary verifies on the command line against the saved file.
+    use lotshift::report::sign::{self, Meaning};
+    let record = state.shown.as_ref().unwrap().record.clone();
+    let summary = sign::sign(
+        &record,
+        &ed25519_key(),
+        "Dana Whitfield",
+        Meaning::Review,
+        "2026-12-02T05:00:00Z",
+    )
+    .unwrap();
+    let signed = dir.join("summary.json");
+    std::fs::write(&signed, summary.to_json()).unwrap();
+    let out = std::process::Command::new(env!("CARGO_BIN_EXE_lotshift"))
+        .arg("verify")
+        .arg(&signed)
+        .arg("--files")
+        .arg(common::sample("reference-route-a.csv"))
+        .arg(common::sample("candidate-route-b.csv"))
+        .arg("--spec")
+        .arg(&path)
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(out.status.success(), "{text}");
+    assert!(
+        text.contains("every number in the record matches"),
+        "{text}"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn a_specification_read_before_the_lots_waits_for_them() {
+    // As `--spec FILE` at start may go: the file is read before the lots it is for. It is
+    // checked against them once they arrive (a name they do not have is refused), or applied.
+    use lotshift::data::{LoadOptions, spec::load_spec};
+    use lotshift::gui::worker::Outcome;
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-start-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let stray = dir.join("stray-spec.csv");
+    std::fs::write(&stray, "characteristic,margin\nhub lenght,0.02\nmass,0.4\n").unwrap();
+    for (file, refused) in [(stray, true), (common::sample("hub-spec.csv"), false)] {
+        let mut app = LotshiftApp::new(None, Saved::default());
+        app.load_samples();
+        // The lots are still being read: nothing has been absorbed yet.
+        assert!(app.slots.iter().all(Option::is_none));
+        let spec = load_spec(&file, &LoadOptions::default()).unwrap();
+        app.absorb(vec![Outcome::SpecLoaded(Ok(spec))]);
+        let mut h = Harness::builder()
+            .with_size(egui::vec2(1400.0, 900.0))
+            .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+        settle(&mut h);
+        let state = h.state();
+        assert!(state.shown_current);
+        let decision = &state.shown.as_ref().unwrap().comparison.decision;
+        if refused {
+            h.get_by_label_contains("did you mean \"hub length\"");
+            assert!(decision.is_none());
+            assert!(state.spec_editor.rows.iter().all(|r| r.is_blank()));
+        } else {
+            assert!(state.messages.is_empty(), "{:?}", state.messages);
+            let d = decision.as_ref().expect("a decision");
+            assert_eq!(d.specification.file.as_deref(), Some("hub-spec.csv"));
+            assert_eq!(d, &pipeline_decision(&file));
+        }
+    }
+    let _ = std::fs::remove_dir_all(dir);
+}

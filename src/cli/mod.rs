@@ -55,9 +55,12 @@ pub struct Cli {
     #[arg(long, value_name = "PNG")]
     pub screenshot: Option<PathBuf>,
     /// View to show first in the window (verdict, characteristics, intervals, pairs,
-    /// direction).
+    /// direction, specification).
     #[arg(long, value_name = "VIEW")]
     pub view: Option<String>,
+    /// Specification file (limits and margins) to open in the window's Specification tab.
+    #[arg(long, value_name = "FILE")]
+    pub spec: Option<PathBuf>,
     /// Lot files to open in the window (two files; default: the bundled sample lots).
     #[arg(value_name = "FILE")]
     pub files: Vec<PathBuf>,

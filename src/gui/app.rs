@@ -12,6 +12,7 @@ use crate::analysis::Settings;
 use crate::data::{self, Lot, Selection, match_key};
 
 use super::shown::Shown;
+use super::specification::{self, SpecEditor};
 use super::worker::{Outcome, Purpose, Slot, Source, Worker};
 use super::{characteristics, direction, intervals, overview, pairs};
 use crate::report::CAUTION;
@@ -60,16 +61,19 @@ pub enum View {
     Pairs,
     /// Discriminant direction.
     Direction,
+    /// Specification limits and equivalence margins (an editor, not a result).
+    Specification,
 }
 
 impl View {
     /// All views in tab order.
-    pub const ALL: [View; 5] = [
+    pub const ALL: [View; 6] = [
         View::Verdict,
         View::Characteristics,
         View::Intervals,
         View::Pairs,
         View::Direction,
+        View::Specification,
     ];
 
     /// Tab title.
@@ -80,6 +84,7 @@ impl View {
             View::Intervals => "Intervals",
             View::Pairs => "Pairs",
             View::Direction => "Shift direction",
+            View::Specification => "Specification",
         }
     }
 
@@ -91,6 +96,7 @@ impl View {
             View::Intervals => "intervals",
             View::Pairs => "pairs",
             View::Direction => "direction",
+            View::Specification => "specification",
         }
     }
 
@@ -190,8 +196,14 @@ pub struct LotshiftApp {
     screenshot: Option<ScreenshotPlan>,
     /// The signing form, while open.
     pub signing: Option<SignForm>,
-    /// Specification and margins applied to every run.
+    /// Specification and margins of the latest run (built from `spec_editor`).
     pub spec: crate::pipeline::SpecRequest,
+    /// The specification as edited in the window.
+    pub spec_editor: SpecEditor,
+    /// The latest run was held because a specification cell does not check.
+    pub spec_blocked: bool,
+    /// A specification file read before the lots it is for.
+    pending_spec: Option<crate::data::spec::Spec>,
 }
 
 /// The "Sign and export" form.
@@ -222,12 +234,114 @@ impl LotshiftApp {
             screenshot: None,
             signing: None,
             spec: crate::pipeline::SpecRequest::default(),
+            spec_editor: SpecEditor::default(),
+            spec_blocked: false,
+            pending_spec: None,
         }
     }
 
-    /// The specification request of the next run.
-    fn spec_request(&self) -> crate::pipeline::SpecRequest {
-        self.spec.clone()
+    /// The specification request of the next run, from the editor and the characteristics
+    /// compared now.
+    ///
+    /// # Errors
+    /// The problems of the cells that do not check.
+    fn spec_request(&self) -> Result<crate::pipeline::SpecRequest, Vec<String>> {
+        self.spec_editor.request(&self.characteristic_list(true))
+    }
+
+    /// The characteristics both lots have (numeric in both, with some values), in the
+    /// reference lot's order, with their units; without the unticked ones when `ticked`.
+    pub fn characteristic_list(&self, ticked: bool) -> Vec<specification::Characteristic> {
+        let [Some(a), Some(b)] = &self.slots else {
+            return Vec::new();
+        };
+        a.columns
+            .iter()
+            .filter(|c| c.is_numeric() && c.missing < a.len())
+            .filter_map(|c| {
+                let key = match_key(&c.name);
+                let cb = b
+                    .columns
+                    .iter()
+                    .find(|x| x.is_numeric() && match_key(&x.name) == key)?;
+                if cb.missing == b.len() || ticked && self.excluded.contains(&key) {
+                    return None;
+                }
+                Some((c.name.clone(), c.unit.clone().or_else(|| cb.unit.clone())))
+            })
+            .collect()
+    }
+
+    /// Reads a specification file in the background; when it reads and fits the lots'
+    /// characteristics it replaces the table and a new run starts. A file that does not
+    /// leaves the lots, the table and the result as they are, with the loader's message.
+    pub fn load_spec_path(&mut self, path: PathBuf) {
+        self.worker.load_spec(path);
+    }
+
+    /// Saves the specification as CSV to `path` (or where a save dialog says), through the
+    /// atomic writer; the record then names the saved file and its SHA-256.
+    pub fn save_spec_to(&mut self, path: Option<PathBuf>) {
+        let compared = self.characteristic_list(true);
+        let rows = match self.spec_editor.rows_for(&compared) {
+            Ok(r) if !r.is_empty() => r,
+            Ok(_) => {
+                self.messages
+                    .push("The specification table is empty: there is nothing to save.".into());
+                return;
+            }
+            Err(problems) => {
+                self.messages.push(format!(
+                    "The specification was not saved: fix {} first.",
+                    problems.join("; ")
+                ));
+                return;
+            }
+        };
+        let name = self
+            .spec_editor
+            .source
+            .as_ref()
+            .map(|s| s.file_name.clone())
+            .filter(|n| n != specification::EDITED && n.to_ascii_lowercase().ends_with(".csv"))
+            .unwrap_or_else(|| "specification.csv".into());
+        self.worker.save_spec(name, rows, path);
+    }
+
+    /// Applies the edited specification: a new run when it checks and differs from the one
+    /// applied (or the previous run was held); held, with the problems shown, when not.
+    pub fn apply_spec(&mut self) {
+        match self.spec_request() {
+            Ok(req) if req == self.spec && !self.spec_blocked => {}
+            _ => self.rerun(),
+        }
+    }
+
+    /// Takes a specification file that was read: checked against the characteristics both
+    /// lots have (once lots are loaded; while they are still being read, it waits for them).
+    fn accept_spec(&mut self, spec: crate::data::spec::Spec) {
+        let matched = self.characteristic_list(false);
+        if matched.is_empty() && self.worker.busy() && self.slots.iter().any(Option::is_none) {
+            self.pending_spec = Some(spec);
+            return;
+        }
+        if !matched.is_empty() {
+            let (names, units): (Vec<String>, Vec<Option<String>>) = matched.into_iter().unzip();
+            if let Err(e) = spec.align(&names, &units) {
+                self.messages.push(format!(
+                    "{e} — the specification was not loaded; the table and the result are \
+                     unchanged"
+                ));
+                return;
+            }
+        }
+        self.notice = Some(format!(
+            "Specification loaded from {} ({} characteristics).",
+            spec.path,
+            spec.rows.len()
+        ));
+        self.spec_editor.load(spec);
+        self.apply_spec();
     }
 
     /// Loads the bundled sample lots.
@@ -289,15 +403,37 @@ impl LotshiftApp {
     }
 
     /// Starts a new comparison of the current lots, selection and settings.
+    /// A specification cell that does not check holds the run (the problems show as the
+    /// run's error and beside the cells).
     pub fn rerun(&mut self) {
         if let [Some(a), Some(b)] = &self.slots {
             let lots = [a.clone(), b.clone()];
             let sel = self.selection();
             self.shown_current = false;
+            let spec = match self.spec_request() {
+                Ok(spec) => spec,
+                Err(problems) => {
+                    self.spec_blocked = true;
+                    self.worker.cancel();
+                    self.run_error = Some(format!(
+                        "the specification does not check: {}{}. Fix it in the Specification \
+                         tab.",
+                        if problems.len() == 1 {
+                            String::new()
+                        } else {
+                            format!("{} problems, the first: ", problems.len())
+                        },
+                        problems.first().map(String::as_str).unwrap_or_default()
+                    ));
+                    return;
+                }
+            };
+            self.spec_blocked = false;
+            self.spec = spec.clone();
             let request = crate::pipeline::Request {
                 selection: sel,
                 settings: self.saved.settings.clone(),
-                spec: self.spec_request(),
+                spec,
                 strict_columns: false,
             };
             self.worker.compare(lots, request);
@@ -329,7 +465,12 @@ impl LotshiftApp {
         for o in outcomes {
             match o {
                 Outcome::Loaded { slot, result } => match result {
-                    Err(e) => self.messages.push(e),
+                    Err(e) => {
+                        self.messages.push(e);
+                        if let Some(spec) = self.pending_spec.take() {
+                            self.accept_spec(spec);
+                        }
+                    }
                     Ok(mut lots) => {
                         match slot {
                             Slot::Reference | Slot::Candidate => {
@@ -347,21 +488,48 @@ impl LotshiftApp {
                                 if let Some(table) = lots.pop() {
                                     self.set_combined(table);
                                 }
+                                if let Some(spec) = self.pending_spec.take() {
+                                    self.accept_spec(spec);
+                                }
                                 continue;
                             }
                         }
                         self.rerun();
+                        if let Some(spec) = self.pending_spec.take() {
+                            self.accept_spec(spec);
+                        }
                     }
                 },
                 Outcome::Compared { result, .. } => match result {
+                    // A run held for a specification problem stays held: a result still
+                    // arriving is not current, and the problem stays the message.
                     Ok(s) => {
                         self.shown = Some(s);
-                        self.shown_current = true;
-                        self.run_error = None;
+                        self.shown_current = !self.spec_blocked;
+                        if !self.spec_blocked {
+                            self.run_error = None;
+                        }
                     }
                     Err(e) => {
                         // Keep the previous result on screen, marked as not current.
-                        self.run_error = Some(e);
+                        if !self.spec_blocked {
+                            self.run_error = Some(e);
+                        }
+                    }
+                },
+                Outcome::SpecLoaded(result) => match result {
+                    Err(e) => self.messages.push(format!(
+                        "{e} — the specification was not loaded; the table and the result are \
+                         unchanged"
+                    )),
+                    Ok(spec) => self.accept_spec(spec),
+                },
+                Outcome::SpecSaved(result) => match result {
+                    Err(e) => self.messages.push(e),
+                    Ok(spec) => {
+                        self.notice = Some(format!("Specification written to {}", spec.path));
+                        self.spec_editor.source = Some(spec);
+                        self.apply_spec();
                     }
                 },
                 Outcome::Picked { slot, paths } => self.load_paths(slot, paths),
@@ -415,6 +583,7 @@ impl LotshiftApp {
                 }
             }
             Purpose::Summary => self.check_summary(&path),
+            Purpose::Specification => self.load_spec_path(path),
         }
     }
 
@@ -1100,20 +1269,59 @@ impl LotshiftApp {
             );
         }
         ui.separator();
+        if self.saved.view == View::Specification {
+            self.specification_view(ui);
+            return;
+        }
         let Some(shown) = self.shown.as_deref_mut() else {
             ui.label(if self.worker.busy() {
                 "Working…"
+            } else if self.slots.iter().all(Option::is_some) {
+                "No result to show yet."
             } else {
                 "Drop two lot files on this window, or use Open lots…"
             });
             return;
         };
         match self.saved.view {
-            View::Verdict => overview::overview_ui(ui, shown),
+            View::Verdict => overview::overview_ui(ui, shown, &mut self.saved.view),
             View::Characteristics => characteristics::table_ui(ui, shown, &mut self.saved),
             View::Intervals => intervals::intervals_ui(ui, shown),
             View::Pairs => pairs::pairs_ui(ui, shown, &mut self.saved),
             View::Direction => direction::direction_ui(ui, shown),
+            View::Specification => {}
+        }
+    }
+
+    fn specification_view(&mut self, ui: &mut egui::Ui) {
+        let matched = self.characteristic_list(false);
+        let compared = self.characteristic_list(true);
+        self.spec_editor.ensure(&matched);
+        let rule_margins = self
+            .shown
+            .as_ref()
+            .and_then(|s| s.comparison.decision.as_ref())
+            .map(|d| {
+                d.specification
+                    .characteristics
+                    .iter()
+                    .filter(|e| e.margin_from == Some(crate::analysis::decision::MarginFrom::Rule))
+                    .filter_map(|e| Some((match_key(&e.characteristic), e.margin?)))
+                    .collect()
+            })
+            .unwrap_or_default();
+        let cx = specification::Context {
+            matched: &matched,
+            compared: &compared,
+            applied: &self.spec,
+            rule_margins,
+            lots_loaded: self.slots.iter().all(Option::is_some),
+        };
+        match specification::specification_ui(ui, &mut self.spec_editor, &cx) {
+            specification::Action::None => {}
+            specification::Action::Load => self.worker.choose(Purpose::Specification),
+            specification::Action::Save => self.save_spec_to(None),
+            specification::Action::Apply => self.apply_spec(),
         }
     }
 
@@ -1133,7 +1341,8 @@ impl LotshiftApp {
             ctx.send_viewport_cmd(egui::ViewportCommand::Close);
             return;
         }
-        let ready = (self.shown.is_some() || !self.messages.is_empty()) && !self.worker.busy();
+        let ready = (self.shown.is_some() || !self.messages.is_empty() || self.run_error.is_some())
+            && !self.worker.busy();
         if ready {
             plan.frames_ready += 1;
         }

@@ -1,9 +1,13 @@
 //! The per-characteristic table: both lots side by side, the difference and the univariate
-//! tests; sortable, and copyable as tab-separated text for a spreadsheet.
+//! tests; sortable, and copyable as tab-separated text for a spreadsheet. With specification
+//! limits, each lot's capability below it.
 
-use crate::analysis::{format_p, format_sig};
+use egui::RichText;
 
-use super::app::Saved;
+use crate::analysis::decision::{CapabilityLot, SpecEntry};
+use crate::analysis::{format_confidence, format_p, format_sig};
+
+use super::app::{Saved, lot_colors, swatch};
 use super::shown::Shown;
 
 const HEADERS: [&str; 17] = [
@@ -167,5 +171,126 @@ pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                     ui.end_row();
                 }
             });
+        ui.add_space(10.0);
+        capability_ui(ui, s);
     });
+}
+
+/// The limits of a characteristic in words: "27.9 to 28.1, target 28", "at most 12.018".
+fn limits_text(e: &SpecEntry) -> String {
+    let mut t = match (e.lower, e.upper) {
+        (Some(l), Some(u)) => format!("{l} to {u}"),
+        (Some(l), None) => format!("at least {l}"),
+        (None, Some(u)) => format!("at most {u}"),
+        (None, None) => String::new(),
+    };
+    if let Some(x) = e.target {
+        t.push_str(&format!(", target {x}"));
+    }
+    t
+}
+
+fn interval_text(v: f64, i: [f64; 2]) -> String {
+    format!(
+        "{} [{}, {}]",
+        format_sig(v, 4),
+        format_sig(i[0], 4),
+        format_sig(i[1], 4)
+    )
+}
+
+/// Capability of each lot against the specification limits (Cp and Cpk, or CPU / CPL with one
+/// limit), with intervals, expected ppm and the units observed outside the limits.
+fn capability_ui(ui: &mut egui::Ui, s: &Shown) {
+    let c = &s.comparison;
+    let Some(d) = c.decision.as_ref().filter(|d| !d.capability.is_empty()) else {
+        ui.weak("Capability (Cp, Cpk) appears here when the Specification tab gives limits.");
+        return;
+    };
+    let colors = lot_colors(ui);
+    ui.strong(format!(
+        "Capability against the specification limits ({}% intervals; expected ppm outside under \
+         a normal model)",
+        format_confidence(c.alpha)
+    ));
+    egui::Grid::new("capability")
+        .striped(true)
+        .num_columns(8)
+        .show(ui, |ui| {
+            for h in [
+                "characteristic",
+                "limits",
+                "lot",
+                "index",
+                "value [interval]",
+                "Cp [interval]",
+                "expected ppm",
+                "units outside the limits",
+            ] {
+                ui.strong(h);
+            }
+            ui.end_row();
+            for r in &d.capability {
+                let entry = d
+                    .specification
+                    .characteristics
+                    .iter()
+                    .find(|e| e.characteristic == r.characteristic);
+                for (g, l) in r.lots.iter().enumerate() {
+                    if g == 0 {
+                        ui.label(&r.characteristic);
+                        ui.label(entry.map(limits_text).unwrap_or_default());
+                    } else {
+                        ui.label("");
+                        ui.label("");
+                    }
+                    ui.horizontal(|ui| {
+                        swatch(ui, colors[g], crate::palette::LOTS[g].filled);
+                        ui.label(&c.lots[g].name);
+                    });
+                    lot_cells(ui, l);
+                    ui.end_row();
+                }
+            }
+        });
+    if let Some(ins) = &d.in_spec {
+        ui.add_space(4.0);
+        for (g, l) in ins.lots.iter().enumerate() {
+            ui.horizontal(|ui| {
+                swatch(ui, colors[g], crate::palette::LOTS[g].filled);
+                ui.label(format!(
+                    "{}: inside every limit at once, expected {} ± {} (normal model){}",
+                    c.lots[g].name,
+                    format_sig(l.expected, 6),
+                    format_sig(l.error, 2),
+                    l.observed.map_or(String::new(), |o| format!(
+                        "; observed: {} inside",
+                        super::specification::observed_words(o)
+                    ))
+                ));
+            });
+        }
+    }
+    ui.label(
+        RichText::new(
+            "Cp compares the tolerance width with six standard deviations; Cpk the distance from \
+             the mean to the nearer limit with three. One limit only: CPU (upper) or CPL (lower).",
+        )
+        .small()
+        .weak(),
+    );
+}
+
+fn lot_cells(ui: &mut egui::Ui, l: &CapabilityLot) {
+    ui.label(&l.index);
+    ui.label(interval_text(l.cpk, l.cpk_interval));
+    ui.label(match (l.cp, l.cp_interval) {
+        (Some(v), Some(i)) => interval_text(v, i),
+        _ => "-".into(),
+    });
+    ui.label(format_sig(l.ppm_expected, 4));
+    ui.label(
+        l.out_of_spec
+            .map_or("-".to_string(), |n| format!("{n} of {}", l.n)),
+    );
 }

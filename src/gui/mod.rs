@@ -8,6 +8,7 @@ pub mod intervals;
 pub mod overview;
 pub mod pairs;
 pub mod shown;
+pub mod specification;
 pub mod worker;
 
 use std::path::PathBuf;
@@ -18,6 +19,18 @@ pub use app::{LotshiftApp, Saved, View};
 /// Opens the window (with `files`, or the bundled sample lots), or renders it to `screenshot`
 /// and exits.
 pub fn run(files: Vec<PathBuf>, screenshot: Option<PathBuf>, view: Option<String>) -> ExitCode {
+    run_with_spec(files, screenshot, view, None)
+}
+
+/// As [`run`], with a specification file (limits and margins) loaded into the
+/// Specification tab at start, as if opened there (a bad file shows the loader's message in
+/// the window; the lots and the comparison go ahead without it).
+pub fn run_with_spec(
+    files: Vec<PathBuf>,
+    screenshot: Option<PathBuf>,
+    view: Option<String>,
+    spec: Option<PathBuf>,
+) -> ExitCode {
     if !(files.is_empty() || files.len() == 2) {
         eprintln!(
             "lotshift: error: give two lot files (reference, then candidate), or none for the sample lots"
@@ -66,6 +79,9 @@ pub fn run(files: Vec<PathBuf>, screenshot: Option<PathBuf>, view: Option<String
                 app.load_samples();
             } else {
                 app.load_paths(worker::Slot::Both, files);
+            }
+            if let Some(p) = spec {
+                app.load_spec_path(p);
             }
             if let Some(p) = screenshot {
                 app.plan_screenshot(p);

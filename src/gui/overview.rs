@@ -1,38 +1,64 @@
-//! The verdict view: the result in plain words, the test table, what was compared, and the
-//! caution.
+//! The verdict view: the result in plain words (with a specification, the four-way outcome
+//! first), whether the shift matters against the margins, the test table, what was compared,
+//! and the caution.
 
 use egui::RichText;
 
-use crate::analysis::{format_p, format_sig};
+use crate::analysis::decision::{Decision, Outcome};
+use crate::analysis::{format_confidence, format_p, format_sig};
 use crate::report::{box_m_line, mardia_line, permutation_line, unequal_line};
 
-use super::app::test_line;
+use super::app::{View, lot_colors, swatch, test_line};
 use super::shown::Shown;
+use super::specification::{EDITED, MARGIN_CAUTION, margin_words, observed_words};
 
-/// Draws the verdict view.
-pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown) {
+/// The colour an outcome is written in.
+fn outcome_color(ui: &egui::Ui, o: Outcome) -> egui::Color32 {
+    match o {
+        Outcome::DifferBeyondMargins => ui.visuals().error_fg_color,
+        Outcome::Inconclusive => ui.visuals().warn_fg_color,
+        Outcome::DifferWithinMargins | Outcome::Equivalent => ui.visuals().strong_text_color(),
+    }
+}
+
+/// Draws the verdict view; the link to the specification view sets `view`.
+pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, view: &mut View) {
     egui::ScrollArea::vertical().show(ui, |ui| {
         let c = &s.comparison;
         let h = &c.hotelling;
+        let outcome = c.decision.as_ref().and_then(|d| d.outcome);
+        if let Some(o) = outcome {
+            ui.label(
+                RichText::new(o.words())
+                    .heading()
+                    .size(26.0)
+                    .strong()
+                    .color(outcome_color(ui, o)),
+            );
+        }
         let color = if h.differ {
             ui.visuals().warn_fg_color
         } else {
             ui.visuals().text_color()
         };
-        ui.label(
-            RichText::new(if h.differ {
-                format!("The lots differ (alpha {})", c.alpha)
-            } else {
-                format!("No difference detected (alpha {})", c.alpha)
-            })
-            .heading()
-            .color(color),
-        );
+        let test = RichText::new(if h.differ {
+            format!("The lots differ (alpha {})", c.alpha)
+        } else {
+            format!("No difference detected (alpha {})", c.alpha)
+        })
+        .color(color);
+        ui.label(if outcome.is_some() {
+            test.size(17.0)
+        } else {
+            test.heading()
+        });
         ui.label(&c.verdict);
         ui.add_space(8.0);
         for w in &c.warnings {
             ui.label(RichText::new(format!("Warning: {w}")).color(ui.visuals().warn_fg_color));
         }
+        decision_ui(ui, s, view);
+        ui.add_space(8.0);
         ui.strong("Hotelling's two-sample T² test");
         egui::Grid::new("test")
             .striped(true)
@@ -131,6 +157,159 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown) {
         ui.add_space(8.0);
         ui.label(RichText::new(test_line(s)).monospace());
     });
+}
+
+/// Whether the shift matters: the margins, equivalence per characteristic and at once, the
+/// fraction inside every limit; or, without margins, how to give them.
+fn decision_ui(ui: &mut egui::Ui, s: &Shown, view: &mut View) {
+    let c = &s.comparison;
+    let decision = c.decision.as_ref();
+    if decision.and_then(|d| d.outcome).is_none() {
+        ui.horizontal_wrapped(|ui| {
+            ui.spacing_mut().item_spacing.x = 4.0;
+            ui.label("Equivalence is not assessed: it needs margins. Type them, load a specification file or choose a margin rule in the");
+            if ui.link("Specification tab").clicked() {
+                *view = View::Specification;
+            }
+        });
+        if let Some(d) = decision {
+            in_spec_ui(ui, s, d);
+        }
+        return;
+    }
+    let Some(d) = decision else { return };
+    ui.add_space(4.0);
+    ui.strong("Does the shift matter? Equivalence within the margins");
+    let spec = &d.specification;
+    let source = match (&spec.file, &spec.sha256) {
+        (Some(f), _) if f == EDITED => "edited in the window, not saved".to_string(),
+        (Some(f), Some(h)) => format!("{f} (SHA-256 {}…)", &h[..12.min(h.len())]),
+        (Some(f), None) => f.clone(),
+        _ => "no file".into(),
+    };
+    ui.label(format!(
+        "Specification: {source}; {}.",
+        spec.rule.describe()
+    ));
+    if let Some(eq) = &d.equivalence {
+        if !eq.per_characteristic.is_empty() {
+            let conf = format_confidence(2.0 * eq.alpha);
+            egui::Grid::new("equivalence")
+                .striped(true)
+                .num_columns(5)
+                .show(ui, |ui| {
+                    for t in [
+                        "characteristic",
+                        "margin (candidate − reference)",
+                        "difference (candidate − reference)",
+                        &format!("{conf}% interval"),
+                        "result",
+                    ] {
+                        ui.strong(t);
+                    }
+                    ui.end_row();
+                    for r in &eq.per_characteristic {
+                        let k = c
+                            .characteristics
+                            .iter()
+                            .position(|n| n == &r.characteristic);
+                        let unit = k
+                            .and_then(|k| c.units.get(k).cloned().flatten())
+                            .map(|u| format!(" {u}"))
+                            .unwrap_or_default();
+                        ui.label(&r.characteristic);
+                        ui.label(format!("{}{unit}", margin_words(r.margin)));
+                        ui.label(format!("{}{unit}", format_sig(r.difference, 4)));
+                        ui.label(format!(
+                            "[{}, {}]",
+                            format_sig(r.interval[0], 4),
+                            format_sig(r.interval[1], 4)
+                        ));
+                        if r.equivalent {
+                            ui.label(RichText::new("within the margin").strong());
+                        } else if r.beyond {
+                            ui.label(
+                                RichText::new("wholly outside the margin")
+                                    .strong()
+                                    .color(ui.visuals().error_fg_color),
+                            );
+                        } else {
+                            ui.label(
+                                RichText::new("not shown within the margin")
+                                    .color(ui.visuals().warn_fg_color),
+                            );
+                        }
+                        ui.end_row();
+                    }
+                });
+            ui.weak(format!(
+                "Two one-sided tests at alpha {} each (Welch): equivalent when the {conf}% \
+                 interval lies inside the margin. All must pass; no multiplicity adjustment is \
+                 needed.",
+                eq.alpha
+            ));
+        }
+        if let Some(m) = &eq.multivariate {
+            ui.label(format!(
+                "All characteristics at once: the distance between the lot means is at most {} \
+                 (upper {}% bound) against the margin ε = {}{} — {}.",
+                format_sig(m.distance_upper_bound, 4),
+                format_confidence(eq.alpha),
+                format_sig(m.epsilon, 4),
+                if m.epsilon_from_margins {
+                    ", derived from the margins and these data (approximate level)"
+                } else {
+                    ""
+                },
+                if m.equivalent {
+                    "equivalent"
+                } else {
+                    "equivalence not shown"
+                }
+            ));
+        }
+    }
+    if d.outcome == Some(Outcome::Inconclusive) {
+        ui.label(match d.units_needed {
+            Some(n) => format!(
+                "About {n} units per lot would give the equivalence tests {:.0}% power if the \
+                 true difference were the one observed.",
+                100.0 * crate::analysis::decision::PLAN_POWER
+            ),
+            None => "No lot size would show equivalence if the true difference were the one \
+                     observed: it lies on or beyond a margin."
+                .into(),
+        });
+    }
+    in_spec_ui(ui, s, d);
+    for n in &d.notes {
+        ui.weak(format!("Note: {n}"));
+    }
+    ui.label(RichText::new(MARGIN_CAUTION).italics().small());
+}
+
+/// Each lot's expected share outside the limits, and the share of units observed inside them.
+fn in_spec_ui(ui: &mut egui::Ui, s: &Shown, d: &Decision) {
+    let Some(ins) = &d.in_spec else { return };
+    let colors = lot_colors(ui);
+    ui.label(format!(
+        "Inside every specification limit at once ({}; normal model):",
+        ins.characteristics.join(", ")
+    ));
+    for (g, l) in ins.lots.iter().enumerate() {
+        ui.horizontal(|ui| {
+            swatch(ui, colors[g], crate::palette::LOTS[g].filled);
+            ui.label(format!(
+                "{}: expected {} ppm outside{}",
+                s.comparison.lots[g].name,
+                format_sig(1e6 * (1.0 - l.expected).max(0.0), 3),
+                l.observed.map_or(String::new(), |o| format!(
+                    "; observed: {} inside",
+                    observed_words(o)
+                ))
+            ));
+        });
+    }
 }
 
 fn checks_ui(ui: &mut egui::Ui, s: &Shown) {

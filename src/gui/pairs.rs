@@ -3,12 +3,30 @@
 //! characteristics that drive the shift most.
 
 use egui::{Color32, RichText};
-use egui_plot::{Legend, Line, LineStyle, MarkerShape, Plot, PlotPoints, Points};
+use egui_plot::{HLine, Legend, Line, LineStyle, MarkerShape, Plot, PlotPoints, Points, VLine};
 
 use crate::analysis::{format_confidence, format_sig};
 
 use super::app::{Saved, lot_colors};
 use super::shown::{SMALL_POINTS, Shown};
+
+/// Colour of the specification limits.
+const LIMITS: Color32 = Color32::from_rgb(40, 140, 85);
+
+/// The specification limits of characteristic `k` (lower, upper), when any is given.
+fn limits(s: &Shown, k: usize) -> (Option<f64>, Option<f64>) {
+    let name = &s.comparison.characteristics[k];
+    s.comparison
+        .decision
+        .as_ref()
+        .and_then(|d| {
+            d.specification
+                .characteristics
+                .iter()
+                .find(|e| &e.characteristic == name)
+        })
+        .map_or((None, None), |e| (e.lower, e.upper))
+}
 
 /// Characteristics in the small-multiples grid (those driving the shift most).
 pub const GRID_CHARACTERISTICS: usize = 6;
@@ -75,11 +93,19 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
     let coverage = saved.coverage;
     let view = s.pair(i, j, coverage);
     let conf = format_confidence(s.comparison.alpha);
+    let (xl, xu) = limits(s, i);
+    let (yl, yu) = limits(s, j);
+    let any_limit = [xl, xu, yl, yu].iter().any(Option::is_some);
     ui.label(
         RichText::new(format!(
             "Solid: each lot's {conf}% confidence ellipse for its mean (this pair alone). Dashed: \
-             data ellipses expected to hold {}% of a normal lot's units.",
-            format_sig(100.0 * coverage, 3)
+             data ellipses expected to hold {}% of a normal lot's units.{}",
+            format_sig(100.0 * coverage, 3),
+            if any_limit {
+                " Green: the specification limits."
+            } else {
+                ""
+            }
         ))
         .small(),
     );
@@ -125,6 +151,33 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                     egui_plot::HoverPosition::Elsewhere { .. } => None,
                 })
                 .show(ui, |plot| {
+                    // Both limits of both: the rectangle; otherwise each limit given as a line.
+                    if let (Some(a), Some(b), Some(c), Some(d)) = (xl, xu, yl, yu) {
+                        plot.line(
+                            Line::new(
+                                "specification limits",
+                                vec![[a, c], [b, c], [b, d], [a, d], [a, c]],
+                            )
+                            .color(LIMITS)
+                            .width(1.5)
+                            .allow_hover(false),
+                        );
+                    } else {
+                        for x in [xl, xu].into_iter().flatten() {
+                            plot.vline(
+                                VLine::new("specification limits", x)
+                                    .color(LIMITS)
+                                    .width(1.5),
+                            );
+                        }
+                        for y in [yl, yu].into_iter().flatten() {
+                            plot.hline(
+                                HLine::new("specification limits", y)
+                                    .color(LIMITS)
+                                    .width(1.5),
+                            );
+                        }
+                    }
                     for (g, color, name) in &lots {
                         plot.points(
                             Points::new(name.clone(), PlotPoints::Borrowed(&view.points[*g]))

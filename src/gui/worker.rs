@@ -9,6 +9,7 @@ use std::sync::mpsc::{Receiver, Sender, channel};
 use std::sync::{Arc, Mutex};
 
 use crate::analysis::{self, Comparison, Progress, Settings};
+use crate::data::spec::{Spec, SpecRow};
 use crate::data::{self, LoadOptions, Lot, Selection};
 use crate::pipeline::{self, Request, SpecRequest};
 use crate::report::Record;
@@ -37,6 +38,8 @@ pub enum Purpose {
     KeyFolder,
     /// Choose a signed summary to check.
     Summary,
+    /// Choose a specification file (limits and margins) to load.
+    Specification,
 }
 
 /// What a file to load is.
@@ -75,6 +78,11 @@ pub enum Outcome {
         /// The chosen path (none when cancelled).
         path: Option<PathBuf>,
     },
+    /// A specification file was read (or the loader's message naming file, row and column).
+    SpecLoaded(Result<Spec, String>),
+    /// The specification was written: the file as saved (its name, the SHA-256 of the bytes
+    /// written, the rows), or why not.
+    SpecSaved(Result<Spec, String>),
     /// The file dialog closed.
     Picked {
         /// Slot the dialog was for.
@@ -116,6 +124,7 @@ pub struct Worker {
     latest_run: u64,
     active: Option<Arc<RunHandle>>,
     loads_pending: usize,
+    saves_pending: usize,
 }
 
 fn panic_text(e: &Box<dyn std::any::Any + Send>) -> String {
@@ -123,6 +132,12 @@ fn panic_text(e: &Box<dyn std::any::Any + Send>) -> String {
         .map(|s| s.to_string())
         .or_else(|| e.downcast_ref::<String>().cloned())
         .unwrap_or_else(|| "unknown failure".into())
+}
+
+/// Lower-case hex SHA-256 of `bytes` (as the loaders record a file's).
+pub fn sha256_hex(bytes: &[u8]) -> String {
+    use sha2::Digest as _;
+    data::hex(&sha2::Sha256::digest(bytes))
 }
 
 fn load_source(src: &Source, options: &LoadOptions) -> Result<Lot, String> {
@@ -144,6 +159,7 @@ impl Worker {
             latest_run: 0,
             active: None,
             loads_pending: 0,
+            saves_pending: 0,
         }
     }
 
@@ -223,6 +239,14 @@ impl Worker {
                     .set_title("Open a signed summary")
                     .add_filter("JSON", &["json"])
                     .pick_file(),
+                Purpose::Specification => rfd::FileDialog::new()
+                    .set_title("Open a specification file (limits and margins)")
+                    .add_filter(
+                        "Specification files",
+                        &["csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods"],
+                    )
+                    .add_filter("All files", &["*"])
+                    .pick_file(),
             };
             Self::send(&tx, &ctx, Outcome::Chosen { purpose, path });
         });
@@ -245,6 +269,65 @@ impl Worker {
                     .map_err(|e| format!("the record was not written: {e}"));
                 Self::send(&tx, &ctx, Outcome::Exported(result));
             }
+        });
+    }
+
+    /// Reads a specification file in the background. A file that cannot be read, or whose
+    /// content is wrong, arrives as the loader's message (file, row, column); nothing panics.
+    pub fn load_spec(&mut self, path: PathBuf) {
+        self.loads_pending += 1;
+        let tx = self.tx.clone();
+        let ctx = self.ctx.clone();
+        std::thread::spawn(move || {
+            let result = catch_unwind(AssertUnwindSafe(|| {
+                data::spec::load_spec(&path, &LoadOptions::default()).map_err(|e| e.to_string())
+            }))
+            .unwrap_or_else(|e| {
+                Err(format!(
+                    "{}: internal error while reading: {}",
+                    path.display(),
+                    panic_text(&e)
+                ))
+            });
+            Self::send(&tx, &ctx, Outcome::SpecLoaded(result));
+        });
+    }
+
+    /// Writes specification rows as CSV ([`data::spec::to_csv`]) atomically, to `path` or,
+    /// without one, where a save dialog (in the background) says. Delivers the file as
+    /// saved: its path and name, the SHA-256 of the bytes written, and the rows.
+    pub fn save_spec(&mut self, suggested_name: String, rows: Vec<SpecRow>, path: Option<PathBuf>) {
+        // A save to a given path counts as work under way (a dialog does not: it may be
+        // cancelled, and then nothing arrives).
+        if path.is_some() {
+            self.saves_pending += 1;
+        }
+        let tx = self.tx.clone();
+        let ctx = self.ctx.clone();
+        std::thread::spawn(move || {
+            let picked = path.or_else(|| {
+                rfd::FileDialog::new()
+                    .set_title("Save the specification")
+                    .set_file_name(&suggested_name)
+                    .add_filter("CSV", &["csv"])
+                    .save_file()
+            });
+            let Some(path) = picked else { return };
+            let text = data::spec::to_csv(&rows);
+            let result = crate::report::write_atomic(&path, text.as_bytes())
+                .map(|()| {
+                    let shown = path.display().to_string();
+                    Spec {
+                        file_name: path
+                            .file_name()
+                            .map_or_else(|| shown.clone(), |n| n.to_string_lossy().into_owned()),
+                        path: shown,
+                        sha256: sha256_hex(text.as_bytes()),
+                        rows,
+                    }
+                })
+                .map_err(|e| format!("the specification was not written: {e}"));
+            Self::send(&tx, &ctx, Outcome::SpecSaved(result));
         });
     }
 
@@ -305,7 +388,7 @@ impl Worker {
 
     /// True while a comparison or a load is under way.
     pub fn busy(&self) -> bool {
-        self.active.is_some() || self.loads_pending > 0
+        self.active.is_some() || self.loads_pending > 0 || self.saves_pending > 0
     }
 
     /// Finished work, oldest first; results of superseded runs are dropped here.
@@ -321,7 +404,12 @@ impl Worker {
                         self.active = None;
                     }
                 }
-                Outcome::Loaded { .. } => self.loads_pending = self.loads_pending.saturating_sub(1),
+                Outcome::Loaded { .. } | Outcome::SpecLoaded(_) => {
+                    self.loads_pending = self.loads_pending.saturating_sub(1);
+                }
+                Outcome::SpecSaved(_) => {
+                    self.saves_pending = self.saves_pending.saturating_sub(1);
+                }
                 Outcome::Picked { .. } | Outcome::Exported(_) | Outcome::Chosen { .. } => {}
             }
             out.push(o);

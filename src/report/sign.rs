@@ -420,7 +420,7 @@ const PROSE: [&str; 3] = ["verdict", "why", "warnings"];
 /// The first number (or string) that differs between two records, as `path: recorded vs
 /// recomputed`. Numbers agree when within 1e-9 relative (floating-point results may differ in
 /// the last digits between processors); fields that describe the run itself (time, program
-/// version, file names) are not compared, and the wording ([`PROSE`]) only when the record was
+/// version, file names) are not compared, and the wording (`PROSE`) only when the record was
 /// made by this version of the program (the numbers and every data-derived text always are).
 pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> {
     let same_version = recorded["software"]["version"].as_str() == Some(env!("CARGO_PKG_VERSION"));
