@@ -13,7 +13,7 @@ use crate::stats::{EngineError, discriminant, ellipse, quote_list};
 
 pub mod decision;
 
-pub use crate::format::{format_confidence, format_p, format_sig};
+pub use crate::format::{format_confidence, format_p, format_sig, p_text};
 
 use decision::{Decision, DecisionError, Observed, Specification};
 
@@ -435,6 +435,9 @@ pub fn detectable_distance(p: usize, n1: usize, n2: usize, alpha: f64, target: f
 
 /// Box's M is judged at this level (common practice: M is very sensitive to non-normality).
 pub const BOX_M_LEVEL: f64 = 0.001;
+/// Mardia's tests are judged at this fixed level when choosing the test to read (common
+/// practice), whatever alpha the comparison uses.
+pub const MARDIA_LEVEL: f64 = 0.05;
 /// Lot sizes differing by more than this ratio count as unbalanced (common practice).
 pub const UNBALANCED_RATIO: f64 = 1.2;
 
@@ -501,11 +504,11 @@ pub fn favour(c: &Comparison) -> Favoured {
         return Favoured {
             test: FavouredTest::UnequalCovariance,
             why: format!(
-                "Box's M gives p = {} (below {BOX_M_LEVEL}, the level common practice uses \
+                "Box's M gives {} (below {BOX_M_LEVEL}, the level common practice uses \
                  because M is sensitive to non-normality) and the lots differ in size ({} and \
                  {} units): the pooled T² can then be far off its level, while the \
                  Krishnamoorthy–Yu test does not assume equal covariance matrices",
-                format_p(box_p.unwrap_or(f64::NAN)),
+                p_text(box_p.unwrap_or(f64::NAN)),
                 c.lots[0].n,
                 c.lots[1].n
             ),
@@ -515,17 +518,17 @@ pub fn favour(c: &Comparison) -> Favoured {
     let nonnormal: Vec<&str> = c
         .mardia
         .iter()
-        .filter(|m| m.skewness_p < c.alpha || m.kurtosis_p < c.alpha)
+        .filter(|m| m.skewness_p < MARDIA_LEVEL || m.kurtosis_p < MARDIA_LEVEL)
         .map(|m| m.lot.as_str())
         .collect();
     if cov_differ {
         return Favoured {
             test: FavouredTest::PooledT2,
             why: format!(
-                "Box's M gives p = {} (covariance matrices differ), but the lots are of similar \
+                "Box's M gives {} (covariance matrices differ), but the lots are of similar \
                  size, where the pooled T² keeps its level (common practice); the \
                  unequal-covariance test is shown for comparison",
-                format_p(box_p.unwrap_or(f64::NAN))
+                p_text(box_p.unwrap_or(f64::NAN))
             ),
             p_value: pooled,
         };
@@ -536,8 +539,8 @@ pub fn favour(c: &Comparison) -> Favoured {
         return Favoured {
             test: FavouredTest::Permutation,
             why: format!(
-                "Mardia's tests reject multivariate normality in {}; the permutation p-value \
-                 does not rely on it",
+                "Mardia's tests reject multivariate normality at {MARDIA_LEVEL} in {}; the \
+                 permutation p-value does not rely on it",
                 nonnormal
                     .iter()
                     .map(|l| format!("\"{l}\""))
@@ -1178,12 +1181,12 @@ pub fn apply_specification(
 /// "T² = …, F(df1, df2) = …, p = …" with `sig` significant digits.
 pub fn test_statistics(h: &HotellingResult, sig: usize) -> String {
     format!(
-        "T² = {}, F({}, {}) = {}, p = {}",
+        "T² = {}, F({}, {}) = {}, {}",
         format_sig(h.t2, sig),
         h.df1,
         h.df2,
         format_sig(h.f, sig),
-        format_p(h.p_value)
+        p_text(h.p_value)
     )
 }
 
@@ -1233,13 +1236,13 @@ fn verdict_text(c: &Comparison) -> String {
         let differ = f.p_value < alpha;
         let detail = match (f.test, &c.unequal_covariance) {
             (FavouredTest::UnequalCovariance, Some(u)) => format!(
-                "F({}, {}) = {}, p = {}",
+                "F({}, {}) = {}, {}",
                 u.df1,
                 format_sig(u.df2, 4),
                 format_sig(u.f, 4),
-                format_p(u.p_value)
+                p_text(u.p_value)
             ),
-            _ => format!("p = {}", format_p(f.p_value)),
+            _ => p_text(f.p_value),
         };
         s.push_str(&format!(
             " The assumption checks favour the {} ({detail}): by it the lots {} at alpha {alpha}.",

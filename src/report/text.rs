@@ -5,7 +5,7 @@ use std::fmt::Write as _;
 use crate::analysis::Comparison;
 use crate::analysis::decision::MarginFrom;
 use crate::data::Prepared;
-use crate::format::{format_confidence, format_p, format_sig};
+use crate::format::{format_confidence, format_p, format_sig, p_text};
 use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
 use crate::stats::permutation::PermutationResult;
 
@@ -162,10 +162,16 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
     }
     let d = &c.discriminant;
     let _ = writeln!(s, "\nWhat drives the shift (discriminant direction)");
+    if !c.hotelling.differ {
+        let _ = writeln!(
+            s,
+            "  No difference was detected: this ranking then mostly shows noise."
+        );
+    }
     let _ = writeln!(
         s,
         "  {:<22} {:>12} {:>13} {:>12} {:>14}",
-        "characteristic", "T² drop", "standardized", "structure", "raw coef"
+        "characteristic", "T² lost", "weight / SD", "corr. shift", "weight / unit"
     );
     for r in &c.ranking {
         let k = c
@@ -183,6 +189,13 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
             format_sig(d.coefficients[k], 4)
         );
     }
+    let _ = writeln!(
+        s,
+        "  T² lost: how much T² falls without the characteristic (correlated characteristics \
+         share the shift, so these can add up to more than T²); weight / SD: the direction's \
+         weight per standard deviation; corr. shift: the characteristic's correlation with the \
+         direction; weight / unit: per unit of measure"
+    );
     if let Some(a) = d.apparent_misclassified {
         let n = (c.lots[0].n + c.lots[1].n) as f64;
         let _ = writeln!(
@@ -430,37 +443,48 @@ fn decision_text(s: &mut String, c: &Comparison) {
 
 /// Box's M in one line.
 pub fn box_m_line(b: &BoxM) -> String {
-    format!(
-        "M = {}; chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {} — reading the {} form",
-        format_sig(b.m, 5),
-        format_sig(b.chi2, 5),
-        b.df,
-        format_p(b.p_value),
-        format_sig(b.f, 5),
-        b.f_df1,
-        format_sig(b.f_df2, 5),
-        format_p(b.f_p_value),
-        b.preferred
-    )
+    // The form the test is read in; the other form is in the record.
+    if b.preferred == "F" {
+        format!(
+            "M = {}, read as F = {} on ({}, {:.0}) df, {}",
+            format_sig(b.m, 5),
+            format_sig(b.f, 5),
+            b.f_df1,
+            b.f_df2,
+            p_text(b.f_p_value)
+        )
+    } else {
+        format!(
+            "M = {}, read as chi-square = {} on {} df, {}",
+            format_sig(b.m, 5),
+            format_sig(b.chi2, 5),
+            b.df,
+            p_text(b.p_value)
+        )
+    }
 }
 
 /// The unequal-covariance test in one line.
 pub fn unequal_line(u: &UnequalCovariance) -> String {
     format!(
-        "T² = {}, F = {} on ({}, {}) df, p = {}",
+        "T² = {}, F = {} on ({}, {:.1}) df, {}",
         format_sig(u.t2, 5),
         format_sig(u.f, 5),
         u.df1,
-        format_sig(u.df2, 5),
-        format_p(u.p_value)
+        u.df2,
+        p_text(u.p_value)
     )
 }
 
 /// The permutation p-value in one line.
 pub fn permutation_line(p: &PermutationResult) -> String {
+    // Monte Carlo standard error of the estimated p-value over B relabellings.
+    let se = (p.p_value * (1.0 - p.p_value) / p.permutations.max(1) as f64).sqrt();
     format!(
-        "{} ({} of {} relabellings reached the observed T², seed {})",
+        "{} ± {} (Monte Carlo standard error; {} of {} relabellings reached the observed T², \
+         seed {})",
         format_p(p.p_value),
+        format_sig(se, 2),
         p.at_least_observed,
         p.permutations,
         p.seed
@@ -470,14 +494,14 @@ pub fn permutation_line(p: &PermutationResult) -> String {
 /// Mardia's tests of one lot in one line.
 pub fn mardia_line(m: &Mardia) -> String {
     format!(
-        "skewness b1 = {} (chi-square {} on {} df, p = {}), kurtosis b2 = {} (z = {}, p = {})",
+        "skewness b1 = {} (chi-square {} on {} df, {}), kurtosis b2 = {} (z = {}, {})",
         format_sig(m.skewness, 4),
         format_sig(m.skewness_stat, 4),
         m.skewness_df,
-        format_p(m.skewness_p),
+        p_text(m.skewness_p),
         format_sig(m.kurtosis, 4),
         format_sig(m.kurtosis_z, 3),
-        format_p(m.kurtosis_p)
+        p_text(m.kurtosis_p)
     )
 }
 
@@ -504,9 +528,9 @@ fn checks_text(s: &mut String, c: &Comparison) {
     for row in &c.normality {
         let cell = |r: &Option<crate::stats::normality::ShapiroWilk>| match r {
             Some(r) => format!(
-                "W = {}, p = {}{}",
+                "W = {}, {}{}",
                 format_sig(r.w, 4),
-                format_p(r.p_value),
+                p_text(r.p_value),
                 if r.p_value_validated {
                     ""
                 } else {
