@@ -432,3 +432,38 @@ fn the_detectable_shift_has_the_stated_power() {
     // Too few units for a test: no detectable shift.
     assert_eq!(detectable_distance(5, 3, 3, 0.05, 0.8), None);
 }
+
+/// A planted outlier is flagged, and the T² "without the flagged units" (computed by taking
+/// the units out of the moments) equals the T² of the lots with those rows deleted and
+/// compared afresh (the same statistic, two ways).
+#[test]
+fn the_t2_without_outliers_is_the_t2_of_the_lots_without_them() {
+    let mut rng = Rng(99);
+    let x = rng.lot(40, 3, 0.0);
+    let mut y = rng.lot(35, 3, 0.15);
+    for k in 0..3 {
+        y[(7, k)] += 9.0 * (1.0 + k as f64);
+    }
+    let c = run(&x, &y, 0.05).unwrap();
+    let o = c.outliers.as_ref().unwrap();
+    assert!(o.units.iter().any(|u| u.lot == 1 && u.unit == 7), "{o:?}");
+    let w = c
+        .without_outliers
+        .as_ref()
+        .expect("rerun without the outliers");
+    let drop = |m: &DMatrix<f64>, lot: usize| {
+        let rows: Vec<usize> = (0..m.nrows())
+            .filter(|&i| !o.units.iter().any(|u| u.lot == lot && u.unit == i))
+            .collect();
+        DMatrix::from_fn(rows.len(), m.ncols(), |i, k| m[(rows[i], k)])
+    };
+    let again = run(&drop(&x, 0), &drop(&y, 1), 0.05).unwrap();
+    assert!(
+        (w.t2 - again.hotelling.t2).abs() < 1e-9 * again.hotelling.t2,
+        "{} vs {}",
+        w.t2,
+        again.hotelling.t2
+    );
+    assert_eq!(w.differ, again.hotelling.differ);
+    assert!(c.verdict.contains("flagged as outliers"), "{}", c.verdict);
+}

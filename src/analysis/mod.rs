@@ -387,6 +387,24 @@ pub struct Comparison {
     /// reaches it, as with too few units).
     #[serde(default)]
     pub detectable: Option<Detectable>,
+    /// The T² test without the units flagged as outliers (absent when none is flagged).
+    #[serde(default)]
+    pub without_outliers: Option<WithoutOutliers>,
+}
+
+/// The T² test rerun without the units the outlier screen flags: does the decision hold?
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct WithoutOutliers {
+    /// Units left out per lot.
+    pub removed: [usize; 2],
+    /// T² without them.
+    pub t2: f64,
+    /// Its p-value.
+    pub p_value: f64,
+    /// The lots differ at alpha without them.
+    pub differ: bool,
+    /// The decision (differ or not) is the same with and without them.
+    pub same_decision: bool,
 }
 
 /// Power at which the detectable shift is stated (common practice for planning).
@@ -807,7 +825,7 @@ fn compare_centred(
     if settings.checks {
         progress.report("assumption checks", 0.9);
         // The centred units are whitened in place: no further copy of them.
-        unit_checks(&mut out, [c1, c2], settings.alpha);
+        unit_checks(&mut out, [c1, c2], settings.alpha, [&m1, &m2]);
         if progress.cancelled() {
             return Err(EngineError::Cancelled);
         }
@@ -872,8 +890,14 @@ pub fn add_permutation(
     Ok(())
 }
 
-/// Mardia's tests, Shapiro–Wilk and the outlier screen: the checks that need unit data.
-fn unit_checks(out: &mut Comparison, centred: [DMatrix<f64>; 2], alpha: f64) {
+/// Mardia's tests, Shapiro–Wilk and the outlier screen: the checks that need unit data; with
+/// outliers flagged, the T² test again without them.
+fn unit_checks(
+    out: &mut Comparison,
+    centred: [DMatrix<f64>; 2],
+    alpha: f64,
+    moments: [&LotMoments; 2],
+) {
     let p = out.characteristics.len();
     let mut cutoff = [f64::NAN; 2];
     let mut flagged = Vec::new();
@@ -888,11 +912,17 @@ fn unit_checks(out: &mut Comparison, centred: [DMatrix<f64>; 2], alpha: f64) {
             ],
         })
         .collect();
+    // The flagged units' centred values, turned back from their whitened rows.
+    let mut removed: [Vec<DVector<f64>>; 2] = [Vec::new(), Vec::new()];
     for (g, mut c) in centred.into_iter().enumerate() {
-        if checks::whiten_in_place(&mut c) {
+        if let Some(w) = checks::whiten_keeping(&mut c) {
             out.mardia.push(checks::mardia(&out.lots[g].name, &c));
             let (cut, units) = checks::outliers(g, &c, alpha);
             cutoff[g] = cut;
+            for u in &units {
+                let z: Vec<f64> = c.row(u.unit).iter().copied().collect();
+                removed[g].push(w.unwhiten(&z));
+            }
             flagged.extend(units);
         }
     }
@@ -900,6 +930,53 @@ fn unit_checks(out: &mut Comparison, centred: [DMatrix<f64>; 2], alpha: f64) {
         cutoff,
         units: flagged,
     });
+    out.without_outliers = without(out, moments, &removed, alpha);
+}
+
+/// The T² test once more without the flagged units, from the lots' moments with those units
+/// taken out (`n' = n − k`; the kept units' centred mean `μ' = −Σ cᵢ / n'`, so the offset
+/// becomes `offset + μ'` and `SSP' = SSP − Σ cᵢcᵢᵀ − n' μ'μ'ᵀ`): no second pass over the data.
+fn without(
+    out: &Comparison,
+    moments: [&LotMoments; 2],
+    removed: &[Vec<DVector<f64>>; 2],
+    alpha: f64,
+) -> Option<WithoutOutliers> {
+    if removed.iter().all(Vec::is_empty) {
+        return None;
+    }
+    let mut kept = Vec::with_capacity(2);
+    for (m, r) in moments.iter().zip(removed) {
+        let n = m.n.checked_sub(r.len())?;
+        if n < 2 {
+            return None;
+        }
+        let mut sum = DVector::zeros(m.dim());
+        let mut ssp = m.ssp.clone();
+        for c in r {
+            sum += c;
+            ssp -= c * c.transpose();
+        }
+        let mu = -sum / n as f64;
+        ssp -= (&mu * mu.transpose()) * n as f64;
+        kept.push(LotMoments {
+            n,
+            origin: m.origin.clone(),
+            offset: &m.offset + &mu,
+            ssp,
+            spread_scale: m.spread_scale.clone(),
+        });
+    }
+    let pooled = Pooled::new(&kept[0], &kept[1], &out.characteristics).ok()?;
+    let test = hotelling::two_sample(&kept[0], &kept[1], &pooled, alpha);
+    let differ = test.p_value < alpha;
+    Some(WithoutOutliers {
+        removed: [removed[0].len(), removed[1].len()],
+        t2: test.t2,
+        p_value: test.p_value,
+        differ,
+        same_decision: differ == out.hotelling.differ,
+    })
 }
 
 /// Compares two lots from published summary statistics only (n, mean vector, covariance).
@@ -1102,6 +1179,7 @@ fn finish(
         decision: None,
         not_compared: Vec::new(),
         input_alerts: Vec::new(),
+        without_outliers: None,
         detectable: detectable_distance(p, m1.n, m2.n, alpha, DETECTABLE_POWER).map(|d| {
             Detectable {
                 power: DETECTABLE_POWER,
@@ -1231,6 +1309,20 @@ fn verdict_text(c: &Comparison) -> String {
              difference the data can rule out."
         )
     };
+    if let Some(w) = &c.without_outliers {
+        let k = w.removed[0] + w.removed[1];
+        s.push_str(&format!(
+            " Without the {k} unit{} flagged as outliers, T² = {}, {}: the decision {}.",
+            if k == 1 { "" } else { "s" },
+            format_sig(w.t2, 4),
+            p_text(w.p_value),
+            if w.same_decision {
+                "holds"
+            } else {
+                "changes; look at those units before deciding"
+            }
+        ));
+    }
     let f = &c.favoured;
     if f.test != FavouredTest::PooledT2 && f.p_value.is_finite() {
         let differ = f.p_value < alpha;

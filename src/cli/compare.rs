@@ -55,7 +55,12 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
             lots[0].provenance.file_name.as_str(),
             lots[1].provenance.file_name.as_str(),
         ];
-        out(&report::render_text(&c, Some(&prepared), files));
+        out(&report::render_text(
+            &c,
+            Some(&prepared),
+            files,
+            Some(&record),
+        ));
     }
     emit_json(&a.json, &record)?;
     if let (Some(summary), Some(out_path)) = (&signed, &a.out) {
@@ -122,7 +127,7 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
     let record = Record::new(&c, None);
     if a.json.as_deref() != Some("-") {
         let name = a.file.display().to_string();
-        out(&report::render_text(&c, None, [&name, &name]));
+        out(&report::render_text(&c, None, [&name, &name], None));
     }
     emit_json(&a.json, &record)?;
     Ok(if a.fail_on_shift && c.hotelling.differ {

@@ -16,7 +16,13 @@ fn unit_suffix(u: &Option<String>) -> String {
 }
 
 /// Renders a comparison as plain text.
-pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]) -> String {
+/// `record`, when given, supplies the flagged outliers' rows and labels.
+pub fn render_text(
+    c: &Comparison,
+    prepared: Option<&Prepared>,
+    files: [&str; 2],
+    record: Option<&super::Record>,
+) -> String {
     let mut s = String::new();
     let h = &c.hotelling;
     let _ = writeln!(
@@ -215,7 +221,7 @@ pub fn render_text(c: &Comparison, prepared: Option<&Prepared>, files: [&str; 2]
             100.0 * rate
         );
     }
-    checks_text(&mut s, c);
+    checks_text(&mut s, c, record);
     let _ = writeln!(s, "\n{CAUTION}");
     s
 }
@@ -505,7 +511,7 @@ pub fn mardia_line(m: &Mardia) -> String {
     )
 }
 
-fn checks_text(s: &mut String, c: &Comparison) {
+fn checks_text(s: &mut String, c: &Comparison, record: Option<&super::Record>) {
     let any = c.box_m.is_some()
         || !c.mardia.is_empty()
         || c.unequal_covariance.is_some()
@@ -560,6 +566,43 @@ fn checks_text(s: &mut String, c: &Comparison) {
             count(1),
             format_sig(o.cutoff[1], 4)
         );
+        if let Some(located) = record.and_then(|r| r.outliers.as_ref()) {
+            for u in &located.units {
+                let labels: Vec<String> = u
+                    .labels
+                    .iter()
+                    .filter(|(_, v)| !v.is_empty())
+                    .take(2)
+                    .map(|(h, v)| format!("{h} {v}"))
+                    .collect();
+                let _ = writeln!(
+                    s,
+                    "    lot {}: row {}{}: d² = {}, {}",
+                    u.lot + 1,
+                    u.row.map_or("?".to_string(), |r| r.to_string()),
+                    if labels.is_empty() {
+                        String::new()
+                    } else {
+                        format!(" ({})", labels.join("; "))
+                    },
+                    format_sig(u.d2, 4),
+                    p_text(u.p_value)
+                );
+            }
+        }
+        if let Some(w) = &c.without_outliers {
+            let _ = writeln!(
+                s,
+                "    without them: T² = {}, {} ({})",
+                format_sig(w.t2, 5),
+                p_text(w.p_value),
+                if w.same_decision {
+                    "the decision holds"
+                } else {
+                    "the decision changes"
+                }
+            );
+        }
     }
     if let Some(u) = &c.unequal_covariance {
         let _ = writeln!(

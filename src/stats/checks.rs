@@ -169,19 +169,43 @@ pub struct Mardia {
 /// `L⁻¹ xᵢ`, computed on the correlation scale). False, leaving the data unusable, when the
 /// covariance is singular.
 pub fn whiten_in_place(c: &mut DMatrix<f64>) -> bool {
+    whiten_keeping(c).is_some()
+}
+
+/// The factor a whitening used: a unit's centred values are `sd ⊙ (L zᵢ)`.
+#[derive(Debug, Clone)]
+pub struct Whitening {
+    /// Cholesky factor of the correlation matrix.
+    pub l: DMatrix<f64>,
+    /// Standard deviations (divisor n).
+    pub sd: Vec<f64>,
+}
+
+impl Whitening {
+    /// The centred values of the unit whose whitened row is `z`.
+    pub fn unwhiten(&self, z: &[f64]) -> DVector<f64> {
+        let p = self.sd.len();
+        DVector::from_fn(p, |a, _| {
+            let y: f64 = (0..=a).map(|b| self.l[(a, b)] * z[b]).sum();
+            y * self.sd[a]
+        })
+    }
+}
+
+/// As [`whiten_in_place`], keeping the factor so single units can be turned back into
+/// centred values; `None` (data unusable) when the covariance is singular.
+pub fn whiten_keeping(c: &mut DMatrix<f64>) -> Option<Whitening> {
     let (n, p) = c.shape();
     if n == 0 {
-        return false;
+        return None;
     }
     let cov = c.tr_mul(c) / n as f64;
     let sd: Vec<f64> = (0..p).map(|k| cov[(k, k)].sqrt()).collect();
     if sd.iter().any(|&s| !super::positive(s)) {
-        return false;
+        return None;
     }
     let corr = DMatrix::from_fn(p, p, |i, j| cov[(i, j)] / (sd[i] * sd[j]));
-    let Some(chol) = Cholesky::new(corr) else {
-        return false;
-    };
+    let chol = Cholesky::new(corr)?;
     let l = chol.l();
     for (k, s) in sd.iter().enumerate() {
         c.column_mut(k).unscale_mut(*s);
@@ -204,7 +228,7 @@ pub fn whiten_in_place(c: &mut DMatrix<f64>) -> bool {
             *x /= laa;
         }
     }
-    true
+    Some(Whitening { l, sd })
 }
 
 /// Mardia's statistics from whitened units (`n × p`, one row per unit).
