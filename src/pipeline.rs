@@ -8,6 +8,7 @@ use nalgebra::DMatrix;
 
 use crate::analysis::decision::{self, DecisionError, MarginRule, Observed, Specification};
 use crate::analysis::{self, Comparison, Progress, Settings};
+use crate::data::exclusions::{self, Exclusion};
 use crate::data::spec::Spec;
 use crate::data::{self, LoadError, Lot, PrepareError, Prepared, Selection};
 use crate::stats::EngineError;
@@ -75,6 +76,8 @@ pub struct Request {
     pub spec: SpecRequest,
     /// Every numeric column must be compared: an unmatched one is an error.
     pub strict_columns: bool,
+    /// Units set aside with a reason ([`data::exclusions`]); the lots as read stay whole.
+    pub exclusions: Vec<Exclusion>,
 }
 
 /// Refuses lots that do not line up when every column must be compared.
@@ -105,6 +108,9 @@ pub enum PipelineError {
     /// The specification could not be applied.
     #[error("specification: {0}")]
     Decision(#[from] DecisionError),
+    /// A unit set aside is not in its lot.
+    #[error("{0}")]
+    Exclusion(String),
 }
 
 /// Screens the lots and the matched columns for mistakes ([`data::screen`]).
@@ -145,7 +151,12 @@ pub fn run_owned(
     request: &Request,
     progress: &dyn Progress,
 ) -> Result<(Prepared, Comparison), PipelineError> {
+    if !request.exclusions.is_empty() {
+        *lots = exclusions::apply([&lots[0], &lots[1]], &request.exclusions)
+            .map_err(PipelineError::Exclusion)?;
+    }
     let mut prepared = data::prepare_releasing(lots, &request.selection)?;
+    prepared.exclusions = request.exclusions.clone();
     check_strict(request, &prepared)?;
     let spec = specification_and_counts(request, &prepared)?;
     let notes = screen([&lots[0], &lots[1]], &prepared);
@@ -173,8 +184,14 @@ pub fn run_owned(
 /// loaded for the next run).
 ///
 /// # Errors
-/// Unmatched columns.
+/// Unmatched columns, or units set aside (the window sets none aside yet: refused rather
+/// than ignored).
 pub fn prepare_shared(lots: &[Arc<Lot>; 2], request: &Request) -> Result<Prepared, PipelineError> {
+    if !request.exclusions.is_empty() {
+        return Err(PipelineError::Exclusion(
+            "setting units aside is not available in the window yet".into(),
+        ));
+    }
     let prepared = data::prepare(&lots[0], &lots[1], &request.selection)?;
     check_strict(request, &prepared)?;
     Ok(prepared)

@@ -703,3 +703,141 @@ fn verify_replays_exclusions_selections_and_columns_not_compared() {
     }
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// Units set aside with a reason (by serial number or by row): the lot files stay untouched,
+/// the comparison equals the one of the files without those rows, the exclusions are in the
+/// record and the signature, and verify replays them. Bad exclusion files name file, row and
+/// column.
+#[test]
+fn units_set_aside_with_a_reason_are_recorded_and_replayed() {
+    let dir = tmpdir("aside");
+    std::fs::write(
+        dir.join("aside.csv"),
+        "lot,serial,row,reason\ncandidate,HX40-B-0009,,dropped on the floor before measuring\nreference,,5,gauge out of calibration\n",
+    )
+    .unwrap();
+    let ok = |o: &Output| {
+        assert!(
+            o.status.success(),
+            "{}{}",
+            String::from_utf8_lossy(&o.stdout),
+            String::from_utf8_lossy(&o.stderr)
+        )
+    };
+    ok(&run(
+        &["keygen", "--signer", "Ana Reyes", "--out", "keys"],
+        &dir,
+    ));
+    let before = std::fs::read(dir.join("candidate-route-b.csv")).unwrap();
+    let o = run(
+        &[
+            "compare",
+            "reference-route-a.csv",
+            "candidate-route-b.csv",
+            "--exclude-units",
+            "aside.csv",
+            "--permutations",
+            "0",
+            "--sign",
+            "keys/lotshift-signing-key.pem",
+            "--meaning",
+            "review",
+            "--out",
+            "s.json",
+            "--json",
+            "r.json",
+        ],
+        &dir,
+    );
+    ok(&o);
+    assert_eq!(
+        std::fs::read(dir.join("candidate-route-b.csv")).unwrap(),
+        before
+    );
+    let out = String::from_utf8_lossy(&o.stdout);
+    assert!(
+        out.contains("set aside from lot 2: row 10 (serial HX40-B-0009"),
+        "{out}"
+    );
+    assert!(out.contains("dropped on the floor"), "{out}");
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("r.json")).unwrap()).unwrap();
+    let ex = rec["exclusions"].as_array().unwrap();
+    assert_eq!(ex.len(), 2);
+    assert_eq!(ex[0]["row"], 10);
+    assert_eq!(ex[1]["reason"], "gauge out of calibration");
+    // The same T² as the files with those two rows deleted.
+    let drop_row = |name: &str, row: usize, to: &str| {
+        let text = std::fs::read_to_string(dir.join(name)).unwrap();
+        let kept: Vec<&str> = text
+            .lines()
+            .enumerate()
+            .filter(|(i, _)| i + 1 != row)
+            .map(|(_, l)| l)
+            .collect();
+        std::fs::write(dir.join(to), kept.join("\n") + "\n").unwrap();
+    };
+    drop_row("reference-route-a.csv", 5, "ref-cut.csv");
+    drop_row("candidate-route-b.csv", 10, "cand-cut.csv");
+    let o = run(
+        &[
+            "compare",
+            "ref-cut.csv",
+            "cand-cut.csv",
+            "--permutations",
+            "0",
+            "--json",
+            "-",
+        ],
+        &dir,
+    );
+    let cut: serde_json::Value = serde_json::from_slice(&o.stdout).unwrap();
+    let (a, b) = (
+        rec["hotelling"]["t2"].as_f64().unwrap(),
+        cut["hotelling"]["t2"].as_f64().unwrap(),
+    );
+    assert!((a - b).abs() < 1e-12 * b, "{a} vs {b}");
+    let o = run(
+        &[
+            "verify",
+            "s.json",
+            "--files",
+            "reference-route-a.csv",
+            "candidate-route-b.csv",
+        ],
+        &dir,
+    );
+    ok(&o);
+    for (text, wants) in [
+        (
+            "lot,serial,reason\ncandidate,HX40-B-9999,scratched\n",
+            vec!["aside.csv", "row 2", "no unit of lot", "HX40-B-9999"],
+        ),
+        (
+            "lot,serial,reason\ncandidate,HX40-B-0009,\n",
+            vec!["aside.csv", "row 2", "reason", "needs its reason"],
+        ),
+        (
+            "lot,serial,reason\nbatch 7,HX40-B-0009,scratched\n",
+            vec!["aside.csv", "row 2", "not a lot"],
+        ),
+    ] {
+        std::fs::write(dir.join("aside.csv"), text).unwrap();
+        let o = run(
+            &[
+                "compare",
+                "reference-route-a.csv",
+                "candidate-route-b.csv",
+                "--exclude-units",
+                "aside.csv",
+            ],
+            &dir,
+        );
+        assert_eq!(o.status.code(), Some(2));
+        let err = String::from_utf8_lossy(&o.stderr);
+        for w in wants {
+            assert!(err.contains(w), "{w} in {err}");
+        }
+    }
+    std::fs::remove_dir_all(dir).unwrap();
+}

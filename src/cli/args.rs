@@ -115,6 +115,11 @@ pub struct LotArgs {
     /// from one lot, text in the other, empty) is an error (exit status 2) instead of a note.
     #[arg(long)]
     pub strict_columns: bool,
+    /// Units to set aside, each with its reason: a table with `lot` (reference or candidate),
+    /// `reason`, and `row` or a label column such as the serial number. The lot files stay
+    /// untouched; the exclusions go into the record and the signature.
+    #[arg(long, value_name = "FILE")]
+    pub exclude_units: Option<PathBuf>,
 }
 
 /// Specification limits and equivalence margins.

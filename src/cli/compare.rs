@@ -7,6 +7,11 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
     // The specification first: a bad file stops before the lots are read.
     let spec = a.spec.request()?;
     let mut lots = load_lots(&a.lots)?;
+    let exclusions = match &a.lots.exclude_units {
+        Some(path) => data::exclusions::load_exclusions(path, [&lots[0], &lots[1]])
+            .map_err(|e| e.to_string())?,
+        None => Vec::new(),
+    };
     let request = Request {
         selection: Selection {
             only: a.lots.characteristics.clone(),
@@ -21,6 +26,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
         },
         spec,
         strict_columns: a.lots.strict_columns,
+        exclusions,
     };
     // The unit matrices take the numbers over, and the engine centres them in place: memory
     // holds one copy of the units.

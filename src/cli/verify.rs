@@ -150,6 +150,7 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         settings,
         spec,
         strict_columns: false,
+        exclusions: typed.exclusions.clone(),
     };
     let mut lots = lots;
     let (prepared, c) =

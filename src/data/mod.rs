@@ -3,6 +3,7 @@
 
 mod delimited;
 mod error;
+pub mod exclusions;
 mod header;
 mod pair;
 pub mod screen;
@@ -173,6 +174,40 @@ impl Lot {
             if let ColumnData::Numeric(v) = &mut c.data {
                 *v = Vec::new();
             }
+        }
+    }
+
+    /// The units at `idx` (in that order), every column kept; provenance unchanged.
+    pub fn select_units(&self, idx: &[usize]) -> Lot {
+        let columns = self
+            .columns
+            .iter()
+            .map(|c| {
+                let data = match &c.data {
+                    ColumnData::Numeric(v) => {
+                        ColumnData::Numeric(idx.iter().map(|&i| v[i]).collect())
+                    }
+                    ColumnData::Text(t) => ColumnData::Text(t.select(idx)),
+                };
+                let missing = match &data {
+                    ColumnData::Numeric(v) => v.iter().filter(|x| x.is_nan()).count(),
+                    ColumnData::Text(t) => (0..t.len()).filter(|&i| t.get(i).is_empty()).count(),
+                };
+                Column {
+                    header: c.header.clone(),
+                    name: c.name.clone(),
+                    unit: c.unit.clone(),
+                    position: c.position,
+                    data,
+                    missing,
+                }
+            })
+            .collect();
+        Lot {
+            name: self.name.clone(),
+            provenance: self.provenance.clone(),
+            columns,
+            rows: idx.iter().map(|&i| self.rows[i]).collect(),
         }
     }
 

@@ -102,6 +102,8 @@ pub struct Prepared {
     pub unmatched: Vec<Unmatched>,
     /// Compared columns whose headers are written differently in the two lots.
     pub pairings: Vec<Pairing>,
+    /// Units set aside with a reason before the comparison (not in `lots`).
+    pub exclusions: Vec<super::exclusions::Exclusion>,
 }
 
 impl Prepared {
@@ -141,6 +143,7 @@ pub fn prepare(a: &Lot, b: &Lot, selection: &Selection) -> Result<Prepared, Prep
         lots: [build(a, &idx_a), build(b, &idx_b)],
         unmatched: plan.unmatched,
         pairings: plan.pairings,
+        exclusions: Vec::new(),
     })
 }
 
@@ -166,6 +169,7 @@ pub fn prepare_releasing(
         lots: [first, second],
         unmatched: plan.unmatched,
         pairings: plan.pairings,
+        exclusions: Vec::new(),
     })
 }
 

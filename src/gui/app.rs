@@ -435,6 +435,7 @@ impl LotshiftApp {
                 settings: self.saved.settings.clone(),
                 spec,
                 strict_columns: false,
+                exclusions: Vec::new(),
             };
             self.worker.compare(lots, request);
         }

@@ -445,6 +445,7 @@ pub fn run_comparison(
         settings: settings.clone(),
         spec: SpecRequest::default(),
         strict_columns: false,
+        exclusions: Vec::new(),
     };
     run_comparison_staged(lots, &request, progress, &|_| {})
 }

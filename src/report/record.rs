@@ -152,6 +152,9 @@ pub struct Record {
     /// Four-way outcome of the difference and equivalence tests (null without margins).
     #[serde(default)]
     pub outcome: Option<Outcome>,
+    /// Units set aside before the comparison, each with its row, labels and reason.
+    #[serde(default)]
+    pub exclusions: Vec<crate::data::exclusions::Exclusion>,
 }
 
 impl Record {
@@ -253,6 +256,7 @@ impl Record {
                 .unwrap_or_default(),
             in_spec: c.decision.as_ref().and_then(|d| d.in_spec.clone()),
             outcome: c.decision.as_ref().and_then(|d| d.outcome),
+            exclusions: prepared.map(|p| p.exclusions.clone()).unwrap_or_default(),
         }
     }
 

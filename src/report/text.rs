@@ -50,6 +50,27 @@ pub fn render_text(
         );
     }
     if let Some(p) = prepared {
+        for e in &p.exclusions {
+            let labels: Vec<String> = e
+                .labels
+                .iter()
+                .filter(|(_, v)| !v.is_empty())
+                .take(2)
+                .map(|(h, v)| format!("{h} {v}"))
+                .collect();
+            let _ = writeln!(
+                s,
+                "  set aside from lot {}: row {}{} — {}",
+                e.lot + 1,
+                e.row,
+                if labels.is_empty() {
+                    String::new()
+                } else {
+                    format!(" ({})", labels.join("; "))
+                },
+                e.reason
+            );
+        }
         for (i, pl) in p.lots.iter().enumerate() {
             if !pl.left_out.is_empty() {
                 let all: Vec<String> = pl.left_out.iter().map(|u| u.describe()).collect();
