@@ -458,3 +458,77 @@ fn printed_table_points_match_mpmath() {
         );
     }
 }
+
+/// The large-lot normality checks against scipy on deterministic samples both sides build
+/// with plain IEEE arithmetic (Weyl sequences; tests/fixtures/make_fixtures.py,
+/// `large_normality`): Anderson–Darling A² (scipy.stats.anderson), skewness and excess
+/// kurtosis (scipy.stats.skew, kurtosis), D'Agostino's and Anscombe–Glynn's z and K²
+/// (scipy.stats.skewtest, kurtosistest, normaltest). The A* p-value formula (D'Agostino &
+/// Stephens 1986, Table 4.9, from memory) is checked against scipy's interpolation of the
+/// same tables where that is inside its table range.
+#[test]
+fn large_lot_normality_matches_scipy() {
+    use lotshift::stats::bignormal::large_lot_normality;
+    let fx = fixtures();
+    let gs = [
+        0.6180339887498949,
+        0.4142135623730951,
+        0.7320508075688772,
+        0.2360679774997898,
+        0.6457513110645907,
+        0.1622776601683795,
+        0.3166247903554,
+        0.8284271247461903,
+        0.5825756949558398,
+        0.4721359549995796,
+        0.3588989435406735,
+        0.1231056256176606,
+    ];
+    let u = |i: usize, g: f64| {
+        let v = 0.5 + i as f64 * g;
+        v - v.floor()
+    };
+    for case in fx["large_normality"].as_array().unwrap() {
+        let n = case["n"].as_u64().unwrap() as usize;
+        let family = case["family"].as_str().unwrap();
+        let x: Vec<f64> = (0..n)
+            .map(|i| match family {
+                "irwin_hall" => gs.iter().map(|&g| u(i, g)).sum::<f64>() - 6.0,
+                "uniform" => u(i, gs[0]),
+                _ => -(1.0 - u(i, gs[1])).ln(),
+            })
+            .collect();
+        let r = large_lot_normality(&x).unwrap();
+        let f = |k: &str| case[k].as_f64().unwrap();
+        let close = |got: f64, want: f64, what: &str| {
+            assert!(
+                (got - want).abs() <= 1e-9 * want.abs().max(1e-3),
+                "{family} {n} {what}: {got} vs {want}"
+            )
+        };
+        // A² = −n − S/n with S of order n²: both programs lose about log10(n²) digits to the
+        // cancellation, and ln Φ carries the normal tail function's last digits: A² agrees to
+        // about 1e-9 relative plus 1e-12·n absolute.
+        assert!(
+            (r.anderson_darling - f("anderson")).abs()
+                <= 1e-9 * f("anderson").abs() + 1e-12 * n as f64,
+            "{family} {n} A2: {} vs {}",
+            r.anderson_darling,
+            f("anderson")
+        );
+        close(r.skewness, f("skewness"), "skewness");
+        close(r.excess_kurtosis, f("excess_kurtosis"), "kurtosis");
+        close(r.z_skewness, f("z_skewness"), "z skewness");
+        close(r.z_kurtosis, f("z_kurtosis"), "z kurtosis");
+        close(r.k2, f("k2"), "K2");
+        close(r.k2_p, f("k2_p"), "K2 p");
+        let interp = f("anderson_p_interpolated");
+        if interp > 0.01 && interp < 0.15 {
+            assert!(
+                (r.anderson_darling_p - interp).abs() < 0.005,
+                "{family} {n}: {} vs {interp}",
+                r.anderson_darling_p
+            );
+        }
+    }
+}

@@ -4,10 +4,11 @@
 use nalgebra::{DMatrix, DVector, Matrix2};
 use serde::{Deserialize, Serialize};
 
+use crate::stats::bignormal::{LargeLotNormality, large_lot_normality};
 use crate::stats::checks::{self, BoxM, Mardia, Outlier, UnequalCovariance};
 use crate::stats::hotelling::{self, CONDITION_WARN, Pooled};
 use crate::stats::moments::{ColumnSummary, LotMoments, column_summary};
-use crate::stats::normality::{ShapiroWilk, shapiro_wilk};
+use crate::stats::normality::{MAX_UNITS, ShapiroWilk, shapiro_wilk};
 use crate::stats::permutation::{PermutationResult, permutation_test};
 use crate::stats::{EngineError, discriminant, ellipse, quote_list};
 
@@ -57,6 +58,10 @@ pub struct NormalityRow {
     pub characteristic: String,
     /// Result per lot (absent with fewer than 3 units or no spread).
     pub lots: [Option<ShapiroWilk>; 2],
+    /// For lots above Shapiro–Wilk's range (more than 5,000 units): Anderson–Darling and K²
+    /// with the skewness and excess kurtosis.
+    #[serde(default)]
+    pub large: [Option<LargeLotNormality>; 2],
 }
 
 /// Units far from their own lot's mean (record key `outliers`).
@@ -456,6 +461,11 @@ pub const BOX_M_LEVEL: f64 = 0.001;
 /// Mardia's tests are judged at this fixed level when choosing the test to read (common
 /// practice), whatever alpha the comparison uses.
 pub const MARDIA_LEVEL: f64 = 0.05;
+/// In lots above 5,000 units a Mardia rejection counts only when the departure is material:
+/// skewness `b1,p` at least this (a rule of thumb; common practice, no source)...
+pub const MATERIAL_SKEWNESS: f64 = 0.5;
+/// ...or kurtosis `b2,p` off its normal value `p(p + 2)` by at least this fraction.
+pub const MATERIAL_KURTOSIS: f64 = 0.1;
 /// Lot sizes differing by more than this ratio count as unbalanced (common practice).
 pub const UNBALANCED_RATIO: f64 = 1.2;
 
@@ -536,7 +546,16 @@ pub fn favour(c: &Comparison) -> Favoured {
     let nonnormal: Vec<&str> = c
         .mardia
         .iter()
-        .filter(|m| m.skewness_p < MARDIA_LEVEL || m.kurtosis_p < MARDIA_LEVEL)
+        .filter(|m| {
+            let rejects = m.skewness_p < MARDIA_LEVEL || m.kurtosis_p < MARDIA_LEVEL;
+            // Above Shapiro–Wilk's range every test rejects departures too small to matter:
+            // there the departure must also be material (MATERIAL_SKEWNESS, MATERIAL_KURTOSIS).
+            let n = c.lots.iter().find(|l| l.name == m.lot).map_or(0, |l| l.n);
+            let p = c.characteristics.len() as f64;
+            let material = m.skewness >= MATERIAL_SKEWNESS
+                || (m.kurtosis / (p * (p + 2.0)) - 1.0).abs() >= MATERIAL_KURTOSIS;
+            rejects && (n <= MAX_UNITS || material)
+        })
         .map(|m| m.lot.as_str())
         .collect();
     if cov_differ {
@@ -910,6 +929,12 @@ fn unit_checks(
                 shapiro_wilk(centred[0].column(k).as_slice()),
                 shapiro_wilk(centred[1].column(k).as_slice()),
             ],
+            large: [0, 1].map(|g| {
+                let col = centred[g].column(k);
+                (col.len() > MAX_UNITS)
+                    .then(|| large_lot_normality(col.as_slice()))
+                    .flatten()
+            }),
         })
         .collect();
     // The flagged units' centred values, turned back from their whitened rows.

@@ -552,30 +552,51 @@ fn checks_text(s: &mut String, c: &Comparison, record: Option<&super::Record>) {
     for m in &c.mardia {
         let _ = writeln!(s, "  Mardia, \"{}\": {}", m.lot, mardia_line(m));
     }
-    for row in &c.normality {
-        let cell = |r: &Option<crate::stats::normality::ShapiroWilk>| match r {
-            Some(r) => format!(
-                "W = {}, {}{}",
-                format_sig(r.w, 4),
-                p_text(r.p_value),
-                if r.p_value_validated {
-                    ""
-                } else {
-                    " (n > 5000: p not validated)"
-                }
-            ),
-            None => format!(
-                "n/a (computed for 3 to {} units)",
+    // Characteristics without a Shapiro–Wilk result, folded into one line per lot.
+    for g in 0..2 {
+        let missing: Vec<&str> = c
+            .normality
+            .iter()
+            .filter(|r| r.lots[g].is_none() && r.large[g].is_none())
+            .map(|r| r.characteristic.as_str())
+            .collect();
+        if !missing.is_empty() {
+            let _ = writeln!(
+                s,
+                "  Normality per characteristic, lot {}: not computed for {} (Shapiro–Wilk needs \
+                 3 to {} units with some spread)",
+                g + 1,
+                missing.join(", "),
                 crate::stats::normality::MAX_UNITS
-            ),
+            );
+        }
+    }
+    for row in &c.normality {
+        let cell = |g: usize| -> Option<String> {
+            if let Some(r) = &row.lots[g] {
+                return Some(format!(
+                    "Shapiro–Wilk W = {}, {}",
+                    format_sig(r.w, 4),
+                    p_text(r.p_value)
+                ));
+            }
+            row.large[g].as_ref().map(|l| {
+                format!(
+                    "skewness {}, excess kurtosis {}; Anderson–Darling A* = {}, {}; K² = {}, {}",
+                    format_sig(l.skewness, 3),
+                    format_sig(l.excess_kurtosis, 3),
+                    format_sig(l.anderson_darling_modified, 4),
+                    p_text(l.anderson_darling_p),
+                    format_sig(l.k2, 4),
+                    p_text(l.k2_p)
+                )
+            })
         };
-        let _ = writeln!(
-            s,
-            "  Shapiro–Wilk {:<20} lot 1: {:<28} lot 2: {}",
-            row.characteristic,
-            cell(&row.lots[0]),
-            cell(&row.lots[1])
-        );
+        for g in 0..2 {
+            if let Some(text) = cell(g) {
+                let _ = writeln!(s, "  {:<22} lot {}: {text}", row.characteristic, g + 1);
+            }
+        }
     }
     if let Some(o) = &c.outliers {
         let count = |g: usize| o.units.iter().filter(|u| u.lot == g).count();

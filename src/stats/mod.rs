@@ -1,6 +1,7 @@
 //! Pure statistics on matrices and summary statistics. Nothing here touches files, clocks
 //! or the window.
 
+pub mod bignormal;
 pub mod capability;
 pub mod checks;
 pub mod discriminant;
