@@ -26,7 +26,6 @@ use nalgebra::{DMatrix, DVector};
 use statrs::function::erf;
 
 use super::dist;
-use super::equivalence::increasing_root;
 use super::moments::LotMoments;
 use super::permutation::SplitMix64;
 
@@ -182,7 +181,7 @@ pub fn chi2_quantile(q: f64, k: f64) -> f64 {
         }
         statrs::function::gamma::gamma_lr(0.5 * k, 0.5 * x).ln() - ln_q
     };
-    increasing_root(g, k, 1e-15).unwrap_or(f64::NAN)
+    dist::increasing_root(g, k, 1e-15).unwrap_or(f64::NAN)
 }
 
 fn bissell(c: f64, n: f64, z: f64) -> IndexEstimate {
@@ -347,7 +346,7 @@ impl Default for QmcSettings {
         QmcSettings {
             shifts: 20,
             points: 2000,
-            seed: 0x5EED_0F_1075,
+            seed: 0x005E_ED0F_1075,
         }
     }
 }
@@ -406,7 +405,11 @@ fn primes(k: usize) -> Vec<u64> {
     let mut out = Vec::with_capacity(k);
     let mut c = 2u64;
     while out.len() < k {
-        if out.iter().take_while(|&&q| q * q <= c).all(|&q| c % q != 0) {
+        if out
+            .iter()
+            .take_while(|&&q| q * q <= c)
+            .all(|&q| !c.is_multiple_of(q))
+        {
             out.push(c);
         }
         c += 1;
@@ -593,4 +596,52 @@ pub fn fraction_inside(
         shifts: settings.shifts,
         points: settings.points,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn first_primes() {
+        assert_eq!(primes(10), vec![2, 3, 5, 7, 11, 13, 17, 19, 23, 29]);
+    }
+
+    #[test]
+    fn conditional_samples_stay_inside_their_interval() {
+        // Φ⁻¹(Φ(lo) + w (Φ(hi) − Φ(lo))) runs from lo (w = 0) to hi (w = 1) inside (lo, hi),
+        // in either tail.
+        for &(lo, hi) in &[
+            (-1.0, 2.0),
+            (3.0, 7.5),
+            (-9.0, -6.0),
+            (f64::NEG_INFINITY, 0.4),
+        ] {
+            let (prob, _) = interval_and_sample(lo, hi, None);
+            assert!(prob > 0.0);
+            let mut last = lo;
+            for k in 1..10 {
+                let w = k as f64 / 10.0;
+                let (_, y) = interval_and_sample(lo, hi, Some(w));
+                assert!(y > last && y < hi, "{lo} {hi} {w}: {y}");
+                last = y;
+            }
+            let (_, mid) = interval_and_sample(lo, hi, Some(0.5));
+            let below = if lo > 0.0 {
+                dist::norm_sf(lo) - dist::norm_sf(mid)
+            } else {
+                dist::norm_sf(-mid) - dist::norm_sf(-lo)
+            };
+            assert!((below / prob - 0.5).abs() < 1e-9, "{lo} {hi}");
+        }
+    }
+
+    #[test]
+    fn chi_square_lower_points_invert_the_lower_tail() {
+        for &(q, k) in &[(1e-12, 3.0), (0.025, 9.0), (0.4, 120.0), (0.975, 30.0)] {
+            let x = chi2_quantile(q, k);
+            let lower = statrs::function::gamma::gamma_lr(0.5 * k, 0.5 * x);
+            assert!(((lower - q) / q).abs() < 1e-12, "{q} {k}: {lower}");
+        }
+    }
 }

@@ -1,7 +1,8 @@
 //! Distribution functions with full double precision in the tails.
 //!
-//! statrs provides the special functions we build on (`ln_gamma`, `erfc`) and the densities;
-//! the regularized incomplete beta function is implemented here because the p-values of big
+//! statrs provides the special functions we build on (`ln_gamma`, the incomplete gamma
+//! function) and the densities; the normal tail is implemented here (see [`norm_sf`]), and
+//! so is the regularized incomplete beta function, because the p-values of big
 //! lots need degrees of freedom in the hundreds of thousands, where a continued fraction
 //! capped at a fixed, small number of terms and a prefactor built from differences of large
 //! `ln Γ` values both lose digits.
@@ -13,12 +14,12 @@
 //! `log1p` (as in DiDonato & Morris 1992, ACM TOMS 708, `brcomp`) when `a` or `b` is large.
 
 use statrs::distribution::{Continuous as _, FisherSnedecor, StudentsT};
-use statrs::function::{erf, gamma::ln_gamma};
+use statrs::function::gamma::ln_gamma;
 
 const LN_SQRT_2PI: f64 = 0.918_938_533_204_672_8;
 
 /// `ln Γ(x) − [(x − ½) ln x − x + ½ ln 2π]` for `x ≥ 10` (Stirling's series, error < 1e-16).
-fn stirling_correction(x: f64) -> f64 {
+pub(crate) fn stirling_correction(x: f64) -> f64 {
     let r = 1.0 / x;
     let r2 = r * r;
     // Coefficients B_2k / (2k (2k - 1)).
@@ -29,18 +30,33 @@ fn stirling_correction(x: f64) -> f64 {
                     + r2 * (1.0 / 1188.0 + r2 * (-691.0 / 360_360.0 + r2 * (1.0 / 156.0)))))))
 }
 
-/// `ln[x^a (1−x)^b / B(a, b)]`, with `1 − x` and its logarithm taken from `x` itself so the
-/// prefactor and the continued fraction describe the same point.
-fn ln_beta_front(a: f64, b: f64, x: f64) -> f64 {
+/// `ln[x^a y^b / B(a, b)]` with `y = 1 − x` given by the caller (a `y` near zero keeps its
+/// relative precision, which `1 − x` would not: `ln x` is taken from `x` below ½ and as
+/// `log1p(−y)` above, and `ln y` likewise), free of the cancellation between large
+/// `ln Γ` values: Stirling's series with `log1p` when `a` or `b` is large (DiDonato & Morris
+/// 1992, ACM TOMS 708, `brcomp`).
+pub(crate) fn ln_beta_front(a: f64, b: f64, x: f64, y: f64) -> f64 {
     let (small, large) = (a.min(b), a.max(b));
-    let y = 1.0 - x;
-    let ln_x = x.ln();
-    let ln_y = (-x).ln_1p();
+    let ln_x = if x < 0.5 { x.ln() } else { (-y).ln_1p() };
+    let ln_y = if y < 0.5 { y.ln() } else { (-x).ln_1p() };
     if small >= 10.0 {
         let s = a + b;
-        a * ((x * b - y * a) / a).ln_1p()
-            + b * ((y * a - x * b) / b).ln_1p()
-            + 0.5 * (a.ln() + b.ln() - s.ln())
+        // a ln(x s/a) and b ln(y s/b): by log1p near the Beta mean, where they nearly vanish;
+        // directly away from it, where log1p of a number near −1 would lose digits (the
+        // argument `x s/a − 1` is then rounded to the ulp of 1, not of `x s/a`).
+        let u = (x * b - y * a) / a;
+        let ta = if u.abs() < 0.5 {
+            a * u.ln_1p()
+        } else {
+            a * (ln_x + (b / a).ln_1p())
+        };
+        let v = (y * a - x * b) / b;
+        let tb = if v.abs() < 0.5 {
+            b * v.ln_1p()
+        } else {
+            b * (ln_y + (a / b).ln_1p())
+        };
+        ta + tb + 0.5 * (a.ln() + b.ln() - s.ln())
             - LN_SQRT_2PI
             - stirling_correction(a)
             - stirling_correction(b)
@@ -52,11 +68,9 @@ fn ln_beta_front(a: f64, b: f64, x: f64) -> f64 {
             + small
             + stirling_correction(large)
             - stirling_correction(s);
-        let ln_b = ln_gamma(small) + diff;
-        a * ln_x + b * ln_y - ln_b
+        a * ln_x + b * ln_y - (ln_gamma(small) + diff)
     } else {
-        let ln_b = ln_gamma(a) + ln_gamma(b) - ln_gamma(a + b);
-        a * ln_x + b * ln_y - ln_b
+        a * ln_x + b * ln_y - (ln_gamma(a) + ln_gamma(b) - ln_gamma(a + b))
     }
 }
 
@@ -119,8 +133,15 @@ pub fn inc_beta(a: f64, b: f64, x: f64, y: f64) -> (f64, f64) {
     if y <= 0.0 {
         return (1.0, 0.0);
     }
-    let lower_at = || beta_cf(a, b, x).map(|cf| (ln_beta_front(a, b, x).exp() * cf / a).min(1.0));
-    let upper_at = || beta_cf(b, a, y).map(|cf| (ln_beta_front(b, a, y).exp() * cf / b).min(1.0));
+    // The prefactor takes the complement from the variable the continued fraction is
+    // evaluated at, so the two describe the same point: with `a` in the hundreds of
+    // thousands both are as sensitive to the last bit of that variable as the result is,
+    // and mixing a more precise `y` into the prefactor alone makes the error larger, not
+    // smaller.
+    let lower_at =
+        || beta_cf(a, b, x).map(|cf| (ln_beta_front(a, b, x, 1.0 - x).exp() * cf / a).min(1.0));
+    let upper_at =
+        || beta_cf(b, a, y).map(|cf| (ln_beta_front(b, a, y, 1.0 - y).exp() * cf / b).min(1.0));
     // The fraction converges fast on the side of (a + 1)/(a + b + 2) where the variable lies,
     // and there gives the smaller tail with full relative precision. (Expanding on the other
     // side to use a better-represented variable was tried and abandoned: far from the switch
@@ -131,6 +152,40 @@ pub fn inc_beta(a: f64, b: f64, x: f64, y: f64) -> (f64, f64) {
         lower_at().map_or((f64::NAN, f64::NAN), |l| (l, 1.0 - l))
     } else {
         upper_at().map_or((f64::NAN, f64::NAN), |u| (1.0 - u, u))
+    }
+}
+
+/// `ln(1 − e^l)` for `l ≤ 0`, accurate at both ends (Mächler 2012, "Accurately computing
+/// log(1 − exp(−|a|))").
+pub(crate) fn ln_one_minus_exp(l: f64) -> f64 {
+    if l > -std::f64::consts::LN_2 {
+        (-l.exp_m1()).ln()
+    } else {
+        (-l.exp()).ln_1p()
+    }
+}
+
+/// Logarithms of both tails of the regularized incomplete beta function,
+/// `(ln I_x(a, b), ln(1 − I_x(a, b)))`: the same continued fraction and prefactor as
+/// [`inc_beta`], kept in logarithms so the smaller tail stays finite far below the smallest
+/// positive double. `y` must equal `1 − x`.
+pub(crate) fn ln_inc_beta(a: f64, b: f64, x: f64, y: f64) -> (f64, f64) {
+    if x <= 0.0 {
+        return (f64::NEG_INFINITY, 0.0);
+    }
+    if y <= 0.0 {
+        return (0.0, f64::NEG_INFINITY);
+    }
+    if x < (a + 1.0) / (a + b + 2.0) {
+        beta_cf(a, b, x).map_or((f64::NAN, f64::NAN), |cf| {
+            let l = (ln_beta_front(a, b, x, 1.0 - x) + cf.ln() - a.ln()).min(0.0);
+            (l, ln_one_minus_exp(l))
+        })
+    } else {
+        beta_cf(b, a, y).map_or((f64::NAN, f64::NAN), |cf| {
+            let u = (ln_beta_front(b, a, y, 1.0 - y) + cf.ln() - b.ln()).min(0.0);
+            (ln_one_minus_exp(u), u)
+        })
     }
 }
 
@@ -190,9 +245,110 @@ pub fn t_sf2(t: f64, nu: f64) -> f64 {
     inc_beta(nu / 2.0, 0.5, nu / den, t2 / den).0
 }
 
-/// Upper tail of the standard normal distribution.
+/// Upper tail `P(Z > z)` of the standard normal distribution, with full relative precision
+/// in both tails.
+///
+/// Cody's rational Chebyshev approximations (W. J. Cody 1969, "Rational Chebyshev
+/// approximations for the error function", Math. Comp. 23:631; the coefficients of his
+/// normal-integral routine in ACM TOMS Algorithm 715, 1993), each accurate to about 1e-18:
+/// `½ + z R₁(z²)` for `|z| ≤ 0.66291`, and `e^{−z²/2} R₂(|z|)` and
+/// `e^{−z²/2} (1/√(2π) − R₃(1/z²)/z²)/|z|` beyond, with `e^{−z²/2}` formed as
+/// `e^{−s²/2} e^{−(|z| − s)(|z| + s)/2}` for `s` = `|z|` truncated to a multiple of 1/16
+/// (so `s²` is exact and the rounding of `z²` is not magnified by the exponential).
+///
+/// statrs' `erfc` is not used here: its constants for `x ≥ 0.5` are the decimal forms of
+/// single-precision values in the reference it follows, which puts relative errors of about
+/// 1e-10 into every tail.
+// Cody's coefficients are kept with the digits he published (more than a double holds).
+#[allow(clippy::excessive_precision)]
 pub fn norm_sf(z: f64) -> f64 {
-    0.5 * erf::erfc(z / std::f64::consts::SQRT_2)
+    const A: [f64; 5] = [
+        2.235_252_035_460_683_928_7,
+        161.028_231_068_555_878_81,
+        1_067.689_485_460_370_958_2,
+        18_154.981_253_343_561_249,
+        0.065_682_337_918_207_449_113,
+    ];
+    const B: [f64; 4] = [
+        47.202_581_904_688_241_87,
+        976.098_551_737_776_693_22,
+        10_260.932_208_618_978_205,
+        45_507.789_335_026_729_956,
+    ];
+    const C: [f64; 9] = [
+        0.398_941_512_088_134_667_64,
+        8.883_149_794_388_375_941_2,
+        93.506_656_132_177_855_979,
+        597.270_276_394_800_262_26,
+        2_494.537_585_290_372_671_1,
+        6_848.190_450_536_282_332_6,
+        11_602.651_437_647_350_124,
+        9_842.714_838_383_978_021_8,
+        1.076_557_677_372_019_231_7e-8,
+    ];
+    const D: [f64; 8] = [
+        22.266_688_044_328_115_691,
+        235.387_901_782_624_998_61,
+        1_519.377_599_407_554_805,
+        6_485.558_298_266_760_755,
+        18_615.571_640_885_098_091,
+        34_900.952_721_145_977_266,
+        38_912.003_286_093_271_411,
+        19_685.429_676_859_990_727,
+    ];
+    const P: [f64; 6] = [
+        0.215_898_534_057_956_99,
+        0.127_401_161_160_247_363_9,
+        0.022_235_277_870_649_807,
+        0.001_421_619_193_227_893_466,
+        2.911_287_495_116_879_2e-5,
+        0.023_073_441_764_940_173_03,
+    ];
+    const Q: [f64; 5] = [
+        1.284_260_096_144_911_21,
+        0.468_238_212_480_865_118,
+        0.065_988_137_868_928_551_5,
+        0.003_782_396_332_027_582_44,
+        7.297_515_550_839_662_05e-5,
+    ];
+    const ONE_OVER_SQRT_2PI: f64 = 0.398_942_280_401_432_677_939_946_059_934;
+    if z.is_nan() {
+        return f64::NAN;
+    }
+    let y = z.abs();
+    if y > 40.0 {
+        // The tail is below the smallest subnormal number.
+        return if z > 0.0 { 0.0 } else { 1.0 };
+    }
+    // Horner's rule written out (the evaluation order of Cody's routine).
+    if y <= 0.66291 {
+        let t = z * z;
+        let num = (((A[4] * t + A[0]) * t + A[1]) * t + A[2]) * t + A[3];
+        let den = (((t + B[0]) * t + B[1]) * t + B[2]) * t + B[3];
+        return 0.5 - z * num / den;
+    }
+    // The tail beyond y: e^{−y²/2} times a rational function.
+    let ratio = if y <= 32f64.sqrt() {
+        let num = (((((((C[8] * y + C[0]) * y + C[1]) * y + C[2]) * y + C[3]) * y + C[4]) * y
+            + C[5])
+            * y
+            + C[6])
+            * y
+            + C[7];
+        let den = (((((((y + D[0]) * y + D[1]) * y + D[2]) * y + D[3]) * y + D[4]) * y + D[5]) * y
+            + D[6])
+            * y
+            + D[7];
+        num / den
+    } else {
+        let r = 1.0 / (y * y);
+        let num = ((((P[5] * r + P[0]) * r + P[1]) * r + P[2]) * r + P[3]) * r + P[4];
+        let den = ((((r + Q[0]) * r + Q[1]) * r + Q[2]) * r + Q[3]) * r + Q[4];
+        (ONE_OVER_SQRT_2PI - r * num / den) / y
+    };
+    let s = (y * 16.0).trunc() / 16.0;
+    let tail = (-0.5 * s * s).exp() * (-0.5 * (y - s) * (y + s)).exp() * ratio;
+    if z > 0.0 { tail } else { 1.0 - tail }
 }
 
 /// Upper tail of the chi-square distribution with `k` degrees of freedom.
@@ -242,6 +398,143 @@ fn solve_upper(q: f64, sf: impl Fn(f64) -> f64, pdf: impl Fn(f64) -> f64, start:
         x = next;
     }
     x
+}
+
+/// Brent's root finder (Brent 1973, Algorithms for Minimization without Derivatives, ch. 4,
+/// `zeroin`) on a bracket `[a, b]` with `f(a)`, `f(b)` of opposite signs.
+fn brent(
+    fun: impl Fn(f64) -> f64,
+    mut a: f64,
+    mut b: f64,
+    mut fa: f64,
+    mut fb: f64,
+    rel_tol: f64,
+    abs_tol: f64,
+) -> f64 {
+    let (mut c, mut fc) = (a, fa);
+    let mut d = b - a;
+    let mut e = d;
+    for _ in 0..300 {
+        if (fb > 0.0) == (fc > 0.0) {
+            c = a;
+            fc = fa;
+            d = b - a;
+            e = d;
+        }
+        if fc.abs() < fb.abs() {
+            a = b;
+            b = c;
+            c = a;
+            fa = fb;
+            fb = fc;
+            fc = fa;
+        }
+        let tol = 2.0 * f64::EPSILON * b.abs() + 0.5 * (rel_tol * b.abs() + abs_tol);
+        let xm = 0.5 * (c - b);
+        if xm.abs() <= tol || fb == 0.0 {
+            return b;
+        }
+        if e.abs() >= tol && fa.abs() > fb.abs() {
+            let s = fb / fa;
+            let (mut p, mut q);
+            if a == c {
+                p = 2.0 * xm * s;
+                q = 1.0 - s;
+            } else {
+                let q0 = fa / fc;
+                let r = fb / fc;
+                p = s * (2.0 * xm * q0 * (q0 - r) - (b - a) * (r - 1.0));
+                q = (q0 - 1.0) * (r - 1.0) * (s - 1.0);
+            }
+            if p > 0.0 {
+                q = -q;
+            } else {
+                p = -p;
+            }
+            if 2.0 * p < (3.0 * xm * q - (tol * q).abs()).min((e * q).abs()) {
+                e = d;
+                d = p / q;
+            } else {
+                d = xm;
+                e = d;
+            }
+        } else {
+            d = xm;
+            e = d;
+        }
+        a = b;
+        fa = fb;
+        b += if d.abs() > tol { d } else { tol.copysign(xm) };
+        fb = fun(b);
+        if !fb.is_finite() {
+            // Keep inside the bracket: fall back to its midpoint.
+            b = 0.5 * (a + c);
+            fb = fun(b);
+        }
+    }
+    b
+}
+
+/// Root of an increasing function `g` on `(0, ∞)` that may be `±∞` far from the root:
+/// geometric bracketing from `start`, bisection in `ln x` until both ends are finite and
+/// within a factor 1.01, then Brent to `rel_tol`. `None` when no bracket is found.
+pub(crate) fn increasing_root(g: impl Fn(f64) -> f64, start: f64, rel_tol: f64) -> Option<f64> {
+    let (mut lo, mut hi) = (start, start);
+    let (mut glo, mut ghi) = (g(lo), g(hi));
+    if glo.is_nan() {
+        return None;
+    }
+    let mut steps = 0;
+    while glo > 0.0 {
+        hi = lo;
+        ghi = glo;
+        lo *= 0.5;
+        glo = g(lo);
+        steps += 1;
+        if steps > 2100 || lo == 0.0 || glo.is_nan() {
+            return None;
+        }
+    }
+    while ghi < 0.0 {
+        lo = hi;
+        glo = ghi;
+        hi *= 2.0;
+        ghi = g(hi);
+        steps += 1;
+        if steps > 2100 || hi.is_infinite() || ghi.is_nan() {
+            return None;
+        }
+    }
+    if glo == 0.0 {
+        return Some(lo);
+    }
+    if ghi == 0.0 {
+        return Some(hi);
+    }
+    while hi / lo > 1.01 || !glo.is_finite() || !ghi.is_finite() {
+        let mid = (lo * hi).sqrt();
+        if mid <= lo || mid >= hi {
+            break;
+        }
+        let gm = g(mid);
+        if gm.is_nan() {
+            return None;
+        }
+        if gm == 0.0 {
+            return Some(mid);
+        }
+        if gm < 0.0 {
+            lo = mid;
+            glo = gm;
+        } else {
+            hi = mid;
+            ghi = gm;
+        }
+    }
+    if !(glo.is_finite() && ghi.is_finite()) {
+        return Some(0.5 * (lo + hi));
+    }
+    Some(brent(g, lo, hi, glo, ghi, rel_tol, 0.0))
 }
 
 /// Upper `q` point of F(d1, d2): the `f` with `P(F > f) = q`.
@@ -367,5 +660,45 @@ mod tests {
         }
         let t = t_isf2(0.05 / 8.0, 61.0);
         assert!(rel(t_sf2(t, 61.0), 0.05 / 8.0) < 1e-12);
+    }
+
+    #[test]
+    fn log_tails_agree_with_the_tails() {
+        for &(a, b, x) in &[
+            (2.5, 7.0, 0.35),
+            (40.0, 3.0, 0.9),
+            (0.5, 5e5, 1e-6),
+            (30.0, 20.0, 0.2),
+        ] {
+            let (l, u) = inc_beta(a, b, x, 1.0 - x);
+            let (ll, lu) = ln_inc_beta(a, b, x, 1.0 - x);
+            assert!(
+                rel(ll.exp(), l) < 1e-13 && rel(lu.exp(), u) < 1e-13,
+                "{a} {b} {x}"
+            );
+        }
+        // Far below the smallest double the logarithm stays finite: I_x(a, 1) = x^a.
+        let (ll, _) = ln_inc_beta(400.0, 1.0, 1e-3, 1.0 - 1e-3);
+        assert!(rel(ll, 400.0 * 1e-3_f64.ln()) < 1e-13);
+        // ln(1 − e^l): directly where that is accurate, by its expansion ln(−l) + l/2 + O(l²)
+        // near zero.
+        for l in [-0.5_f64, -1.0, -30.0] {
+            let want = (1.0 - l.exp()).ln();
+            assert!((ln_one_minus_exp(l) - want).abs() <= 1e-15 * want.abs().max(1.0));
+        }
+        for l in [-1e-20_f64, -1e-9] {
+            assert!(rel(ln_one_minus_exp(l), (-l).ln() + 0.5 * l) < 1e-15);
+        }
+    }
+
+    #[test]
+    fn normal_tail_is_symmetric_and_matches_the_identity_at_zero() {
+        assert_eq!(norm_sf(0.0), 0.5);
+        for z in [0.1, 0.66291, 0.7, 2.0, 5.656_854_249_492_38, 6.0, 12.0] {
+            assert!((norm_sf(z) + norm_sf(-z) - 1.0).abs() < 2e-16);
+        }
+        assert_eq!(norm_sf(f64::INFINITY), 0.0);
+        assert_eq!(norm_sf(f64::NEG_INFINITY), 1.0);
+        assert!(norm_sf(f64::NAN).is_nan());
     }
 }

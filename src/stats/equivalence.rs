@@ -22,10 +22,12 @@
 //! # Noncentral F in both far tails
 //! [`ncf_lower_tail`] and [`ncf_upper_tail`] sum the Poisson(λ/2) mixture of incomplete beta
 //! tails (Patnaik 1949; Lenth 1987, Applied Statistics AS 226), each tail with its own series
-//! so that either keeps full relative precision when small. Only one incomplete beta function
-//! is evaluated per call; the others follow from the recurrence
+//! so that either keeps full relative precision when small; a tail above ½ is the complement
+//! of the other series. One incomplete beta function (`dist::ln_inc_beta`) is evaluated
+//! per series; the others follow from the recurrence
 //! `I_x(a + 1, b) = I_x(a, b) − x^a (1 − x)^b / (a B(a, b))` run in the direction in which it
-//! only adds positive terms, in logarithms so nothing underflows. The cost grows like `√λ`
+//! only adds positive terms, on numbers kept with a separate binary exponent so nothing
+//! underflows. [`super::power::ncf_sf`] is this upper tail. The cost grows like `√λ`
 //! (about a millisecond at `λ = 10⁶`), so the series is used up to [`NCF_SERIES_MAX_LAMBDA`];
 //! beyond it Patnaik's two-moment central-F approximation is used (see [`ncf_lower_tail`]).
 
@@ -468,61 +470,8 @@ fn gauss_legendre(n: usize) -> (Vec<f64>, Vec<f64>) {
 /// Patnaik's approximation. At this λ one evaluation takes a few tens of milliseconds.
 pub const NCF_SERIES_MAX_LAMBDA: f64 = 1e9;
 
-const LN_SQRT_2PI: f64 = 0.918_938_533_204_672_8;
-
 /// Each Poisson tail left out is below this fraction of the sum.
 const SERIES_EPS: f64 = 1e-17;
-
-/// `ln Γ(x) − [(x − ½) ln x − x + ½ ln 2π]` for `x ≥ 10` (Stirling's series).
-fn stirling_correction(x: f64) -> f64 {
-    let r = 1.0 / x;
-    let r2 = r * r;
-    r * (1.0 / 12.0
-        + r2 * (-1.0 / 360.0
-            + r2 * (1.0 / 1260.0
-                + r2 * (-1.0 / 1680.0
-                    + r2 * (1.0 / 1188.0 + r2 * (-691.0 / 360_360.0 + r2 * (1.0 / 156.0)))))))
-}
-
-/// `ln[x^a y^b / B(a, b)]` with `y = 1 − x` given, free of the cancellation between large
-/// `ln Γ` values: Stirling's series with `log1p` when `a` or `b` is large (DiDonato & Morris
-/// 1992, ACM TOMS 708, `brcomp`).
-fn ln_beta_front(a: f64, b: f64, x: f64, y: f64) -> f64 {
-    let (small, large) = (a.min(b), a.max(b));
-    let ln_x = if x < 0.5 { x.ln() } else { (-y).ln_1p() };
-    let ln_y = if y < 0.5 { y.ln() } else { (-x).ln_1p() };
-    if small >= 10.0 {
-        let s = a + b;
-        // a ln(x s/a) and b ln(y s/b): by log1p near the Beta mean, where they nearly vanish;
-        // directly away from it, where log1p of a number near −1 would lose digits.
-        let u = (x * b - y * a) / a;
-        let ta = if u.abs() < 0.5 {
-            a * u.ln_1p()
-        } else {
-            a * (ln_x + (b / a).ln_1p())
-        };
-        let v = (y * a - x * b) / b;
-        let tb = if v.abs() < 0.5 {
-            b * v.ln_1p()
-        } else {
-            b * (ln_y + (a / b).ln_1p())
-        };
-        ta + tb + 0.5 * (a.ln() + b.ln() - s.ln())
-            - LN_SQRT_2PI
-            - stirling_correction(a)
-            - stirling_correction(b)
-            + stirling_correction(s)
-    } else if large >= 10.0 {
-        let s = a + b;
-        let diff = (large - 0.5) * (-small / s).ln_1p() - small * s.ln()
-            + small
-            + stirling_correction(large)
-            - stirling_correction(s);
-        a * ln_x + b * ln_y - (ln_gamma(small) + diff)
-    } else {
-        a * ln_x + b * ln_y - (ln_gamma(a) + ln_gamma(b) - ln_gamma(a + b))
-    }
-}
 
 /// `ln P(J = j)` for `J ~ Poisson(h)`, through the deviance form
 /// `−[j ln(j/h) + h − j] − ½ ln(2π j) − c(j)` for `j ≥ 10` (Loader 2000, "Fast and accurate
@@ -537,7 +486,7 @@ fn ln_poisson(j: f64, h: f64) -> f64 {
     }
     let v = (j - h) / h;
     let bd0 = h * ((1.0 + v) * v.ln_1p() - v);
-    -bd0 - 0.5 * (std::f64::consts::TAU * j).ln() - stirling_correction(j)
+    -bd0 - 0.5 * (std::f64::consts::TAU * j).ln() - dist::stirling_correction(j)
 }
 
 /// A positive number `m · 2^e` whose exponent cannot underflow or overflow: the series below
@@ -639,15 +588,15 @@ fn ln_lower_series(x: f64, y: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
         }
     }
     let a = 0.5 * d1 + j;
-    let (i_top, _) = dist::inc_beta(a, b, x, y);
-    if i_top.is_nan() {
+    let (ln_i_top, _) = dist::ln_inc_beta(a, b, x, y);
+    if ln_i_top.is_nan() {
         return f64::NAN;
     }
     let x_inv = 1.0 / x;
     let mut w = Scaled::from_ln(ln_poisson(j, h));
-    let mut i = Scaled::norm(i_top, 0);
+    let mut i = Scaled::from_ln(ln_i_top);
     // G_j = x^a y^b / (a B(a, b)) at a = d1/2 + j.
-    let mut g = Scaled::from_ln(ln_beta_front(a, b, x, y) - a.ln());
+    let mut g = Scaled::from_ln(dist::ln_beta_front(a, b, x, y) - a.ln());
     let mut sum = Scaled::ZERO;
     loop {
         sum = sum.add(w.times(i));
@@ -678,13 +627,13 @@ fn ln_upper_series(x: f64, y: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
         j -= 1.0;
     }
     let a = 0.5 * d1 + j;
-    let (_, q_low) = dist::inc_beta(a, b, x, y);
-    if q_low.is_nan() {
+    let (_, ln_q_low) = dist::ln_inc_beta(a, b, x, y);
+    if ln_q_low.is_nan() {
         return f64::NAN;
     }
     let mut w = Scaled::from_ln(ln_poisson(j, h));
-    let mut q = Scaled::norm(q_low, 0);
-    let mut g = Scaled::from_ln(ln_beta_front(a, b, x, y) - a.ln());
+    let mut q = Scaled::from_ln(ln_q_low);
+    let mut g = Scaled::from_ln(dist::ln_beta_front(a, b, x, y) - a.ln());
     let mut sum = Scaled::ZERO;
     let start = j;
     loop {
@@ -721,50 +670,58 @@ fn ncf_args(f: f64, d1: f64, d2: f64) -> (f64, f64) {
     (d1 * f / den, d2 / den)
 }
 
+/// `ln P(F' ≤ f)` (`upper` false) or `ln P(F' > f)` (`upper` true). Each series gives its own
+/// tail with full relative precision; when that tail is the larger one (above ½), the other
+/// series is summed too and the answer is its complement, so the larger tail is exact to
+/// the last bits as well (a sum of thousands of terms near 1 would be good to some 1e-14
+/// only).
+fn ncf_ln_tail(f: f64, d1: f64, d2: f64, lambda: f64, upper: bool) -> f64 {
+    if f.is_nan() || lambda.is_nan() || !(d1 > 0.0 && d2 > 0.0 && lambda >= 0.0) {
+        return f64::NAN;
+    }
+    let pick = |(lo, up): (f64, f64)| if upper { up } else { lo };
+    if f <= 0.0 {
+        return pick((f64::NEG_INFINITY, 0.0));
+    }
+    if f.is_infinite() {
+        return pick((0.0, f64::NEG_INFINITY));
+    }
+    if lambda > NCF_SERIES_MAX_LAMBDA {
+        let (x, y, a) = patnaik(f, d1, d2, lambda);
+        return pick(dist::ln_inc_beta(a, 0.5 * d2, x, y));
+    }
+    let (x, y) = ncf_args(f, d1, d2);
+    if lambda == 0.0 {
+        return pick(dist::ln_inc_beta(0.5 * d1, 0.5 * d2, x, y));
+    }
+    let (own, other): (SeriesFn, SeriesFn) = if upper {
+        (ln_upper_series, ln_lower_series)
+    } else {
+        (ln_lower_series, ln_upper_series)
+    };
+    let first = own(x, y, d1, d2, lambda);
+    if first.is_nan() || first <= -std::f64::consts::LN_2 {
+        return first;
+    }
+    let complement = other(x, y, d1, d2, lambda);
+    if complement.is_nan() {
+        return first;
+    }
+    dist::ln_one_minus_exp(complement)
+}
+
+type SeriesFn = fn(f64, f64, f64, f64, f64) -> f64;
+
 /// Natural logarithm of the lower tail `P(F' ≤ f)` of the noncentral F distribution with
 /// `d1`, `d2` degrees of freedom and noncentrality `lambda`; finite (and accurate) far
 /// below the smallest positive double.
 pub fn ncf_ln_lower_tail(f: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
-    if f.is_nan() || lambda.is_nan() || !(d1 > 0.0 && d2 > 0.0 && lambda >= 0.0) {
-        return f64::NAN;
-    }
-    if f <= 0.0 {
-        return f64::NEG_INFINITY;
-    }
-    if f.is_infinite() {
-        return 0.0;
-    }
-    if lambda > NCF_SERIES_MAX_LAMBDA {
-        let (x, y, a) = patnaik(f, d1, d2, lambda);
-        return dist::inc_beta(a, 0.5 * d2, x, y).0.ln();
-    }
-    let (x, y) = ncf_args(f, d1, d2);
-    if lambda == 0.0 {
-        return dist::inc_beta(0.5 * d1, 0.5 * d2, x, y).0.ln();
-    }
-    ln_lower_series(x, y, d1, d2, lambda)
+    ncf_ln_tail(f, d1, d2, lambda, false)
 }
 
 /// Natural logarithm of the upper tail `P(F' > f)`; see [`ncf_ln_lower_tail`].
 pub fn ncf_ln_upper_tail(f: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
-    if f.is_nan() || lambda.is_nan() || !(d1 > 0.0 && d2 > 0.0 && lambda >= 0.0) {
-        return f64::NAN;
-    }
-    if f <= 0.0 {
-        return 0.0;
-    }
-    if f.is_infinite() {
-        return f64::NEG_INFINITY;
-    }
-    if lambda > NCF_SERIES_MAX_LAMBDA {
-        let (x, y, a) = patnaik(f, d1, d2, lambda);
-        return dist::inc_beta(a, 0.5 * d2, x, y).1.ln();
-    }
-    let (x, y) = ncf_args(f, d1, d2);
-    if lambda == 0.0 {
-        return dist::inc_beta(0.5 * d1, 0.5 * d2, x, y).1.ln();
-    }
-    ln_upper_series(x, y, d1, d2, lambda)
+    ncf_ln_tail(f, d1, d2, lambda, true)
 }
 
 /// Lower tail (CDF) `P(F' ≤ f)` of the noncentral F distribution, with full relative
@@ -795,143 +752,6 @@ pub fn ncf_upper_tail(f: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
     ncf_ln_upper_tail(f, d1, d2, lambda).exp()
 }
 
-/// Brent's root finder (Brent 1973, Algorithms for Minimization without Derivatives, ch. 4,
-/// `zeroin`) on a bracket `[a, b]` with `f(a)`, `f(b)` of opposite signs.
-fn brent(
-    fun: impl Fn(f64) -> f64,
-    mut a: f64,
-    mut b: f64,
-    mut fa: f64,
-    mut fb: f64,
-    rel_tol: f64,
-    abs_tol: f64,
-) -> f64 {
-    let (mut c, mut fc) = (a, fa);
-    let mut d = b - a;
-    let mut e = d;
-    for _ in 0..300 {
-        if (fb > 0.0) == (fc > 0.0) {
-            c = a;
-            fc = fa;
-            d = b - a;
-            e = d;
-        }
-        if fc.abs() < fb.abs() {
-            a = b;
-            b = c;
-            c = a;
-            fa = fb;
-            fb = fc;
-            fc = fa;
-        }
-        let tol = 2.0 * f64::EPSILON * b.abs() + 0.5 * (rel_tol * b.abs() + abs_tol);
-        let xm = 0.5 * (c - b);
-        if xm.abs() <= tol || fb == 0.0 {
-            return b;
-        }
-        if e.abs() >= tol && fa.abs() > fb.abs() {
-            let s = fb / fa;
-            let (mut p, mut q);
-            if a == c {
-                p = 2.0 * xm * s;
-                q = 1.0 - s;
-            } else {
-                let q0 = fa / fc;
-                let r = fb / fc;
-                p = s * (2.0 * xm * q0 * (q0 - r) - (b - a) * (r - 1.0));
-                q = (q0 - 1.0) * (r - 1.0) * (s - 1.0);
-            }
-            if p > 0.0 {
-                q = -q;
-            } else {
-                p = -p;
-            }
-            if 2.0 * p < (3.0 * xm * q - (tol * q).abs()).min((e * q).abs()) {
-                e = d;
-                d = p / q;
-            } else {
-                d = xm;
-                e = d;
-            }
-        } else {
-            d = xm;
-            e = d;
-        }
-        a = b;
-        fa = fb;
-        b += if d.abs() > tol { d } else { tol.copysign(xm) };
-        fb = fun(b);
-        if !fb.is_finite() {
-            // Keep inside the bracket: fall back to its midpoint.
-            b = 0.5 * (a + c);
-            fb = fun(b);
-        }
-    }
-    b
-}
-
-/// Root of an increasing function `g` on `(0, ∞)` that may be `±∞` far from the root:
-/// geometric bracketing from `start`, bisection in `ln x` until both ends are finite and
-/// within a factor 1.01, then Brent to `rel_tol`. `None` when no bracket is found.
-pub(crate) fn increasing_root(g: impl Fn(f64) -> f64, start: f64, rel_tol: f64) -> Option<f64> {
-    let (mut lo, mut hi) = (start, start);
-    let (mut glo, mut ghi) = (g(lo), g(hi));
-    if glo.is_nan() {
-        return None;
-    }
-    let mut steps = 0;
-    while glo > 0.0 {
-        hi = lo;
-        ghi = glo;
-        lo *= 0.5;
-        glo = g(lo);
-        steps += 1;
-        if steps > 2100 || lo == 0.0 || glo.is_nan() {
-            return None;
-        }
-    }
-    while ghi < 0.0 {
-        lo = hi;
-        glo = ghi;
-        hi *= 2.0;
-        ghi = g(hi);
-        steps += 1;
-        if steps > 2100 || hi.is_infinite() || ghi.is_nan() {
-            return None;
-        }
-    }
-    if glo == 0.0 {
-        return Some(lo);
-    }
-    if ghi == 0.0 {
-        return Some(hi);
-    }
-    while hi / lo > 1.01 || !glo.is_finite() || !ghi.is_finite() {
-        let mid = (lo * hi).sqrt();
-        if mid <= lo || mid >= hi {
-            break;
-        }
-        let gm = g(mid);
-        if gm.is_nan() {
-            return None;
-        }
-        if gm == 0.0 {
-            return Some(mid);
-        }
-        if gm < 0.0 {
-            lo = mid;
-            glo = gm;
-        } else {
-            hi = mid;
-            ghi = gm;
-        }
-    }
-    if !(glo.is_finite() && ghi.is_finite()) {
-        return Some(0.5 * (lo + hi));
-    }
-    Some(brent(g, lo, hi, glo, ghi, rel_tol, 0.0))
-}
-
 /// The `q` point of the noncentral F: the `f` with `P(F' ≤ f) = q`, solved on the log of the
 /// smaller tail (Brent, relative tolerance 1e-14 in `f`). NaN when `q ∉ (0, 1)`.
 pub fn ncf_quantile(q: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
@@ -941,10 +761,10 @@ pub fn ncf_quantile(q: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
     let mean = (d1 + lambda) / d1 * if d2 > 2.0 { d2 / (d2 - 2.0) } else { 1.0 };
     let root = if q <= 0.5 {
         let ln_q = q.ln();
-        increasing_root(|f| ncf_ln_lower_tail(f, d1, d2, lambda) - ln_q, mean, 1e-14)
+        dist::increasing_root(|f| ncf_ln_lower_tail(f, d1, d2, lambda) - ln_q, mean, 1e-14)
     } else {
         let ln_q = (-q).ln_1p();
-        increasing_root(|f| ln_q - ncf_ln_upper_tail(f, d1, d2, lambda), mean, 1e-14)
+        dist::increasing_root(|f| ln_q - ncf_ln_upper_tail(f, d1, d2, lambda), mean, 1e-14)
     };
     root.unwrap_or(f64::NAN)
 }
@@ -1003,7 +823,8 @@ pub fn distance_upper_bound(
     let scale = (n1 as f64 * n2 as f64) / (n1 + n2) as f64;
     // g(λ) = ln α − ln CDF(F; λ) increases with λ.
     let start = (d1 * f).max(1.0);
-    let lambda = increasing_root(|l| ln_alpha - ncf_ln_lower_tail(f, d1, d2, l), start, 1e-13)?;
+    let lambda =
+        dist::increasing_root(|l| ln_alpha - ncf_ln_lower_tail(f, d1, d2, l), start, 1e-13)?;
     Some((lambda / scale).sqrt())
 }
 
@@ -1169,4 +990,63 @@ pub fn t2_equivalence_units_per_lot(
     smallest_n(p / 2 + 2, |n| {
         t2_equivalence_power(p, n, n, delta, epsilon, alpha).is_ok_and(|v| v >= target)
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn gauss_legendre_is_exact_for_polynomials() {
+        // An n-point Gauss–Legendre rule integrates x^k exactly for k ≤ 2n − 1:
+        // ∫_{−1}^{1} x^k dx = 2/(k + 1) for even k, 0 for odd k.
+        let (nodes, weights) = gauss_legendre(20);
+        assert!((weights.iter().sum::<f64>() - 2.0).abs() < 1e-14);
+        for k in 0..40 {
+            let got: f64 = nodes.iter().zip(&weights).map(|(x, w)| w * x.powi(k)).sum();
+            let want = if k % 2 == 0 {
+                2.0 / (k as f64 + 1.0)
+            } else {
+                0.0
+            };
+            assert!((got - want).abs() < 1e-14, "x^{k}: {got}");
+        }
+    }
+
+    #[test]
+    fn poisson_weights_sum_to_one_and_match_the_direct_form() {
+        // Σ_j P(J = j) = 1; for moderate j the deviance form equals −h + j ln h − ln j!.
+        for h in [0.3_f64, 7.5, 42.0, 900.0] {
+            let top = (h + 40.0 * h.sqrt() + 40.0) as usize;
+            let total: f64 = (0..=top).map(|j| ln_poisson(j as f64, h).exp()).sum();
+            assert!((total - 1.0).abs() < 1e-13, "h = {h}: {total}");
+            for j in [10.0, 25.0, 60.0] {
+                let direct = -h + j * f64::ln(h) - ln_gamma(j + 1.0);
+                assert!((ln_poisson(j, h) - direct).abs() < 1e-12 * direct.abs().max(1.0));
+            }
+        }
+    }
+
+    #[test]
+    fn scaled_numbers_keep_values_beyond_the_double_range() {
+        // exp(−1000) · exp(−1000) = exp(−2000), far below the smallest double, and adding a
+        // number 2^-1100 times smaller changes nothing.
+        let a = Scaled::from_ln(-1000.0);
+        assert!((a.times(a).ln() + 2000.0).abs() < 1e-12);
+        let b = a.add(Scaled::from_ln(-1000.0 - 1100.0 * std::f64::consts::LN_2));
+        assert_eq!(b.ln(), a.ln());
+        let c = a.add(a);
+        assert!((c.ln() - (-1000.0 + std::f64::consts::LN_2)).abs() < 1e-12);
+        assert!(
+            (Scaled::from_ln(0.3).mul(2.0).ln() - (0.3 + std::f64::consts::LN_2)).abs() < 1e-15
+        );
+    }
+
+    #[test]
+    fn one_sided_t_tails_add_to_one() {
+        for &(t, nu) in &[(0.0, 5.0), (1.3, 12.0), (-2.2, 40.0), (8.0, 3.0)] {
+            assert!((t_sf(t, nu) + t_sf(-t, nu) - 1.0).abs() < 1e-15);
+        }
+        assert_eq!(t_sf(0.0, 7.0), 0.5);
+    }
 }

@@ -2,54 +2,21 @@
 //!
 //! # Formula
 //! Under a true mean shift δ with common covariance Σ, `F ~ F'(p, N − p − 1, λ)` with
-//! `λ = n1 n2/N · δᵀ Σ⁻¹ δ`. The noncentral F tail is a Poisson(λ/2)-weighted sum of
-//! incomplete beta tails (Patnaik 1949; the series of Lenth 1987, Applied Statistics AS 226),
-//! `P(F' > f) = Σⱼ e^{−λ/2} (λ/2)ʲ/j! · P(Beta(p/2 + j, ν/2) > x)`, `x = p f/(p f + ν)`,
-//! summed outward from the Poisson mode until the remaining weight is negligible.
-
-use statrs::function::gamma::ln_gamma;
+//! `λ = n1 n2/N · δᵀ Σ⁻¹ δ`. The noncentral F tail is the Poisson(λ/2)-weighted sum of
+//! incomplete beta tails (Patnaik 1949; Lenth 1987, Applied Statistics AS 226), evaluated by
+//! [`super::equivalence::ncf_upper_tail`], the one noncentral F of the crate (both tails with
+//! full relative precision).
 
 use super::dist;
+use super::equivalence;
 
-/// Upper tail `P(F' > f)` of the noncentral F distribution.
+/// Upper tail `P(F' > f)` of the noncentral F distribution (1 for `f ≤ 0` or NaN); see
+/// [`equivalence::ncf_upper_tail`].
 pub fn ncf_sf(f: f64, d1: f64, d2: f64, lambda: f64) -> f64 {
     if !crate::stats::positive(f) {
         return 1.0;
     }
-    if lambda <= 0.0 {
-        return dist::f_sf(f, d1, d2);
-    }
-    let den = d1 * f + d2;
-    let (x, y) = (d1 * f / den, d2 / den);
-    let h = lambda / 2.0;
-    let term = |j: f64| dist::inc_beta(d1 / 2.0 + j, d2 / 2.0, x, y).1;
-    let j0 = h.floor();
-    let w0 = (-h + j0 * h.ln() - ln_gamma(j0 + 1.0)).exp();
-    let mut sum = w0 * term(j0);
-    let mut weight_seen = w0;
-    // Forward from the mode.
-    let (mut j, mut w) = (j0, w0);
-    loop {
-        w *= h / (j + 1.0);
-        j += 1.0;
-        sum += w * term(j);
-        weight_seen += w;
-        if w < 1e-18 * weight_seen.max(1e-300) && j > j0 + 5.0 || j > j0 + 1e6 {
-            break;
-        }
-    }
-    // Backward from the mode.
-    let (mut j, mut w) = (j0, w0);
-    while j > 0.0 {
-        w *= j / h;
-        j -= 1.0;
-        let t = w * term(j);
-        sum += t;
-        if w < 1e-18 * weight_seen || t < 1e-18 * sum {
-            break;
-        }
-    }
-    sum.min(1.0)
+    equivalence::ncf_upper_tail(f, d1, d2, lambda.max(0.0))
 }
 
 /// Power of the level-`alpha` T² test with `n1`, `n2` units, `p` characteristics and a true
