@@ -83,11 +83,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
         }
     }
     if let Some(html_path) = &a.html {
-        let value = serde_json::to_value(&record).map_err(|e| e.to_string())?;
-        let sig = signed
-            .as_ref()
-            .map(|s| serde_json::to_value(&s.signature).unwrap_or_default());
-        let html = html::render_html(&value, sig.as_ref());
+        let html = html::render_html(&record, signed.as_ref().map(|s| &s.signature));
         report::write_atomic(html_path, html.as_bytes())
             .map_err(|e| format!("the report was not written: {e}"))?;
     }

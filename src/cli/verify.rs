@@ -92,8 +92,11 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
     }
     .map_err(|e| e.to_string())?;
     let characteristics = typed.characteristics.clone();
-    let settings = typed.settings.clone();
-    let recorded_spec = typed.specification.clone();
+    let settings = Settings::from(&typed.settings);
+    let recorded_spec = typed
+        .specification
+        .as_ref()
+        .map(crate::analysis::decision::Specification::from);
     let spec = match (&a.spec, recorded_spec) {
         (None, recorded) => SpecRequest {
             recorded,
@@ -150,7 +153,7 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         settings,
         spec,
         strict_columns: false,
-        exclusions: typed.exclusions.clone(),
+        exclusions: typed.exclusions.iter().map(Into::into).collect(),
     };
     let mut lots = lots;
     let (prepared, c) =
@@ -166,20 +169,41 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
 }
 
 pub(super) fn report_html(a: ReportArgs) -> CliResult {
+    use serde::Deserialize as _;
     let text =
         std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
     let doc: serde_json::Value =
         serde_json::from_str(&text).map_err(|e| format!("{}: not JSON: {e}", a.file.display()))?;
+    // Typed: a file that does not parse as a record is refused with the reason, never drawn
+    // with the missing parts left out.
     let html = if doc.get("signature").is_some() && doc.get("record").is_some() {
+        let record = Record::deserialize(&doc["record"]).map_err(|e| {
+            format!(
+                "{}: the signed summary does not hold a comparison record lotshift can read: {e}",
+                a.file.display()
+            )
+        })?;
+        let signature = sign::SignatureBlock::deserialize(&doc["signature"]).map_err(|e| {
+            format!(
+                "{}: the signed summary's signature block cannot be read: {e}",
+                a.file.display()
+            )
+        })?;
         match sign::verify_signature(&text, None) {
             Ok(_) => eprintln!(
                 "lotshift: the signature verifies (use lotshift verify to check the lot files too)"
             ),
             Err(e) => eprintln!("lotshift: warning: {e}"),
         }
-        html::render_html(&doc["record"], Some(&doc["signature"]))
+        html::render_html(&record, Some(&signature))
     } else if doc.get("schema").and_then(|s| s.as_str()) == Some(report::SCHEMA) {
-        html::render_html(&doc, None)
+        let record = Record::deserialize(&doc).map_err(|e| {
+            format!(
+                "{}: not a comparison record lotshift can read: {e}",
+                a.file.display()
+            )
+        })?;
+        html::render_html(&record, None)
     } else {
         return Err(format!(
             "{}: neither a comparison record nor a signed summary",

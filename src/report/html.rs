@@ -2,16 +2,21 @@
 //! tables, inline SVG charts (intervals, discriminant scores, the most separating pair's
 //! ellipses), the signature manifestation and the caution; print styles for A4 and Letter.
 //!
-//! It reads the record as JSON, so it renders any record of this schema, signed or not.
+//! It reads the typed [`Record`] (a file that does not parse as one is refused by the caller,
+//! never drawn half empty); the pair chart's ellipses and the score histogram's densities come
+//! from the analysis (`analysis::pair_geometry`, `ScoreHistogram::density`), as in the window.
 
 use std::fmt::Write as _;
 
-use nalgebra::Matrix2;
-use serde_json::Value;
-
-use super::CAUTION;
+use super::sections::{EquivalenceRecord, MarginFromRecord};
+use super::sign::SignatureBlock;
+use super::{CAUTION, Record};
+use crate::analysis::decision::{MarginRule, Outcome};
+use crate::analysis::{FavouredTest, ScoreHistogram, pair_geometry};
 use crate::format::{format_confidence, format_p, format_sig};
-use crate::stats::ellipse;
+
+/// Coverage of the data ellipses in the pair chart: the window's default.
+const DATA_COVERAGE: f64 = 0.95;
 
 fn esc(s: &str) -> String {
     s.replace('&', "&amp;")
@@ -20,23 +25,9 @@ fn esc(s: &str) -> String {
         .replace('"', "&quot;")
 }
 
-fn num(v: &Value) -> f64 {
-    v.as_f64().unwrap_or(f64::NAN)
-}
-
-fn text(v: &Value) -> String {
-    v.as_str().map(str::to_string).unwrap_or_default()
-}
-
-fn nums(v: &Value) -> Vec<f64> {
-    v.as_array()
-        .map(|a| a.iter().map(num).collect())
-        .unwrap_or_default()
-}
-
-fn matrix2(v: &Value, i: usize, j: usize) -> Matrix2<f64> {
-    let g = |a: usize, b: usize| num(&v[a][b]);
-    Matrix2::new(g(i, i), g(i, j), g(j, i), g(j, j))
+/// The name of lot `i` (0 reference, 1 candidate), empty when the record has no such lot.
+fn lot_name(r: &Record, i: usize) -> String {
+    r.lots.get(i).map(|l| l.name.clone()).unwrap_or_default()
 }
 
 const STYLE: &str = r#"
@@ -77,11 +68,10 @@ fn page_footer() -> String {
 }
 
 /// Renders a record (`signature` absent) or a signed summary as one HTML page.
-pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
+pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> String {
     let r = record;
     let mut h = String::new();
-    let lots = r["lots"].as_array().cloned().unwrap_or_default();
-    let lot_name = |i: usize| lots.get(i).map(|l| text(&l["name"])).unwrap_or_default();
+    let lot_name = |i: usize| lot_name(r, i);
     let _ = write!(
         h,
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\"><title>lotshift comparison: {} vs {}</title><style>{STYLE}{}</style></head><body>\n",
@@ -94,19 +84,19 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
         "<h1>Lot comparison: {} (reference) vs {} (candidate)</h1><div class=\"muted\">{} {}; analysed {}; difference = reference minus candidate</div>",
         esc(&lot_name(0)),
         esc(&lot_name(1)),
-        esc(&text(&r["software"]["name"])),
-        esc(&text(&r["software"]["version"])),
-        esc(r["analysed_at"].as_str().unwrap_or("(time not recorded)"))
+        esc(&r.software.name),
+        esc(&r.software.version),
+        esc(r.analysed_at.as_deref().unwrap_or("(time not recorded)"))
     );
-    let differ = r["hotelling"]["differ"].as_bool().unwrap_or(false);
+    let differ = r.hotelling.differ;
     let _ = writeln!(
         h,
         "<h2>Verdict</h2><div class=\"verdict {}\" id=\"verdict\">{}</div>",
         if differ { "differ" } else { "same" },
-        esc(&text(&r["verdict"]))
+        esc(&r.verdict)
     );
-    for w in r["warnings"].as_array().into_iter().flatten() {
-        let _ = writeln!(h, "<p><b>Warning:</b> {}</p>", esc(&text(w)));
+    for w in &r.warnings {
+        let _ = writeln!(h, "<p><b>Warning:</b> {}</p>", esc(w));
     }
     decision_section(&mut h, r);
     lots_section(&mut h, r);
@@ -115,7 +105,7 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
     let _ = writeln!(
         h,
         "<h2>Intervals for the mean differences ({}% confidence)</h2>",
-        format_confidence(num(&r["alpha"]))
+        format_confidence(r.alpha)
     );
     intervals_table(&mut h, r);
     h.push_str(&interval_chart(r));
@@ -130,12 +120,12 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
             let _ = writeln!(
                 h,
                 "<div class=\"signature\" id=\"signature\"><b>Electronically signed</b><br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b><br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of the record and this signature manifestation. Check it with <code>lotshift verify SUMMARY.json --files REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
-                esc(&text(&s["signer"])),
-                esc(&text(&s["signed_at"])),
-                esc(&text(&s["meaning"])),
-                esc(&text(&s["key_fingerprint"])),
-                esc(&text(&s["algorithm"])),
-                esc(&text(&s["canonicalization"]))
+                esc(&s.signer),
+                esc(&s.signed_at),
+                esc(&s.meaning),
+                esc(&s.key_fingerprint),
+                esc(&s.algorithm),
+                esc(&s.canonicalization)
             );
         }
         None => {
@@ -149,25 +139,21 @@ pub fn render_html(record: &Value, signature: Option<&Value>) -> String {
     h
 }
 
-/// Specification, equivalence and capability, read typed from the record (absent keys, as in
-/// records made before specifications existed, give a one-line note).
-fn decision_section(h: &mut String, r: &Value) {
-    use crate::analysis::decision::{
-        CapabilityRow, Equivalence, InSpec, MarginFrom, Outcome, Specification,
-    };
-    fn typed<T: serde::de::DeserializeOwned>(v: &Value) -> Option<T> {
-        serde_json::from_value(v.clone()).ok()
-    }
-    let spec: Option<Specification> = typed(&r["specification"]);
-    let Some(spec) = spec else {
+/// Specification, equivalence and capability (a record without a specification, as records
+/// made before specifications existed, gives a one-line note).
+fn decision_section(h: &mut String, r: &Record) {
+    let Some(spec) = &r.specification else {
         h.push_str(
             "<p class=\"muted\" id=\"equivalence\">Equivalence not assessed: it needs margins set in the quality plan.</p>\n",
         );
         return;
     };
-    let outcome: Option<Outcome> = typed(&r["outcome"]);
-    if let Some(o) = outcome {
-        let _ = writeln!(h, "<p id=\"outcome\"><b>{}.</b></p>", esc(o.words()));
+    if let Some(o) = r.outcome {
+        let _ = writeln!(
+            h,
+            "<p id=\"outcome\"><b>{}.</b></p>",
+            esc(Outcome::from(o).words())
+        );
     }
     let source = match (&spec.file, &spec.sha256) {
         (Some(f), Some(s)) => format!("{} (SHA-256 <code>{}</code>)", esc(f), esc(s)),
@@ -176,7 +162,7 @@ fn decision_section(h: &mut String, r: &Value) {
     let _ = writeln!(
         h,
         "<h2>Specification and margins</h2><div class=\"muted\">{source}; {}. Margins are the allowed candidate minus reference difference, set in the quality plan before the data are seen.</div>",
-        esc(&spec.rule.describe())
+        esc(&MarginRule::from(spec.rule).describe())
     );
     h.push_str("<table><tr><th class=\"name\">characteristic</th><th>lower</th><th>target</th><th>upper</th><th>margin</th></tr>\n");
     let opt = |v: Option<f64>| v.map_or("–".to_string(), |v| format_sig(v, 6));
@@ -186,7 +172,7 @@ fn decision_section(h: &mut String, r: &Value) {
                 "[{}, {}]{}",
                 format_sig(m[0], 4),
                 format_sig(m[1], 4),
-                if e.margin_from == Some(MarginFrom::Rule) {
+                if e.margin_from == Some(MarginFromRecord::Rule) {
                     " (rule)"
                 } else {
                     ""
@@ -203,8 +189,7 @@ fn decision_section(h: &mut String, r: &Value) {
         );
     }
     h.push_str("</table>\n");
-    let eq: Option<Equivalence> = typed(&r["equivalence"]);
-    if let Some(eq) = eq {
+    if let Some(eq) = &r.equivalence {
         if !eq.per_characteristic.is_empty() {
             let _ = writeln!(
                 h,
@@ -234,7 +219,7 @@ fn decision_section(h: &mut String, r: &Value) {
                 );
             }
             h.push_str("</table>\n");
-            h.push_str(&margin_chart(&eq));
+            h.push_str(&margin_chart(eq));
         }
         if let Some(m) = &eq.multivariate {
             let _ = writeln!(
@@ -263,16 +248,14 @@ fn decision_section(h: &mut String, r: &Value) {
             );
         }
     }
-    let cap: Vec<CapabilityRow> = typed(&r["capability"]).unwrap_or_default();
+    let cap = &r.capability;
     if !cap.is_empty() {
-        let lots = r["lots"].as_array().cloned().unwrap_or_default();
-        let lot_name = |i: usize| lots.get(i).map(|l| text(&l["name"])).unwrap_or_default();
         let _ = writeln!(
             h,
             "<h2>Capability ({}% intervals; expected ppm under a normal model)</h2><table id=\"capability\"><tr><th class=\"name\">characteristic</th><th class=\"name\">lot</th><th>index</th><th>value [interval]</th><th>Cp [interval]</th><th>expected ppm</th><th>observed out of spec</th></tr>",
-            format_confidence(num(&r["alpha"]))
+            format_confidence(r.alpha)
         );
-        for row in &cap {
+        for row in cap {
             for (g, l) in row.lots.iter().enumerate() {
                 let cp = match (l.cp, l.cp_interval) {
                     (Some(v), Some(i)) => format!(
@@ -291,7 +274,7 @@ fn decision_section(h: &mut String, r: &Value) {
                     } else {
                         String::new()
                     },
-                    esc(&lot_name(g)),
+                    esc(&lot_name(r, g)),
                     esc(&l.index),
                     format_sig(l.cpk, 4),
                     format_sig(l.cpk_interval[0], 4),
@@ -304,9 +287,7 @@ fn decision_section(h: &mut String, r: &Value) {
         }
         h.push_str("</table>\n");
     }
-    let ins: Option<InSpec> = typed(&r["in_spec"]);
-    if let Some(ins) = ins {
-        let lots = r["lots"].as_array().cloned().unwrap_or_default();
+    if let Some(ins) = &r.in_spec {
         let _ = writeln!(
             h,
             "<h2>Inside every limit at once</h2><div class=\"muted\">Over {} (normal model, Genz's quasi-Monte Carlo; ± three standard errors)</div><table><tr><th class=\"name\">lot</th><th>expected inside</th><th>expected out (ppm)</th><th>observed inside</th></tr>",
@@ -316,7 +297,7 @@ fn decision_section(h: &mut String, r: &Value) {
             let _ = writeln!(
                 h,
                 "<tr><td class=\"name\">{}</td><td>{} ± {}</td><td>{}</td><td>{}</td></tr>",
-                esc(&lots.get(g).map(|l| text(&l["name"])).unwrap_or_default()),
+                esc(&lot_name(r, g)),
                 format_sig(l.expected, 8),
                 format_sig(l.error, 2),
                 format_sig(1e6 * (1.0 - l.expected).max(0.0), 4),
@@ -329,7 +310,7 @@ fn decision_section(h: &mut String, r: &Value) {
 
 /// Each characteristic's 1 − 2 alpha interval against its margin, every row scaled to its own
 /// margin (−1 and +1 are the margin's ends for a symmetric margin).
-fn margin_chart(eq: &crate::analysis::decision::Equivalence) -> String {
+fn margin_chart(eq: &EquivalenceRecord) -> String {
     let rows = &eq.per_characteristic;
     let half = |m: [f64; 2]| (-m[0]).max(m[1]);
     let mut lo: f64 = -1.0;
@@ -381,110 +362,155 @@ fn margin_chart(eq: &crate::analysis::decision::Equivalence) -> String {
     s
 }
 
-fn lots_section(h: &mut String, r: &Value) {
+fn lots_section(h: &mut String, r: &Record) {
     let _ = writeln!(
         h,
         "<h2>Lots</h2><table><tr><th class=\"name\">lot</th><th class=\"name\">file</th><th class=\"name\">SHA-256</th><th>units read</th><th>left out (missing cells)</th><th>compared</th></tr>"
     );
-    for l in r["lots"].as_array().into_iter().flatten() {
+    for l in &r.lots {
         let _ = writeln!(
             h,
             "<tr><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\"><code>{}</code></td><td>{}</td><td>{}</td><td>{}</td></tr>",
-            esc(&text(&l["name"])),
-            esc(&text(&l["file"])),
-            esc(&text(&l["sha256"])),
-            l["n_read"],
-            l["n_excluded"],
-            l["n"]
+            esc(&l.name),
+            esc(l.file.as_deref().unwrap_or_default()),
+            esc(l.sha256.as_deref().unwrap_or_default()),
+            l.n_read,
+            l.n_excluded,
+            l.n
         );
     }
     h.push_str("</table>\n");
-    for u in r["unmatched"].as_array().into_iter().flatten() {
+    for u in &r.unmatched {
         let _ = writeln!(
             h,
             "<div class=\"muted\">Not compared: \"{}\" ({})</div>",
-            esc(&text(&u["column"])),
-            esc(&text(&u["why"]))
+            esc(&u.column),
+            esc(&u.why)
         );
+    }
+    for m in &r.pairings {
+        let _ = writeln!(
+            h,
+            "<div class=\"muted\">Paired by name: \"{}\" (reference) with \"{}\" (candidate)</div>",
+            esc(&m.reference),
+            esc(&m.candidate)
+        );
+    }
+    let labels = |l: &[(String, String)]| {
+        l.iter()
+            .filter(|(_, v)| !v.is_empty())
+            .take(2)
+            .map(|(k, v)| format!("{} {}", esc(k), esc(v)))
+            .collect::<Vec<_>>()
+            .join("; ")
+    };
+    if !r.exclusions.is_empty() {
+        h.push_str("<p id=\"exclusions\"><b>Units set aside before the comparison</b></p><table><tr><th class=\"name\">lot</th><th>row</th><th class=\"name\">labels</th><th class=\"name\">reason</th></tr>\n");
+        for e in &r.exclusions {
+            let _ = writeln!(
+                h,
+                "<tr><td class=\"name\">{}</td><td>{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td></tr>",
+                esc(r.lots.get(e.lot).map_or("", |l| l.name.as_str())),
+                e.row,
+                labels(&e.labels),
+                esc(&e.reason)
+            );
+        }
+        h.push_str("</table>\n");
+    }
+    for l in &r.lots {
+        for u in &l.left_out {
+            let _ = writeln!(
+                h,
+                "<div class=\"muted\">Left out of \"{}\" for a missing cell: row {} ({}; missing {})</div>",
+                esc(&l.name),
+                u.row,
+                labels(&u.labels),
+                esc(&u.missing.join(", "))
+            );
+        }
     }
 }
 
-fn test_section(h: &mut String, r: &Value) {
-    let t = &r["hotelling"];
+fn test_section(h: &mut String, r: &Record) {
+    let t = &r.hotelling;
     let _ = writeln!(
         h,
         "<h2>Hotelling's two-sample T² test (alpha {})</h2><table><tr><th class=\"name\">T²</th><td>{}</td></tr><tr><th class=\"name\">F</th><td>{} on ({}, {}) df</td></tr><tr><th class=\"name\">p-value</th><td>{}</td></tr><tr><th class=\"name\">critical T²</th><td>{} (critical F {})</td></tr><tr><th class=\"name\">Mahalanobis D²</th><td>{}</td></tr></table>",
-        num(&r["alpha"]),
-        format_sig(num(&t["t2"]), 6),
-        format_sig(num(&t["f"]), 6),
-        num(&t["df1"]),
-        num(&t["df2"]),
-        format_p(num(&t["p_value"])),
-        format_sig(num(&t["critical_t2"]), 6),
-        format_sig(num(&t["critical_f"]), 6),
-        format_sig(num(&t["mahalanobis_d2"]), 6)
+        r.alpha,
+        format_sig(t.t2, 6),
+        format_sig(t.f, 6),
+        t.df1,
+        t.df2,
+        format_p(t.p_value),
+        format_sig(t.critical_t2, 6),
+        format_sig(t.critical_f, 6),
+        format_sig(t.mahalanobis_d2, 6)
     );
 }
 
-fn characteristics_section(h: &mut String, r: &Value) {
+fn characteristics_section(h: &mut String, r: &Record) {
     h.push_str("<h2>Per characteristic</h2><table><tr><th class=\"name\">characteristic</th><th>mean ref</th><th>SD ref</th><th>mean cand</th><th>SD cand</th><th>difference</th><th>std. difference</th><th>p (pooled t)</th><th>p (Welch)</th></tr>\n");
-    for c in r["per_characteristic"].as_array().into_iter().flatten() {
-        let unit = c["unit"]
-            .as_str()
+    for c in &r.per_characteristic {
+        let unit = c
+            .unit
+            .as_deref()
             .map(|u| format!(" ({})", esc(u)))
             .unwrap_or_default();
         let _ = writeln!(
             h,
             "<tr><td class=\"name\">{}{unit}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
-            esc(&text(&c["characteristic"])),
-            format_sig(num(&c["lots"][0]["mean"]), 7),
-            format_sig(num(&c["lots"][0]["sd"]), 4),
-            format_sig(num(&c["lots"][1]["mean"]), 7),
-            format_sig(num(&c["lots"][1]["sd"]), 4),
-            format_sig(num(&c["difference"]), 4),
-            format_sig(num(&c["standardized_difference"]), 3),
-            format_p(num(&c["pooled_p"])),
-            format_p(num(&c["welch_p"]))
+            esc(&c.characteristic),
+            format_sig(c.lots[0].mean, 7),
+            format_sig(c.lots[0].sd, 4),
+            format_sig(c.lots[1].mean, 7),
+            format_sig(c.lots[1].sd, 4),
+            format_sig(c.difference, 4),
+            format_sig(c.standardized_difference, 3),
+            format_p(c.pooled_p),
+            format_p(c.welch_p)
         );
     }
     h.push_str("</table>\n");
 }
 
-fn intervals_table(h: &mut String, r: &Value) {
+fn intervals_table(h: &mut String, r: &Record) {
     h.push_str("<table><tr><th class=\"name\">characteristic</th><th>difference</th><th>simultaneous (T²)</th><th>Bonferroni</th><th>one at a time</th></tr>\n");
-    for iv in r["intervals"].as_array().into_iter().flatten() {
-        let cell = |key: &str, k: usize| {
-            let x = nums(&iv[key]);
-            let flag = iv["excludes_zero"][k].as_bool().unwrap_or(false);
+    for iv in &r.intervals {
+        let cell = |x: [f64; 2], k: usize| {
             format!(
                 "[{}, {}]{}",
-                format_sig(x.first().copied().unwrap_or(f64::NAN), 4),
-                format_sig(x.get(1).copied().unwrap_or(f64::NAN), 4),
-                if flag { " <b>excludes 0</b>" } else { "" }
+                format_sig(x[0], 4),
+                format_sig(x[1], 4),
+                if iv.excludes_zero[k] {
+                    " <b>excludes 0</b>"
+                } else {
+                    ""
+                }
             )
         };
         let _ = writeln!(
             h,
             "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
-            esc(&text(&iv["characteristic"])),
-            format_sig(num(&iv["difference"]), 4),
-            cell("simultaneous", 0),
-            cell("bonferroni", 1),
-            cell("one_at_a_time", 2)
+            esc(&iv.characteristic),
+            format_sig(iv.difference, 4),
+            cell(iv.simultaneous, 0),
+            cell(iv.bonferroni, 1),
+            cell(iv.one_at_a_time, 2)
         );
     }
     h.push_str("</table>\n");
 }
 
-fn ranking_table(h: &mut String, r: &Value) {
+fn ranking_table(h: &mut String, r: &Record) {
     h.push_str("<table><tr><th class=\"name\">characteristic</th><th>T² lost without it</th><th>standardized coefficient</th></tr>\n");
-    for c in r["ranking"].as_array().into_iter().flatten() {
+    for c in &r.ranking {
         let _ = writeln!(
             h,
             "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td></tr>",
-            esc(&text(&c["characteristic"])),
-            format_sig(num(&c["t2_drop"]), 4),
-            format_sig(num(&c["standardized_coefficient"]), 3)
+            esc(&c.characteristic),
+            format_sig(c.t2_drop, 4),
+            format_sig(c.standardized_coefficient, 3)
         );
     }
     h.push_str("</table>\n");
@@ -495,23 +521,25 @@ fn scale(lo: f64, hi: f64, a: f64, b: f64) -> impl Fn(f64) -> f64 {
     move |v| a + (v - lo) / (hi - lo) * (b - a)
 }
 
-fn interval_chart(r: &Value) -> String {
-    let ivs = r["intervals"].as_array().cloned().unwrap_or_default();
-    let pcs = r["per_characteristic"]
-        .as_array()
-        .cloned()
-        .unwrap_or_default();
+/// The intervals in pooled SD units: each characteristic's interval divided by its pooled
+/// standard deviation, as the window's Intervals view draws them.
+fn interval_chart(r: &Record) -> String {
+    let ivs = &r.intervals;
     if ivs.is_empty() {
         return String::new();
     }
     // A record edited by hand may disagree with itself: missing SDs draw nothing.
     let sd: Vec<f64> = (0..ivs.len())
-        .map(|k| pcs.get(k).map_or(f64::NAN, |c| num(&c["pooled_sd"])))
+        .map(|k| {
+            r.per_characteristic
+                .get(k)
+                .map_or(f64::NAN, |c| c.pooled_sd)
+        })
         .collect();
     let mut lo: f64 = 0.0;
     let mut hi: f64 = 0.0;
     for (k, iv) in ivs.iter().enumerate() {
-        for v in nums(&iv["simultaneous"]) {
+        for v in iv.simultaneous {
             lo = lo.min(v / sd[k]);
             hi = hi.max(v / sd[k]);
         }
@@ -541,28 +569,25 @@ fn interval_chart(r: &Value) -> String {
             "<text x=\"{}\" y=\"{}\" text-anchor=\"end\">{}</text>",
             left - 8.0,
             y + 4.0,
-            esc(&text(&iv["characteristic"]))
+            esc(&iv.characteristic)
         );
-        for (key, dy, width, color) in [
-            ("simultaneous", -7.0, 6.0, "#9a9acd"),
-            ("bonferroni", 0.0, 3.5, "#505aaa"),
-            ("one_at_a_time", 7.0, 1.8, "#141e5a"),
+        for (v, dy, width, color) in [
+            (iv.simultaneous, -7.0, 6.0, "#9a9acd"),
+            (iv.bonferroni, 0.0, 3.5, "#505aaa"),
+            (iv.one_at_a_time, 7.0, 1.8, "#141e5a"),
         ] {
-            let v = nums(&iv[key]);
-            if v.len() == 2 {
-                let _ = write!(
-                    s,
-                    "<line x1=\"{:.1}\" x2=\"{:.1}\" y1=\"{2:.1}\" y2=\"{2:.1}\" stroke=\"{color}\" stroke-width=\"{width}\"/>",
-                    x(v[0] / sd[k]),
-                    x(v[1] / sd[k]),
-                    y + dy
-                );
-            }
+            let _ = write!(
+                s,
+                "<line x1=\"{:.1}\" x2=\"{:.1}\" y1=\"{2:.1}\" y2=\"{2:.1}\" stroke=\"{color}\" stroke-width=\"{width}\"/>",
+                x(v[0] / sd[k]),
+                x(v[1] / sd[k]),
+                y + dy
+            );
         }
         let _ = write!(
             s,
             "<circle cx=\"{:.1}\" cy=\"{y:.1}\" r=\"4\" fill=\"#c83c3c\"/>",
-            x(num(&iv["difference"]) / sd[k])
+            x(iv.difference / sd[k])
         );
     }
     let _ = write!(
@@ -578,19 +603,27 @@ fn interval_chart(r: &Value) -> String {
     s
 }
 
-fn score_chart(r: &Value) -> String {
-    let hgram = &r["discriminant"]["score_histogram"];
-    let counts: Vec<Vec<f64>> = (0..2).map(|g| nums(&hgram["counts"][g])).collect();
-    if counts[0].is_empty() {
+/// The discriminant scores' histogram, as densities per lot (`ScoreHistogram::density`, as
+/// the window's Direction view draws them).
+fn score_chart(r: &Record) -> String {
+    let Some(hgram) = r
+        .discriminant
+        .score_histogram
+        .as_ref()
+        .map(ScoreHistogram::from)
+    else {
+        return String::new();
+    };
+    if hgram.counts[0].is_empty() {
         return String::new();
     }
-    let (start, width) = (num(&hgram["start"]), num(&hgram["width"]));
-    let bins = counts[0].len();
-    let dens: Vec<Vec<f64>> = counts
-        .iter()
-        .map(|c| {
-            let n: f64 = c.iter().sum();
-            c.iter().map(|v| v / (n * width)).collect()
+    let (start, width) = (hgram.start, hgram.width);
+    let bins = hgram.counts[0].len();
+    let dens: Vec<Vec<f64>> = (0..2)
+        .map(|g| {
+            (0..hgram.counts[g].len())
+                .map(|b| hgram.density(g, b))
+                .collect()
         })
         .collect();
     let top = dens.iter().flatten().fold(0.0_f64, |a, &b| a.max(b));
@@ -630,49 +663,53 @@ fn score_chart(r: &Value) -> String {
     s
 }
 
-fn pair_chart(r: &Value) -> String {
-    let names: Vec<String> = r["characteristics"]
-        .as_array()
-        .into_iter()
-        .flatten()
-        .map(text)
-        .collect();
-    let ranking: Vec<String> = r["ranking"]
-        .as_array()
-        .into_iter()
-        .flatten()
-        .map(|c| text(&c["characteristic"]))
-        .collect();
+/// True when every matrix and vector `pair_geometry` reads holds characteristics `i` and `j`,
+/// and the lot sizes add up (a record edited by hand may disagree with itself: then no pair
+/// chart is drawn).
+fn pair_fits(c: &crate::analysis::Comparison, i: usize, j: usize) -> bool {
+    let k = i.max(j);
+    let square = |m: &Vec<Vec<f64>>| m.len() > k && m.iter().all(|row| row.len() > k);
+    c.lots
+        .iter()
+        .all(|l| l.mean.len() > k && square(&l.covariance))
+        && square(&c.pooled_covariance)
+        && c.intervals.len() > k
+        && c.lots[0].n.checked_add(c.lots[1].n).is_some()
+}
+
+/// The two characteristics that drive the shift most: each lot's mean region and data ellipse
+/// from `analysis::pair_geometry`, as the window's Pairs view draws them at its default
+/// coverage.
+fn pair_chart(r: &Record) -> String {
+    let names = &r.characteristics;
+    let ranking = &r.ranking;
     if names.len() < 2 || ranking.len() < 2 {
         return String::new();
     }
     let (Some(i), Some(j)) = (
-        names.iter().position(|n| *n == ranking[0]),
-        names.iter().position(|n| *n == ranking[1]),
+        names.iter().position(|n| *n == ranking[0].characteristic),
+        names.iter().position(|n| *n == ranking[1].characteristic),
     ) else {
         return String::new();
     };
-    let alpha = num(&r["alpha"]);
-    let lots = &r["lots"];
-    let mut shapes: Vec<(usize, Vec<[f64; 2]>, bool)> = Vec::new();
-    let mut means = Vec::new();
+    let alpha = r.alpha;
+    let Some(c) = r.comparison() else {
+        return String::new();
+    };
+    if !pair_fits(&c, i, j) {
+        return String::new();
+    }
+    let geometry = pair_geometry(&c, i, j, DATA_COVERAGE);
+    let mut shapes: Vec<(usize, &Vec<[f64; 2]>, bool)> = Vec::new();
     for g in 0..2 {
-        let l = &lots[g];
-        let n = l["n"].as_u64().unwrap_or(0) as usize;
-        let mean = nums(&l["mean"]);
-        if mean.len() <= i.max(j) {
-            return String::new();
-        }
-        let c = [mean[i], mean[j]];
-        means.push(c);
-        let cov = matrix2(&l["covariance"], i, j);
-        if let Some(o) = ellipse::outline(c, cov, ellipse::mean_region_r2(n, alpha), 90) {
+        if let Some(o) = &geometry.mean_regions[g] {
             shapes.push((g, o, false));
         }
-        if let Some(o) = ellipse::outline(c, cov, ellipse::data_r2(0.95), 90) {
+        if let Some(o) = &geometry.data_ellipses[g] {
             shapes.push((g, o, true));
         }
     }
+    let means = geometry.means;
     let pts = shapes.iter().flat_map(|s| s.1.iter());
     let (mut x0, mut x1, mut y0, mut y1) = (
         f64::INFINITY,
@@ -728,7 +765,7 @@ fn pair_chart(r: &Value) -> String {
     }
     let _ = write!(
         s,
-        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">{} ({} to {})</text><text x=\"14\" y=\"{}\" transform=\"rotate(-90 14 {})\" text-anchor=\"middle\">{} ({} to {})</text></svg><div class=\"muted\">Solid: each lot's {}% confidence ellipse for its mean (this pair alone). Dashed: normal-theory data ellipses holding 95% of a lot's units. Indigo with a filled mean: reference; amber with a hollow mean: candidate.</div></div>",
+        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">{} ({} to {})</text><text x=\"14\" y=\"{}\" transform=\"rotate(-90 14 {})\" text-anchor=\"middle\">{} ({} to {})</text></svg><div class=\"muted\">Solid: each lot's {}% confidence ellipse for its mean (this pair alone). Dashed: normal-theory data ellipses holding {}% of a lot's units. Indigo with a filled mean: reference; amber with a hollow mean: candidate.</div></div>",
         w / 2.0,
         h - 30.0,
         esc(&names[i]),
@@ -739,72 +776,67 @@ fn pair_chart(r: &Value) -> String {
         esc(&names[j]),
         format_sig(y0, 5),
         format_sig(y1, 5),
-        format_confidence(alpha)
+        format_confidence(alpha),
+        format_confidence(1.0 - DATA_COVERAGE)
     );
     s
 }
 
-fn checks_section(h: &mut String, r: &Value) {
-    let f = &r["favoured"];
-    if r["box_m"].is_null()
-        && r["mardia"].as_array().is_none_or(Vec::is_empty)
-        && r["permutation"].is_null()
-    {
+fn checks_section(h: &mut String, r: &Record) {
+    let f = &r.favoured;
+    if r.box_m.is_none() && r.mardia.is_empty() && r.permutation.is_none() {
         return;
     }
     let _ = writeln!(
         h,
         "<h2>Assumption checks</h2><p><b>Favoured: {}</b> (p = {}) — {}</p><table>",
-        esc(&text(&f["test"])),
-        format_p(num(&f["p_value"])),
-        esc(&text(&f["why"]))
+        esc(FavouredTest::from(f.test).name()),
+        format_p(f.p_value),
+        esc(&f.why)
     );
-    let b = &r["box_m"];
-    if !b.is_null() {
+    if let Some(b) = &r.box_m {
         let _ = writeln!(
             h,
             "<tr><th class=\"name\">Box's M</th><td class=\"name\">M = {}; chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {}</td></tr>",
-            format_sig(num(&b["m"]), 5),
-            format_sig(num(&b["chi2"]), 5),
-            num(&b["df"]),
-            format_p(num(&b["p_value"])),
-            format_sig(num(&b["f"]), 5),
-            num(&b["f_df1"]),
-            format_sig(num(&b["f_df2"]), 5),
-            format_p(num(&b["f_p_value"]))
+            format_sig(b.m, 5),
+            format_sig(b.chi2, 5),
+            b.df,
+            format_p(b.p_value),
+            format_sig(b.f, 5),
+            b.f_df1,
+            format_sig(b.f_df2, 5),
+            format_p(b.f_p_value)
         );
     }
-    let u = &r["unequal_covariance"];
-    if !u.is_null() {
+    if let Some(u) = &r.unequal_covariance {
         let _ = writeln!(
             h,
             "<tr><th class=\"name\">Unequal covariances (Krishnamoorthy–Yu)</th><td class=\"name\">F = {} on ({}, {}) df, p = {}</td></tr>",
-            format_sig(num(&u["f"]), 5),
-            num(&u["df1"]),
-            format_sig(num(&u["df2"]), 5),
-            format_p(num(&u["p_value"]))
+            format_sig(u.f, 5),
+            u.df1,
+            format_sig(u.df2, 5),
+            format_p(u.p_value)
         );
     }
-    let p = &r["permutation"];
-    if !p.is_null() {
+    if let Some(p) = &r.permutation {
         let _ = writeln!(
             h,
             "<tr><th class=\"name\">Permutation p-value</th><td class=\"name\">{} ({} relabellings, seed {})</td></tr>",
-            format_p(num(&p["p_value"])),
-            p["permutations"],
-            p["seed"]
+            format_p(p.p_value),
+            p.permutations,
+            p.seed
         );
     }
-    for m in r["mardia"].as_array().into_iter().flatten() {
+    for m in &r.mardia {
         let _ = writeln!(
             h,
             "<tr><th class=\"name\">Mardia, {}</th><td class=\"name\">skewness p = {}, kurtosis p = {}</td></tr>",
-            esc(&text(&m["lot"])),
-            format_p(num(&m["skewness_p"])),
-            format_p(num(&m["kurtosis_p"]))
+            esc(&m.lot),
+            format_p(m.skewness_p),
+            format_p(m.kurtosis_p)
         );
     }
-    if let Some(units) = r["outliers"]["units"].as_array() {
+    if let Some(units) = r.outliers.as_ref().map(|o| &o.units) {
         let _ = writeln!(
             h,
             "<tr><th class=\"name\">Outliers</th><td class=\"name\">{} unit(s) flagged{}</td></tr>",
@@ -816,16 +848,17 @@ fn checks_section(h: &mut String, r: &Value) {
                     .iter()
                     .take(20)
                     .map(|u| {
-                        let labels: Vec<String> = u["labels"]
-                            .as_array()
-                            .into_iter()
-                            .flatten()
-                            .map(|l| format!("{} {}", text(&l[0]), text(&l[1])))
+                        let labels: Vec<String> = u
+                            .labels
+                            .iter()
+                            .map(|(header, value)| format!("{header} {value}"))
                             .collect();
                         format!(
                             "lot {}, row {}: {}",
-                            num(&u["lot"]) + 1.0,
-                            u["row"],
+                            u.lot + 1,
+                            // As the record writes a row it does not know.
+                            u.row
+                                .map_or_else(|| "null".to_string(), |row| row.to_string()),
                             labels.join(", ")
                         )
                     })
@@ -840,13 +873,108 @@ fn checks_section(h: &mut String, r: &Value) {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::analysis::{LotData, Settings, Silent, compare};
+    use nalgebra::DMatrix;
+
+    /// A record of two small lots of three characteristics, with every check.
+    fn record(names: [&str; 2]) -> Record {
+        let a = DMatrix::from_row_slice(
+            7,
+            3,
+            &[
+                10.2, 20.1, 5.0, 9.8, 19.7, 5.3, 10.5, 20.6, 4.8, 10.1, 20.0, 5.1, 9.6, 19.9, 5.6,
+                10.3, 20.4, 4.9, 10.0, 20.2, 5.2,
+            ],
+        );
+        let b = DMatrix::from_row_slice(
+            6,
+            3,
+            &[
+                10.6, 20.2, 5.1, 10.9, 20.8, 4.7, 10.4, 19.9, 5.5, 11.0, 20.5, 5.0, 10.7, 20.6,
+                5.2, 10.5, 20.3, 4.6,
+            ],
+        );
+        let characteristics = ["x", "y", "z"].map(String::from).to_vec();
+        let c = compare(
+            &characteristics,
+            &[None, None, None],
+            [
+                LotData {
+                    name: names[0],
+                    data: &a,
+                },
+                LotData {
+                    name: names[1],
+                    data: &b,
+                },
+            ],
+            &Settings {
+                permutations: 99,
+                ..Settings::default()
+            },
+            &Silent,
+        )
+        .unwrap();
+        Record::new(&c, None)
+    }
 
     #[test]
     fn names_are_escaped() {
-        let r = serde_json::json!({"lots": [{"name": "<script>"}, {"name": "b&c"}], "verdict": "x < y"});
+        let mut r = record(["<script>", "b&c"]);
+        r.verdict = "x < y".into();
         let html = render_html(&r, None);
         assert!(!html.contains("<script>"));
         assert!(html.contains("&lt;script&gt;"));
+        assert!(html.contains("b&amp;c"));
         assert!(html.contains("x &lt; y"));
+    }
+
+    /// The pair chart draws the analysis's geometry: its ellipses' points, in the chart's
+    /// order (each lot's mean region, then its data ellipse at the window's coverage).
+    #[test]
+    fn the_pair_chart_draws_the_analysis_geometry() {
+        let r = record(["ref", "cand"]);
+        let html = render_html(&r, None);
+        let c = r.comparison().unwrap();
+        let name = |k: usize| &r.ranking[k].characteristic;
+        let i = r.characteristics.iter().position(|n| n == name(0)).unwrap();
+        let j = r.characteristics.iter().position(|n| n == name(1)).unwrap();
+        let g = pair_geometry(&c, i, j, DATA_COVERAGE);
+        let polylines: Vec<usize> = html
+            .split("<polyline points=\"")
+            .skip(1)
+            .map(|p| p.split('"').next().unwrap().split(' ').count())
+            .collect();
+        let want: Vec<usize> = (0..2)
+            .flat_map(|k| [&g.mean_regions[k], &g.data_ellipses[k]])
+            .map(|o| o.as_ref().unwrap().len())
+            .collect();
+        assert_eq!(polylines, want);
+        // A record whose matrices do not hold the pair draws no pair chart, and no panic.
+        let mut broken = r.clone();
+        broken.pooled_covariance.truncate(1);
+        let html = render_html(&broken, None);
+        assert!(!html.contains("pair-chart"));
+        assert!(html.contains("interval-chart"));
+    }
+
+    /// The signature block shows the manifestation from the typed signature.
+    #[test]
+    fn the_signature_block_is_shown() {
+        let r = record(["ref", "cand"]);
+        let key = ed25519_dalek::SigningKey::from_bytes(&[3u8; 32]);
+        let s = super::super::sign::sign(
+            &r,
+            &key,
+            "A. <Engineer>",
+            super::super::sign::Meaning::Approval,
+            "2026-12-02T03:30:00Z",
+        )
+        .unwrap();
+        let html = render_html(&r, Some(&s.signature));
+        assert!(html.contains("Signed by: <b>A. &lt;Engineer&gt;</b>"));
+        assert!(html.contains("Meaning of the signature: <b>approval</b>"));
+        assert!(html.contains(&s.signature.key_fingerprint));
+        assert!(render_html(&r, None).contains("Not signed."));
     }
 }

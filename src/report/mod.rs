@@ -3,6 +3,7 @@
 mod canonical;
 pub mod html;
 mod record;
+pub mod sections;
 pub mod sign;
 mod text;
 

@@ -1,15 +1,20 @@
 //! The record every export and signed summary is built from (schema `lotshift.comparison/1`).
 
+//!
+//! Every key is a field of a type of the report layer (this file and [`super::sections`]),
+//! converted from the engine's types; the engine's field names never reach the record.
+
 use serde::{Deserialize, Serialize};
 
-use crate::analysis::decision::{CapabilityRow, Equivalence, InSpec, Outcome, Specification};
-use crate::analysis::{
-    CharacteristicResult, Comparison, Contribution, Discriminant, Favoured, HotellingResult,
-    Interval, NormalityRow,
+use super::sections::{
+    BoxMRecord, CapabilityRecord, CharacteristicRecord, DiscriminantRecord, EquivalenceRecord,
+    ExclusionRecord, FavouredRecord, HotellingRecord, InSpecRecord, IntervalRecord, MardiaRecord,
+    NormalityRecord, OutcomeRecord, PermutationRecord, RankingRecord, SettingsRecord,
+    SpecificationRecord, UnequalCovarianceRecord, UnmatchedRecord, nan,
 };
-use crate::data::{ColumnData, Lot, Prepared, Unmatched};
-use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
-use crate::stats::permutation::PermutationResult;
+use crate::analysis::decision::Decision;
+use crate::analysis::{Comparison, LotResult};
+use crate::data::{ColumnData, Lot, Prepared};
 
 /// Schema identifier written into every record.
 pub const SCHEMA: &str = "lotshift.comparison/1";
@@ -53,9 +58,118 @@ pub struct LotRecord {
     /// Missing cells per characteristic.
     pub missing: Vec<usize>,
     /// Mean vector.
+    #[serde(deserialize_with = "nan::de")]
     pub mean: Vec<f64>,
     /// Unbiased covariance matrix.
+    #[serde(deserialize_with = "nan::de")]
     pub covariance: Vec<Vec<f64>>,
+    /// Units left out for a missing cell, each with its row, labels and the characteristics
+    /// missing.
+    #[serde(default)]
+    pub left_out: Vec<LeftOutRecord>,
+}
+
+/// A unit left out for a missing cell (record key `lots[].left_out`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LeftOutRecord {
+    /// Row of the lot file, as a spreadsheet shows it.
+    pub row: u32,
+    /// The unit's labels, `[header, value]`.
+    pub labels: Vec<(String, String)>,
+    /// The compared characteristics whose cell is missing.
+    pub missing: Vec<String>,
+}
+
+/// Two columns paired although written differently (record key `pairings`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PairingRecord {
+    /// The reference lot's header.
+    pub reference: String,
+    /// The candidate lot's header.
+    pub candidate: String,
+}
+
+/// The shift detectable with the stated power (record key `detectable`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct DetectableRecord {
+    /// Power.
+    pub power: f64,
+    /// Mahalanobis distance of the shift.
+    pub distance: f64,
+    /// That shift along the observed direction, in each characteristic's pooled SD.
+    #[serde(deserialize_with = "nan::de")]
+    pub per_characteristic_sd: Vec<f64>,
+}
+
+/// The T² test without the flagged outliers (record key `without_outliers`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct WithoutOutliersRecord {
+    /// Units left out per lot.
+    pub removed: [usize; 2],
+    /// T² without them.
+    pub t2: f64,
+    /// Its p-value.
+    pub p_value: f64,
+    /// The lots differ without them.
+    pub differ: bool,
+    /// The decision is the same with and without them.
+    pub same_decision: bool,
+}
+
+impl From<&crate::analysis::Detectable> for DetectableRecord {
+    fn from(d: &crate::analysis::Detectable) -> Self {
+        let crate::analysis::Detectable {
+            power,
+            distance,
+            per_characteristic_sd,
+        } = d;
+        DetectableRecord {
+            power: *power,
+            distance: *distance,
+            per_characteristic_sd: per_characteristic_sd.clone(),
+        }
+    }
+}
+
+impl From<&DetectableRecord> for crate::analysis::Detectable {
+    fn from(d: &DetectableRecord) -> Self {
+        crate::analysis::Detectable {
+            power: d.power,
+            distance: d.distance,
+            per_characteristic_sd: d.per_characteristic_sd.clone(),
+        }
+    }
+}
+
+impl From<&crate::analysis::WithoutOutliers> for WithoutOutliersRecord {
+    fn from(w: &crate::analysis::WithoutOutliers) -> Self {
+        let crate::analysis::WithoutOutliers {
+            removed,
+            t2,
+            p_value,
+            differ,
+            same_decision,
+        } = w;
+        WithoutOutliersRecord {
+            removed: *removed,
+            t2: *t2,
+            p_value: *p_value,
+            differ: *differ,
+            same_decision: *same_decision,
+        }
+    }
+}
+
+impl From<&WithoutOutliersRecord> for crate::analysis::WithoutOutliers {
+    fn from(w: &WithoutOutliersRecord) -> Self {
+        crate::analysis::WithoutOutliers {
+            removed: w.removed,
+            t2: w.t2,
+            p_value: w.p_value,
+            differ: w.differ,
+            same_decision: w.same_decision,
+        }
+    }
 }
 
 /// A flagged outlier, located in its file.
@@ -68,8 +182,10 @@ pub struct OutlierRecord {
     /// The unit's label columns, `[header, value]`.
     pub labels: Vec<(String, String)>,
     /// Squared Mahalanobis distance from its lot's mean.
+    #[serde(deserialize_with = "nan::de")]
     pub d2: f64,
     /// Beta reference tail probability.
+    #[serde(deserialize_with = "nan::de")]
     pub p_value: f64,
 }
 
@@ -77,6 +193,7 @@ pub struct OutlierRecord {
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct OutlierSection {
     /// Cutoff on d² per lot.
+    #[serde(deserialize_with = "nan::de")]
     pub cutoff: [f64; 2],
     /// Flagged units (all of them; largest distance first per lot).
     pub units: Vec<OutlierRecord>,
@@ -92,8 +209,9 @@ pub struct Record {
     /// When the comparison was made (RFC 3339, UTC), set by the program that ran it.
     pub analysed_at: Option<String>,
     /// Everything the comparison was computed with (alpha, checks, permutations, seed).
-    pub settings: crate::analysis::Settings,
+    pub settings: SettingsRecord,
     /// Significance level.
+    #[serde(deserialize_with = "nan::de")]
     pub alpha: f64,
     /// Compared characteristics.
     pub characteristics: Vec<String>,
@@ -102,35 +220,37 @@ pub struct Record {
     /// The two lots, reference first.
     pub lots: Vec<LotRecord>,
     /// Columns not compared, and why.
-    pub unmatched: Vec<Unmatched>,
+    pub unmatched: Vec<UnmatchedRecord>,
     /// Hotelling's two-sample test.
-    pub hotelling: HotellingResult,
+    pub hotelling: HotellingRecord,
     /// Follow-up intervals.
-    pub intervals: Vec<Interval>,
+    pub intervals: Vec<IntervalRecord>,
     /// Discriminant direction.
-    pub discriminant: Discriminant,
+    pub discriminant: DiscriminantRecord,
     /// Characteristics by how much each drives the shift.
-    pub ranking: Vec<Contribution>,
+    pub ranking: Vec<RankingRecord>,
     /// Per-characteristic summaries and univariate tests.
-    pub per_characteristic: Vec<CharacteristicResult>,
+    pub per_characteristic: Vec<CharacteristicRecord>,
     /// Pooled covariance.
+    #[serde(deserialize_with = "nan::de")]
     pub pooled_covariance: Vec<Vec<f64>>,
     /// Condition number of the pooled correlation matrix.
+    #[serde(deserialize_with = "nan::de")]
     pub condition_number: f64,
     /// Box's M test of equal covariance matrices.
-    pub box_m: Option<BoxM>,
+    pub box_m: Option<BoxMRecord>,
     /// Mardia's multivariate skewness and kurtosis per lot.
-    pub mardia: Vec<Mardia>,
+    pub mardia: Vec<MardiaRecord>,
     /// Shapiro–Wilk per characteristic and lot.
-    pub normality: Vec<NormalityRow>,
+    pub normality: Vec<NormalityRecord>,
     /// Outlier screen.
     pub outliers: Option<OutlierSection>,
     /// Krishnamoorthy–Yu test for unequal covariance matrices.
-    pub unequal_covariance: Option<UnequalCovariance>,
+    pub unequal_covariance: Option<UnequalCovarianceRecord>,
     /// Permutation p-value.
-    pub permutation: Option<PermutationResult>,
+    pub permutation: Option<PermutationRecord>,
     /// Which test the checks favour, and why.
-    pub favoured: Favoured,
+    pub favoured: FavouredRecord,
     /// The result in plain words.
     pub verdict: String,
     /// Cautions about this result.
@@ -139,22 +259,34 @@ pub struct Record {
     pub caution: String,
     /// Specification limits and margins compared against (null without a specification).
     #[serde(default)]
-    pub specification: Option<Specification>,
+    pub specification: Option<SpecificationRecord>,
     /// Equivalence tests (null without margins).
     #[serde(default)]
-    pub equivalence: Option<Equivalence>,
+    pub equivalence: Option<EquivalenceRecord>,
     /// Capability of the characteristics with limits (empty without limits).
     #[serde(default)]
-    pub capability: Vec<CapabilityRow>,
+    pub capability: Vec<CapabilityRecord>,
     /// Fraction of units inside every limit at once (null without limits).
     #[serde(default)]
-    pub in_spec: Option<InSpec>,
+    pub in_spec: Option<InSpecRecord>,
     /// Four-way outcome of the difference and equivalence tests (null without margins).
     #[serde(default)]
-    pub outcome: Option<Outcome>,
+    pub outcome: Option<OutcomeRecord>,
     /// Units set aside before the comparison, each with its row, labels and reason.
     #[serde(default)]
-    pub exclusions: Vec<crate::data::exclusions::Exclusion>,
+    pub exclusions: Vec<ExclusionRecord>,
+    /// Numeric columns the lots did not line up on, as `"header" (lot N: why)`.
+    #[serde(default)]
+    pub not_compared: Vec<String>,
+    /// Compared columns whose headers are written differently in the two lots.
+    #[serde(default)]
+    pub pairings: Vec<PairingRecord>,
+    /// The shift these lot sizes detect with 80% power.
+    #[serde(default)]
+    pub detectable: Option<DetectableRecord>,
+    /// The T² test without the units flagged as outliers.
+    #[serde(default)]
+    pub without_outliers: Option<WithoutOutliersRecord>,
 }
 
 impl Record {
@@ -182,6 +314,18 @@ impl Record {
                         .map_or_else(|| vec![0; c.characteristics.len()], |p| p.missing.clone()),
                     mean: lot.mean.clone(),
                     covariance: lot.covariance.clone(),
+                    left_out: prep
+                        .map(|p| {
+                            p.left_out
+                                .iter()
+                                .map(|u| LeftOutRecord {
+                                    row: u.row,
+                                    labels: u.labels.clone(),
+                                    missing: u.missing.clone(),
+                                })
+                                .collect()
+                        })
+                        .unwrap_or_default(),
                 }
             })
             .collect();
@@ -224,40 +368,120 @@ impl Record {
                 version: env!("CARGO_PKG_VERSION").into(),
             },
             analysed_at: None,
-            settings: c.settings.clone(),
+            settings: (&c.settings).into(),
             alpha: c.alpha,
             characteristics: c.characteristics.clone(),
             units: c.units.clone(),
             lots,
-            unmatched: prepared.map(|p| p.unmatched.clone()).unwrap_or_default(),
-            hotelling: c.hotelling.clone(),
-            intervals: c.intervals.clone(),
-            discriminant: c.discriminant.clone(),
-            ranking: c.ranking.clone(),
-            per_characteristic: c.per_characteristic.clone(),
+            unmatched: prepared
+                .map(|p| p.unmatched.iter().map(Into::into).collect())
+                .unwrap_or_default(),
+            hotelling: (&c.hotelling).into(),
+            intervals: c.intervals.iter().map(Into::into).collect(),
+            discriminant: (&c.discriminant).into(),
+            ranking: c.ranking.iter().map(Into::into).collect(),
+            per_characteristic: c.per_characteristic.iter().map(Into::into).collect(),
             pooled_covariance: c.pooled_covariance.clone(),
             condition_number: c.condition_number,
-            box_m: c.box_m.clone(),
-            mardia: c.mardia.clone(),
-            normality: c.normality.clone(),
+            box_m: c.box_m.as_ref().map(Into::into),
+            mardia: c.mardia.iter().map(Into::into).collect(),
+            normality: c.normality.iter().map(Into::into).collect(),
             outliers,
-            unequal_covariance: c.unequal_covariance.clone(),
-            permutation: c.permutation.clone(),
-            favoured: c.favoured.clone(),
+            unequal_covariance: c.unequal_covariance.as_ref().map(Into::into),
+            permutation: c.permutation.as_ref().map(Into::into),
+            favoured: (&c.favoured).into(),
             verdict: c.verdict.clone(),
             warnings: c.warnings.clone(),
             caution: CAUTION.into(),
-            specification: c.decision.as_ref().map(|d| d.specification.clone()),
-            equivalence: c.decision.as_ref().and_then(|d| d.equivalence.clone()),
+            specification: c.decision.as_ref().map(|d| (&d.specification).into()),
+            equivalence: c
+                .decision
+                .as_ref()
+                .and_then(|d| d.equivalence.as_ref().map(Into::into)),
             capability: c
                 .decision
                 .as_ref()
-                .map(|d| d.capability.clone())
+                .map(|d| d.capability.iter().map(Into::into).collect())
                 .unwrap_or_default(),
-            in_spec: c.decision.as_ref().and_then(|d| d.in_spec.clone()),
-            outcome: c.decision.as_ref().and_then(|d| d.outcome),
-            exclusions: prepared.map(|p| p.exclusions.clone()).unwrap_or_default(),
+            in_spec: c
+                .decision
+                .as_ref()
+                .and_then(|d| d.in_spec.as_ref().map(Into::into)),
+            outcome: c.decision.as_ref().and_then(|d| d.outcome.map(Into::into)),
+            exclusions: prepared
+                .map(|p| p.exclusions.iter().map(Into::into).collect())
+                .unwrap_or_default(),
+            not_compared: c.not_compared.clone(),
+            pairings: prepared
+                .map(|p| {
+                    p.pairings
+                        .iter()
+                        .map(|m| PairingRecord {
+                            reference: m.reference.clone(),
+                            candidate: m.candidate.clone(),
+                        })
+                        .collect()
+                })
+                .unwrap_or_default(),
+            detectable: c.detectable.as_ref().map(Into::into),
+            without_outliers: c.without_outliers.as_ref().map(Into::into),
         }
+    }
+
+    /// The comparison as far as the record holds it, for the engine's functions that read a
+    /// [`Comparison`] (the HTML report draws its pair chart with
+    /// [`crate::analysis::pair_geometry`], as the window does). Every number is the record's.
+    /// What the record does not hold is left empty: the outlier screen (the record locates
+    /// the flagged units in their files, not among the compared units), the discriminant's
+    /// unit scores, the decision's notes and units-needed estimate, the input notes, the
+    /// detectable shift and the rerun without outliers. `None` unless the record describes
+    /// exactly two lots.
+    pub fn comparison(&self) -> Option<Comparison> {
+        let lot = |l: &LotRecord| LotResult {
+            name: l.name.clone(),
+            n: l.n,
+            mean: l.mean.clone(),
+            covariance: l.covariance.clone(),
+        };
+        let [l0, l1] = self.lots.as_slice() else {
+            return None;
+        };
+        Some(Comparison {
+            alpha: self.alpha,
+            settings: (&self.settings).into(),
+            characteristics: self.characteristics.clone(),
+            units: self.units.clone(),
+            lots: [lot(l0), lot(l1)],
+            pooled_covariance: self.pooled_covariance.clone(),
+            condition_number: self.condition_number,
+            hotelling: (&self.hotelling).into(),
+            intervals: self.intervals.iter().map(Into::into).collect(),
+            discriminant: (&self.discriminant).into(),
+            ranking: self.ranking.iter().map(Into::into).collect(),
+            per_characteristic: self.per_characteristic.iter().map(Into::into).collect(),
+            box_m: self.box_m.as_ref().map(Into::into),
+            mardia: self.mardia.iter().map(Into::into).collect(),
+            normality: self.normality.iter().map(Into::into).collect(),
+            outliers: None,
+            unequal_covariance: self.unequal_covariance.as_ref().map(Into::into),
+            permutation: self.permutation.as_ref().map(Into::into),
+            favoured: (&self.favoured).into(),
+            verdict: self.verdict.clone(),
+            warnings: self.warnings.clone(),
+            decision: self.specification.as_ref().map(|s| Decision {
+                specification: s.into(),
+                equivalence: self.equivalence.as_ref().map(Into::into),
+                capability: self.capability.iter().map(Into::into).collect(),
+                in_spec: self.in_spec.as_ref().map(Into::into),
+                outcome: self.outcome.map(Into::into),
+                units_needed: None,
+                notes: Vec::new(),
+            }),
+            not_compared: self.not_compared.clone(),
+            input_alerts: Vec::new(),
+            detectable: self.detectable.as_ref().map(Into::into),
+            without_outliers: self.without_outliers.as_ref().map(Into::into),
+        })
     }
 
     /// Pretty JSON with full f64 round-trip precision.
