@@ -12,7 +12,10 @@ pub mod spec;
 mod split;
 
 pub use error::{LoadError, LoadErrorKind, PrepareError};
-pub use pair::{Pairing, Prepared, PreparedLot, Selection, Unmatched, prepare, prepare_releasing};
+pub use pair::{
+    LeftOut, Pairing, Prepared, PreparedLot, Selection, Unmatched, label_text, prepare,
+    prepare_releasing,
+};
 pub use split::{lot_column_candidates, lot_values, split_lot};
 
 use std::path::Path;

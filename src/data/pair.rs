@@ -76,17 +76,22 @@ pub struct LeftOut {
 impl LeftOut {
     /// `row 19 (serial HX40-A-0018; missing mass)`.
     pub fn describe(&self) -> String {
-        let labels: Vec<String> = self
-            .labels
-            .iter()
-            .filter(|(_, v)| !v.is_empty())
-            .take(2)
-            .map(|(h, v)| format!("{h} {v}"))
-            .collect();
-        let mut parts = labels;
+        let mut parts: Vec<String> = label_text(&self.labels).into_iter().collect();
         parts.push(format!("missing {}", self.missing.join(", ")));
         format!("row {} ({})", self.row, parts.join("; "))
     }
+}
+
+/// A unit's first two non-empty labels as `serial HX40-A-0018; measured at …` (`None` when it
+/// has none): how every output names a unit.
+pub fn label_text(labels: &[(String, String)]) -> Option<String> {
+    let shown: Vec<String> = labels
+        .iter()
+        .filter(|(_, v)| !v.is_empty())
+        .take(2)
+        .map(|(h, v)| format!("{h} {v}"))
+        .collect();
+    (!shown.is_empty()).then(|| shown.join("; "))
 }
 
 /// Two lots ready for the engine.

@@ -1,6 +1,6 @@
 //! One file holding both lots, split by a lot column.
 
-use super::{Column, ColumnData, LoadError, LoadErrorKind, Lot, match_key};
+use super::{Column, LoadError, LoadErrorKind, Lot, match_key};
 
 /// Distinct non-empty values of the lot column, in order of first appearance.
 ///
@@ -112,40 +112,12 @@ pub fn split_lot(
     let key = col.position;
     let pick = |value: &str| -> Lot {
         let idx: Vec<usize> = (0..lot.len()).filter(|&i| col.text(i) == value).collect();
-        let columns = lot
-            .columns
-            .iter()
-            .filter(|c| c.position != key)
-            .map(|c| {
-                let data = match &c.data {
-                    ColumnData::Numeric(v) => {
-                        ColumnData::Numeric(idx.iter().map(|&i| v[i]).collect())
-                    }
-                    ColumnData::Text(t) => ColumnData::Text(t.select(&idx)),
-                };
-                let missing = match &data {
-                    ColumnData::Numeric(v) => v.iter().filter(|x| x.is_nan()).count(),
-                    ColumnData::Text(t) => (0..t.len()).filter(|&i| t.get(i).is_empty()).count(),
-                };
-                Column {
-                    header: c.header.clone(),
-                    name: c.name.clone(),
-                    unit: c.unit.clone(),
-                    position: c.position,
-                    data,
-                    missing,
-                }
-            })
-            .collect();
-        let mut provenance = lot.provenance.clone();
-        provenance.split = Some((col.header.clone(), value.to_string()));
-        provenance.rows_read = idx.len();
-        Lot {
-            name: value.to_string(),
-            provenance,
-            columns,
-            rows: idx.iter().map(|&i| lot.rows[i]).collect(),
-        }
+        let mut one = lot.select_units(&idx);
+        one.columns.retain(|c| c.position != key);
+        one.name = value.to_string();
+        one.provenance.split = Some((col.header.clone(), value.to_string()));
+        one.provenance.rows_read = idx.len();
+        one
     };
     Ok([pick(&chosen[0]), pick(&chosen[1])])
 }

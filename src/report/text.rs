@@ -51,23 +51,13 @@ pub fn render_text(
     }
     if let Some(p) = prepared {
         for e in &p.exclusions {
-            let labels: Vec<String> = e
-                .labels
-                .iter()
-                .filter(|(_, v)| !v.is_empty())
-                .take(2)
-                .map(|(h, v)| format!("{h} {v}"))
-                .collect();
+            let labels = crate::data::label_text(&e.labels);
             let _ = writeln!(
                 s,
                 "  set aside from lot {}: row {}{} — {}",
                 e.lot + 1,
                 e.row,
-                if labels.is_empty() {
-                    String::new()
-                } else {
-                    format!(" ({})", labels.join("; "))
-                },
+                labels.map(|l| format!(" ({l})")).unwrap_or_default(),
                 e.reason
             );
         }
@@ -610,23 +600,13 @@ fn checks_text(s: &mut String, c: &Comparison, record: Option<&super::Record>) {
         );
         if let Some(located) = record.and_then(|r| r.outliers.as_ref()) {
             for u in &located.units {
-                let labels: Vec<String> = u
-                    .labels
-                    .iter()
-                    .filter(|(_, v)| !v.is_empty())
-                    .take(2)
-                    .map(|(h, v)| format!("{h} {v}"))
-                    .collect();
+                let labels = crate::data::label_text(&u.labels);
                 let _ = writeln!(
                     s,
                     "    lot {}: row {}{}: d² = {}, {}",
                     u.lot + 1,
                     u.row.map_or("?".to_string(), |r| r.to_string()),
-                    if labels.is_empty() {
-                        String::new()
-                    } else {
-                        format!(" ({})", labels.join("; "))
-                    },
+                    labels.map(|l| format!(" ({l})")).unwrap_or_default(),
                     format_sig(u.d2, 4),
                     p_text(u.p_value)
                 );

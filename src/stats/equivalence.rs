@@ -406,7 +406,7 @@ pub fn tost_units_per_lot(
 
 /// Smallest `n ≥ start` with `ok(n)` for a predicate that stays true once true: doubling,
 /// then bisection. `None` above 10⁸.
-fn smallest_n(start: usize, ok: impl Fn(usize) -> bool) -> Option<usize> {
+pub(crate) fn smallest_n(start: usize, ok: impl Fn(usize) -> bool) -> Option<usize> {
     if ok(start) {
         return Some(start);
     }

@@ -37,27 +37,7 @@ pub fn power(p: usize, n1: usize, n2: usize, delta2: f64, alpha: f64) -> f64 {
 /// `None` when no lot size up to 10⁸ does.
 pub fn units_per_lot(p: usize, delta2: f64, alpha: f64, target: f64) -> Option<usize> {
     let smallest = p / 2 + 2; // keeps N − p − 1 ≥ 1
-    let ok = |n: usize| power(p, n, n, delta2, alpha) >= target;
-    if ok(smallest) {
-        return Some(smallest);
-    }
-    let mut hi = smallest.max(2) * 2;
-    while !ok(hi) {
-        hi *= 2;
-        if hi > 100_000_000 {
-            return None;
-        }
-    }
-    let mut lo = hi / 2;
-    while hi - lo > 1 {
-        let mid = (lo + hi) / 2;
-        if ok(mid) {
-            hi = mid;
-        } else {
-            lo = mid;
-        }
-    }
-    Some(hi)
+    super::equivalence::smallest_n(smallest.max(2), |n| power(p, n, n, delta2, alpha) >= target)
 }
 
 #[cfg(test)]
