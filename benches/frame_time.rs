@@ -59,7 +59,7 @@ fn time_to_first_result(n: usize) -> f64 {
     let mut app = LotshiftApp::new(None, Saved::default());
     let t = Instant::now();
     app.load_paths(lotshift::gui::worker::Slot::Both, vec![a, b]);
-    while app.shown.is_none() {
+    while app.result.shown().is_none() {
         let outcomes = app.worker.wait(Duration::from_millis(20));
         app.absorb(outcomes);
         assert!(t.elapsed() < Duration::from_secs(300), "no result");
@@ -78,9 +78,8 @@ fn app_with(n: usize) -> LotshiftApp {
     let shown =
         run_comparison(&lots, &Selection::default(), &Settings::default(), &Silent).unwrap();
     let mut app = LotshiftApp::new(None, Saved::default());
-    app.slots = [Some(lots[0].clone()), Some(lots[1].clone())];
-    app.shown = Some(shown);
-    app.shown_current = true;
+    app.lots.slots = [Some(lots[0].clone()), Some(lots[1].clone())];
+    app.result = lotshift::gui::ResultState::Current(shown);
     app
 }
 

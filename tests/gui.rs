@@ -32,7 +32,7 @@ fn settle(h: &mut Harness<'static, LotshiftApp>) {
     let deadline = Instant::now() + Duration::from_secs(60);
     loop {
         h.step();
-        if !h.state().worker.busy() {
+        if h.state().worker.idle() {
             break;
         }
         assert!(Instant::now() < deadline, "background work did not finish");
@@ -44,10 +44,10 @@ fn settle(h: &mut Harness<'static, LotshiftApp>) {
 #[test]
 fn sample_lots_load_and_every_view_shows_its_content() {
     let mut h = harness();
-    assert!(h.state().shown_current);
+    assert!(h.state().result.is_current());
     // T² of the sample lots as numpy computes it (make_fixtures.py, key sample_lots).
     let want = sample_t2();
-    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    let t2 = h.state().result.shown().unwrap().comparison.hotelling.t2;
     assert!(((t2 - want) / want).abs() < 1e-10, "{t2} against {want}");
     h.get_by_label_contains(&format!("The lots differ at alpha 0.05: T² = {want:.2}"));
     h.get_by_label("hub length (mm)");
@@ -103,7 +103,7 @@ fn view_names_on_the_command_line_are_the_tab_titles() {
 #[test]
 fn a_bad_file_leaves_the_loaded_lots_alone() {
     let mut h = harness();
-    let t2_before = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    let t2_before = h.state().result.shown().unwrap().comparison.hotelling.t2;
     let dir = std::env::temp_dir().join(format!("lotshift-gui-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     let bad = dir.join("bad-lot.csv");
@@ -116,12 +116,15 @@ fn a_bad_file_leaves_the_loaded_lots_alone() {
     settle(&mut h);
     h.get_by_label_contains("bad-lot.csv, row 3, column B \"mass (g)\"");
     let state = h.state();
-    assert_eq!(state.slots[1].as_ref().unwrap().name, "candidate-route-b");
     assert_eq!(
-        state.shown.as_ref().unwrap().comparison.hotelling.t2,
+        state.lots.slots[1].as_ref().unwrap().name,
+        "candidate-route-b"
+    );
+    assert_eq!(
+        state.result.shown().unwrap().comparison.hotelling.t2,
         t2_before
     );
-    assert!(state.shown_current);
+    assert!(state.result.is_current());
     h.get_by_label("Dismiss").click();
     h.run_steps(2);
     assert!(h.state().messages.is_empty());
@@ -134,7 +137,7 @@ fn unticking_a_characteristic_updates_the_result() {
     h.get_by_label("mass (g)").click();
     h.run_steps(1);
     settle(&mut h);
-    let c = &h.state().shown.as_ref().unwrap().comparison;
+    let c = &h.state().result.shown().unwrap().comparison;
     assert_eq!(c.characteristics.len(), 4);
     assert!(!c.characteristics.iter().any(|n| n == "mass"));
     assert_eq!(c.hotelling.df1, 4.0);
@@ -143,11 +146,11 @@ fn unticking_a_characteristic_updates_the_result() {
 #[test]
 fn swapping_makes_the_candidate_the_reference() {
     let mut h = harness();
-    let d = h.state().shown.as_ref().unwrap().comparison.intervals[2].difference;
+    let d = h.state().result.shown().unwrap().comparison.intervals[2].difference;
     h.get_by_label("Swap lots").click();
     h.run_steps(1);
     settle(&mut h);
-    let c = &h.state().shown.as_ref().unwrap().comparison;
+    let c = &h.state().result.shown().unwrap().comparison;
     assert_eq!(c.lots[0].name, "candidate-route-b");
     assert!((c.intervals[2].difference + d).abs() < 1e-12 * d.abs());
 }
@@ -160,7 +163,7 @@ fn a_signed_summary_is_checked_against_the_loaded_lots() {
     std::fs::create_dir_all(&dir).unwrap();
     // Sign the record the window shows, with a throwaway key.
     let key = ed25519_key();
-    let record = h.state().shown.as_ref().unwrap().record.clone();
+    let record = h.state().result.shown().unwrap().record.clone();
     let summary = sign::sign(
         &record,
         &key,
@@ -172,14 +175,14 @@ fn a_signed_summary_is_checked_against_the_loaded_lots() {
     let path = dir.join("summary.json");
     std::fs::write(&path, summary.to_json()).unwrap();
     h.state_mut().check_summary(&path);
-    h.run_steps(2);
+    settle(&mut h);
     h.get_by_label_contains("signature valid — signed by Dana Whitfield");
     h.get_by_label_contains("every number matches the current result");
     // A tampered copy is reported as not verified.
     let bad = dir.join("bad.json");
     std::fs::write(&bad, summary.to_json().replacen("Dana", "Dan", 1)).unwrap();
     h.state_mut().check_summary(&bad);
-    h.run_steps(2);
+    settle(&mut h);
     h.get_by_label_contains("NOT VERIFIED");
     let _ = std::fs::remove_dir_all(dir);
 }
@@ -214,9 +217,9 @@ fn a_failed_or_cancelled_run_keeps_the_previous_result() {
         h.run_steps(3);
     }
     settle(&mut h);
-    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    let t2 = h.state().result.shown().unwrap().comparison.hotelling.t2;
     assert_eq!(
-        h.state().shown.as_ref().unwrap().comparison.characteristics,
+        h.state().result.shown().unwrap().comparison.characteristics,
         vec!["mass"]
     );
     h.get_by_label("mass (g)").click();
@@ -224,19 +227,19 @@ fn a_failed_or_cancelled_run_keeps_the_previous_result() {
     settle(&mut h);
     let state = h.state();
     assert_eq!(
-        state.shown.as_ref().unwrap().comparison.hotelling.t2,
+        state.result.shown().unwrap().comparison.hotelling.t2,
         t2,
         "previous result kept"
     );
-    assert!(!state.shown_current, "marked as not current");
+    assert!(!state.result.is_current(), "marked as not current");
     assert!(
         state
-            .run_error
-            .as_deref()
+            .result
+            .error()
             .unwrap_or_default()
             .contains("no characteristics"),
         "{:?}",
-        state.run_error
+        state.result.error()
     );
     h.get_by_label_contains("results shown are from a previous run");
     // Tick one back and cancel at once: the old result stays until a run finishes.
@@ -245,7 +248,7 @@ fn a_failed_or_cancelled_run_keeps_the_previous_result() {
     h.state_mut().worker.cancel();
     settle(&mut h);
     assert_eq!(
-        h.state().shown.as_ref().unwrap().comparison.hotelling.t2,
+        h.state().result.shown().unwrap().comparison.hotelling.t2,
         t2
     );
 }
@@ -257,7 +260,7 @@ fn one_file_with_a_lot_column_is_split_and_its_values_chosen() {
     h.state_mut().load_paths(Slot::Combined, vec![both]);
     settle(&mut h);
     {
-        let c = &h.state().shown.as_ref().unwrap().comparison;
+        let c = &h.state().result.shown().unwrap().comparison;
         assert_eq!(
             (c.lots[0].name.as_str(), c.lots[1].name.as_str()),
             ("A", "B")
@@ -265,14 +268,14 @@ fn one_file_with_a_lot_column_is_split_and_its_values_chosen() {
     }
     h.get_by_label_contains("Lots in both-routes.csv");
     // The split gives the same comparison as the two separate files (T² by numpy).
-    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    let t2 = h.state().result.shown().unwrap().comparison.hotelling.t2;
     let want = sample_t2();
     assert!(((t2 - want) / want).abs() < 1e-10, "{t2} against {want}");
     // Swapping swaps the lot values.
     h.get_by_label("Swap lots").click();
     h.run_steps(3);
     settle(&mut h);
-    let c = &h.state().shown.as_ref().unwrap().comparison;
+    let c = &h.state().result.shown().unwrap().comparison;
     assert_eq!(
         (c.lots[0].name.as_str(), c.lots[1].name.as_str()),
         ("B", "A")
@@ -289,7 +292,7 @@ fn a_summary_signed_in_the_window_from_a_split_file_verifies_on_the_command_line
     let dir = std::env::temp_dir().join(format!("lotshift-gui-split-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
     let key = ed25519_key();
-    let record = h.state().shown.as_ref().unwrap().record.clone();
+    let record = h.state().result.shown().unwrap().record.clone();
     let summary = sign::sign(
         &record,
         &key,
@@ -350,16 +353,19 @@ fn a_specification_file_loaded_in_the_window_updates_the_run_and_the_verdict() {
     h.state_mut().load_spec_path(path.clone());
     settle(&mut h);
     let state = h.state();
-    assert!(state.shown_current);
-    let d = state.shown.as_ref().unwrap().comparison.decision.clone();
+    assert!(state.result.is_current());
+    let d = state.result.shown().unwrap().comparison.decision.clone();
     let d = d.expect("a decision");
     // The record names the file and its SHA-256.
     let spec = &d.specification;
     assert_eq!(spec.file.as_deref(), Some("hub-spec.csv"));
     let sha = sha256_of(&std::fs::read(&path).unwrap());
     assert_eq!(spec.sha256.as_deref(), Some(sha.as_str()));
-    let recorded = state.shown.as_ref().unwrap().record.specification.clone();
-    assert_eq!(recorded.as_ref(), Some(spec));
+    let recorded = state.result.shown().unwrap().record.specification.clone();
+    assert_eq!(
+        recorded,
+        Some(lotshift::report::sections::SpecificationRecord::from(spec))
+    );
     // The same decision as the command line's path, and its outcome leads the verdict view.
     assert_eq!(d, pipeline_decision(&path));
     let outcome = d.outcome.expect("margins give an outcome");
@@ -394,7 +400,7 @@ fn a_bad_specification_file_leaves_the_lots_and_the_result_alone() {
     let mut h = harness();
     h.state_mut().load_spec_path(common::sample("hub-spec.csv"));
     settle(&mut h);
-    let before = h.state().shown.as_ref().unwrap().comparison.clone();
+    let before = h.state().result.shown().unwrap().comparison.clone();
     assert!(before.decision.is_some());
     let dir = std::env::temp_dir().join(format!("lotshift-gui-spec-{}", std::process::id()));
     std::fs::create_dir_all(&dir).unwrap();
@@ -416,10 +422,16 @@ fn a_bad_specification_file_leaves_the_lots_and_the_result_alone() {
     h.get_by_label_contains("missing.csv");
     let state = h.state();
     assert_eq!(state.messages.len(), 3, "{:?}", state.messages);
-    assert_eq!(state.slots[0].as_ref().unwrap().name, "reference-route-a");
-    assert_eq!(state.slots[1].as_ref().unwrap().name, "candidate-route-b");
-    assert!(state.shown_current);
-    let after = &state.shown.as_ref().unwrap().comparison;
+    assert_eq!(
+        state.lots.slots[0].as_ref().unwrap().name,
+        "reference-route-a"
+    );
+    assert_eq!(
+        state.lots.slots[1].as_ref().unwrap().name,
+        "candidate-route-b"
+    );
+    assert!(state.result.is_current());
+    let after = &state.result.shown().unwrap().comparison;
     assert_eq!(after.hotelling.t2, before.hotelling.t2);
     assert_eq!(after.decision, before.decision);
     assert_eq!(
@@ -432,7 +444,7 @@ fn a_bad_specification_file_leaves_the_lots_and_the_result_alone() {
 #[test]
 fn an_invalid_cell_holds_the_run_and_shows_the_problem_beside_it() {
     let mut h = harness();
-    let t2 = h.state().shown.as_ref().unwrap().comparison.hotelling.t2;
+    let t2 = h.state().result.shown().unwrap().comparison.hotelling.t2;
     h.get_by_label("Specification tab").click();
     h.run_steps(2);
     assert_eq!(h.state().saved.view, lotshift::gui::View::Specification);
@@ -449,11 +461,11 @@ fn an_invalid_cell_holds_the_run_and_shows_the_problem_beside_it() {
     h.run_steps(2);
     settle(&mut h);
     let state = h.state();
-    assert!(state.spec_blocked, "the run is held");
+    assert!(state.result.is_held(), "the run is held");
     assert!(!state.worker.busy(), "no run started");
-    assert!(!state.shown_current);
-    assert_eq!(state.shown.as_ref().unwrap().comparison.hotelling.t2, t2);
-    assert!(state.shown.as_ref().unwrap().comparison.decision.is_none());
+    assert!(!state.result.is_current());
+    assert_eq!(state.result.shown().unwrap().comparison.hotelling.t2, t2);
+    assert!(state.result.shown().unwrap().comparison.decision.is_none());
     // Beside the cell, and as the reason the run is held.
     h.get_by_label("lower limit: \"28,0,1\" is not a number");
     h.get_by_label_contains("1 problem to fix");
@@ -469,7 +481,7 @@ fn an_invalid_cell_holds_the_run_and_shows_the_problem_beside_it() {
     h.key_press(egui::Key::Enter);
     h.run_steps(2);
     settle(&mut h);
-    assert!(h.state().spec_blocked);
+    assert!(h.state().result.is_held());
     h.get_by_label("upper limit: must be above the lower limit 28.2");
     // Fixed: the run goes ahead with the edited specification, named as edited.
     h.get_by_label("hub length: lower limit").focus();
@@ -480,10 +492,10 @@ fn an_invalid_cell_holds_the_run_and_shows_the_problem_beside_it() {
     h.run_steps(2);
     settle(&mut h);
     let state = h.state();
-    assert!(!state.spec_blocked && state.shown_current);
+    assert!(!state.result.is_held() && state.result.is_current());
     let spec = &state
-        .shown
-        .as_ref()
+        .result
+        .shown()
         .unwrap()
         .comparison
         .decision
@@ -520,8 +532,8 @@ fn a_specification_saved_from_the_window_is_what_the_record_names() {
     h.get_by_label_contains("Specification written to");
     let state = h.state();
     let spec = &state
-        .shown
-        .as_ref()
+        .result
+        .shown()
         .unwrap()
         .comparison
         .decision
@@ -537,8 +549,8 @@ fn a_specification_saved_from_the_window_is_what_the_record_names() {
     assert_eq!(back.rows, state.spec.file.as_ref().unwrap().rows);
     assert_eq!(back.rows[2].margin, Some([-0.025, 0.025]));
     let d = state
-        .shown
-        .as_ref()
+        .result
+        .shown()
         .unwrap()
         .comparison
         .decision
@@ -547,7 +559,7 @@ fn a_specification_saved_from_the_window_is_what_the_record_names() {
     assert_eq!(d, pipeline_decision(&path));
     // Signed in the window, the summary verifies on the command line against the saved file.
     use lotshift::report::sign::{self, Meaning};
-    let record = state.shown.as_ref().unwrap().record.clone();
+    let record = state.result.shown().unwrap().record.clone();
     let summary = sign::sign(
         &record,
         &ed25519_key(),
@@ -591,7 +603,7 @@ fn a_specification_read_before_the_lots_waits_for_them() {
         let mut app = LotshiftApp::new(None, Saved::default());
         app.load_samples();
         // The lots are still being read: nothing has been absorbed yet.
-        assert!(app.slots.iter().all(Option::is_none));
+        assert!(app.lots.slots.iter().all(Option::is_none));
         let spec = load_spec(&file, &LoadOptions::default()).unwrap();
         app.absorb(vec![Outcome::SpecLoaded(Ok(spec))]);
         let mut h = Harness::builder()
@@ -599,8 +611,8 @@ fn a_specification_read_before_the_lots_waits_for_them() {
             .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
         settle(&mut h);
         let state = h.state();
-        assert!(state.shown_current);
-        let decision = &state.shown.as_ref().unwrap().comparison.decision;
+        assert!(state.result.is_current());
+        let decision = &state.result.shown().unwrap().comparison.decision;
         if refused {
             h.get_by_label_contains("did you mean \"hub length\"");
             assert!(decision.is_none());
@@ -613,4 +625,200 @@ fn a_specification_read_before_the_lots_waits_for_them() {
         }
     }
     let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn signing_runs_in_the_background_and_delivers_its_outcome() {
+    use lotshift::gui::action::Action;
+    use lotshift::gui::signing::KeyStatus;
+    use lotshift::report::sign;
+    let mut h = harness();
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-worker-sign-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let key = sign::keygen(&dir, "signing-key", "Dana Whitfield").unwrap();
+    h.state_mut().saved.signing_key = Some(key.display().to_string());
+    // Opening the form does not touch the disk: the key is looked at in the background.
+    h.state_mut().apply(Action::OpenSigning);
+    {
+        let state = h.state();
+        let form = state.signing.as_ref().unwrap();
+        assert_eq!(form.key, KeyStatus::Checking(key.display().to_string()));
+        assert!(!state.worker.idle(), "a job is under way");
+    }
+    settle(&mut h);
+    {
+        let form = h.state().signing.as_ref().unwrap();
+        assert_eq!(form.key, KeyStatus::Ready(key.display().to_string()));
+        assert_eq!(
+            form.signer, "Dana Whitfield",
+            "the name stored beside the key"
+        );
+    }
+    h.get_by_label_contains("signing key: ");
+    // Signing: the action returns at once, with the signature still to be made.
+    let out = dir.join("signed.json");
+    h.state_mut().apply(Action::Sign(Some(out.clone())));
+    {
+        let state = h.state();
+        assert!(state.signing.as_ref().unwrap().signing, "signing under way");
+        assert!(state.notice.is_none());
+        assert!(!state.worker.idle());
+    }
+    settle(&mut h);
+    let state = h.state();
+    assert!(state.signing.is_none(), "the form closes once signed");
+    assert_eq!(state.saved.signer_name, "Dana Whitfield");
+    let notice = state.notice.clone().unwrap_or_default();
+    assert!(notice.contains("Record written to"), "{notice}");
+    let summary = sign::verify_signature(&std::fs::read_to_string(&out).unwrap(), None).unwrap();
+    assert_eq!(summary.signature.signer, "Dana Whitfield");
+    assert_eq!(summary.signature.meaning, "review");
+    // Checked in the window (also in the background): the numbers are the current result's.
+    h.state_mut().apply(Action::CheckSummary(out.clone()));
+    assert!(!h.state().worker.idle());
+    settle(&mut h);
+    h.get_by_label_contains("signature valid — signed by Dana Whitfield");
+    h.get_by_label_contains("every number matches the current result");
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn a_key_that_does_not_read_is_reported_in_the_form_after_the_frame() {
+    use lotshift::gui::action::Action;
+    use lotshift::gui::signing::KeyStatus;
+    let mut h = harness();
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-bad-key-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    // A remembered key that is gone: the form offers to create one once it has looked.
+    h.state_mut().saved.signing_key = Some(dir.join("gone.pem").display().to_string());
+    h.state_mut().apply(Action::OpenSigning);
+    settle(&mut h);
+    assert_eq!(h.state().signing.as_ref().unwrap().key, KeyStatus::Missing);
+    h.get_by_label_contains("No signing key yet");
+    // A file that is there but is not a key.
+    let bad = dir.join("not-a-key.pem");
+    std::fs::write(&bad, "not a key").unwrap();
+    h.state_mut().saved.signing_key = Some(bad.display().to_string());
+    h.state_mut().apply(Action::OpenSigning);
+    settle(&mut h);
+    h.state_mut().signing.as_mut().unwrap().signer = "Dana Whitfield".into();
+    let out = dir.join("signed.json");
+    h.state_mut().apply(Action::Sign(Some(out.clone())));
+    // The key is read in the background: nothing is known yet when the action returns.
+    assert!(h.state().signing.as_ref().unwrap().problem.is_none());
+    settle(&mut h);
+    let form = h.state().signing.clone().expect("the form stays open");
+    assert!(!form.signing);
+    let problem = form.problem.unwrap_or_default();
+    assert!(problem.contains("not-a-key.pem"), "{problem}");
+    assert!(!out.exists());
+    h.run_steps(2);
+    h.get_by_label(&problem);
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn a_key_is_created_in_the_background_for_the_name_typed() {
+    use lotshift::gui::action::Action;
+    use lotshift::gui::signing::KeyStatus;
+    use lotshift::gui::worker::{Outcome, Purpose};
+    let mut h = harness();
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-new-key-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    h.state_mut().apply(Action::OpenSigning);
+    h.run_steps(2);
+    // The folder dialog closed with a folder, before a name was typed: the form asks for one.
+    let chosen = || Outcome::Chosen {
+        purpose: Purpose::KeyFolder,
+        path: Some(dir.clone()),
+    };
+    h.state_mut().absorb(vec![chosen()]);
+    h.run_steps(2);
+    h.get_by_label_contains("Type your printed name first");
+    h.state_mut().signing.as_mut().unwrap().signer = "Dana Whitfield".into();
+    h.state_mut().absorb(vec![chosen()]);
+    assert!(
+        !h.state().worker.idle(),
+        "the key is made in the background"
+    );
+    settle(&mut h);
+    let state = h.state();
+    let key = dir.join("lotshift-signing-key.pem");
+    assert_eq!(state.saved.signing_key, Some(key.display().to_string()));
+    assert_eq!(
+        state.signing.as_ref().unwrap().key,
+        KeyStatus::Ready(key.display().to_string())
+    );
+    assert!(key.exists());
+    h.get_by_label_contains("Signing key created");
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn sorting_the_table_is_the_view_state_and_persists() {
+    // The sort marks (▲ ▼) are not in the fonts the harness has: drawn as boxes here.
+    let mut app = LotshiftApp::new(None, Saved::default());
+    app.load_samples();
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .allow_missing_glyphs()
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    h.get_by_label("Characteristics").click();
+    h.run_steps(2);
+    h.get_by_label("mean ref").click();
+    h.run_steps(2);
+    assert_eq!(h.state().table.sort, Some((3, true)));
+    h.get_by_label("mean ref ▲").click();
+    h.run_steps(2);
+    assert_eq!(h.state().table.sort, Some((3, false)));
+    h.get_by_label("mean ref ▼");
+    assert_eq!(h.state().saved_now().table_sort, Some((3, false)));
+}
+
+#[test]
+fn a_result_arriving_leaves_the_focus_in_the_cell_being_typed_in() {
+    let mut h = harness();
+    h.get_by_label("Specification tab").click();
+    h.run_steps(2);
+    // Hold the runs (the line saying so shows above the table), then fix the cell and move
+    // on to the next one: a run starts, and its result arrives while the next cell has focus.
+    h.get_by_label("hub length: lower limit").focus();
+    h.run_steps(1);
+    h.get_by_label("hub length: lower limit").type_text("x");
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    settle(&mut h);
+    assert!(h.state().result.is_held());
+    h.get_by_label("hub length: lower limit").focus();
+    h.run_steps(1);
+    h.key_press_modifiers(egui::Modifiers::COMMAND, egui::Key::A);
+    h.get_by_label("hub length: lower limit").type_text("27.9");
+    h.get_by_label("hub length: upper limit").focus();
+    h.run_steps(1);
+    settle(&mut h);
+    assert!(h.state().result.is_current(), "the result arrived");
+    assert!(h.get_by_label("hub length: upper limit").is_focused());
+    h.get_by_label("hub length: upper limit").type_text("28.1");
+    h.key_press(egui::Key::Enter);
+    h.run_steps(2);
+    settle(&mut h);
+    let row = h.state().spec_editor.row("hub length").unwrap();
+    assert_eq!((row.lower.as_str(), row.upper.as_str()), ("27.9", "28.1"));
+    let d = h
+        .state()
+        .result
+        .current()
+        .unwrap()
+        .comparison
+        .decision
+        .clone();
+    let spec = d.expect("a decision").specification;
+    let entry = spec
+        .characteristics
+        .iter()
+        .find(|e| e.characteristic == "hub length")
+        .unwrap();
+    assert_eq!((entry.lower, entry.upper), (Some(27.9), Some(28.1)));
 }

@@ -7,8 +7,11 @@ use egui::RichText;
 use crate::analysis::decision::{CapabilityLot, SpecEntry};
 use crate::analysis::{format_confidence, format_p, format_sig};
 
-use super::app::{Saved, lot_colors, swatch};
+use super::action::Action;
 use super::shown::Shown;
+use super::theme::{lot_colors, lot_filled};
+use super::widgets::swatch;
+use super::words::observed_words;
 
 const HEADERS: [&str; 17] = [
     "characteristic",
@@ -121,8 +124,25 @@ pub fn table_tsv(s: &Shown) -> String {
     out
 }
 
-/// Draws the table view.
-pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
+/// The table view's own state: how the table is sorted.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct TableState {
+    /// Column sorted by, and whether ascending.
+    pub sort: Option<(usize, bool)>,
+}
+
+impl TableState {
+    /// Sorts by column `k`, ascending; by the same column again, the other way.
+    pub fn sort_by(&mut self, k: usize) {
+        self.sort = match self.sort {
+            Some((c, asc)) if c == k => Some((k, !asc)),
+            _ => Some((k, true)),
+        };
+    }
+}
+
+/// Draws the table view; a click on a column title asks for that sort.
+pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, state: &TableState, actions: &mut Vec<Action>) {
     ui.horizontal(|ui| {
         if ui
             .button("Copy table")
@@ -134,7 +154,7 @@ pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
         ui.weak("Click a column title to sort. Difference = reference minus candidate; p-values are one characteristic at a time.");
     });
     let mut order: Vec<usize> = (0..s.comparison.per_characteristic.len()).collect();
-    if let Some((col, asc)) = saved.table_sort {
+    if let Some((col, asc)) = state.sort {
         let rows = &s.comparison.per_characteristic;
         order.sort_by(|&a, &b| {
             let o = if col == 0 {
@@ -151,16 +171,13 @@ pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
             .num_columns(HEADERS.len())
             .show(ui, |ui| {
                 for (k, h) in HEADERS.iter().enumerate() {
-                    let mark = match saved.table_sort {
+                    let mark = match state.sort {
                         Some((c, true)) if c == k => " ▲",
                         Some((c, false)) if c == k => " ▼",
                         _ => "",
                     };
                     if ui.button(format!("{h}{mark}")).clicked() {
-                        saved.table_sort = match saved.table_sort {
-                            Some((c, asc)) if c == k => Some((k, !asc)),
-                            _ => Some((k, true)),
-                        };
+                        actions.push(Action::SortTable(k));
                     }
                 }
                 ui.end_row();
@@ -245,7 +262,7 @@ fn capability_ui(ui: &mut egui::Ui, s: &Shown) {
                         ui.label("");
                     }
                     ui.horizontal(|ui| {
-                        swatch(ui, colors[g], crate::palette::LOTS[g].filled);
+                        swatch(ui, colors[g], lot_filled(g));
                         ui.label(&c.lots[g].name);
                     });
                     lot_cells(ui, l);
@@ -257,7 +274,7 @@ fn capability_ui(ui: &mut egui::Ui, s: &Shown) {
         ui.add_space(4.0);
         for (g, l) in ins.lots.iter().enumerate() {
             ui.horizontal(|ui| {
-                swatch(ui, colors[g], crate::palette::LOTS[g].filled);
+                swatch(ui, colors[g], lot_filled(g));
                 ui.label(format!(
                     "{}: inside every limit at once, expected {} ± {} (normal model){}",
                     c.lots[g].name,
@@ -265,7 +282,7 @@ fn capability_ui(ui: &mut egui::Ui, s: &Shown) {
                     format_sig(l.error, 2),
                     l.observed.map_or(String::new(), |o| format!(
                         "; observed: {} inside",
-                        super::specification::observed_words(o)
+                        observed_words(o)
                     ))
                 ));
             });

@@ -6,8 +6,9 @@ use egui_plot::{Bar, BarChart, Legend, Plot, VLine};
 
 use crate::analysis::format_sig;
 
-use super::app::lot_colors;
 use super::shown::Shown;
+use super::theme::{lot_colors, lot_filled};
+use super::widgets::row_names;
 
 /// Draws the direction view.
 pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
@@ -44,7 +45,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
     Plot::new("coefficients")
         .height(half.max(160.0))
         .allow_scroll(false)
-        .y_axis_formatter(super::intervals::row_names(names))
+        .y_axis_formatter(row_names(names))
         .y_axis_min_width(120.0)
         .x_axis_label("standardized coefficient")
         .show(ui, |plot| {
@@ -82,7 +83,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
     };
     let chart = |g: usize, color: Color32, name: &str| {
         // The reference lot's bars are filled, the candidate's drawn as outlines (palette).
-        let filled = crate::palette::LOTS[g].filled;
+        let filled = lot_filled(g);
         let bars = (0..h.counts[g].len())
             .map(|b| {
                 let bar = Bar::new(h.start + (b as f64 + 0.5) * h.width, h.density(g, b))

@@ -13,6 +13,8 @@ use crate::analysis::decision::{Equivalence, EquivalenceRow};
 use crate::analysis::{format_confidence, format_p, format_sig};
 
 use super::shown::Shown;
+use super::widgets::{row_names, swatch};
+use super::words::margin_words;
 
 /// Colours of the margin chart for the window's theme: the margin band, and an equivalence
 /// interval inside its margin, not shown inside, wholly outside.
@@ -60,20 +62,6 @@ const SIM: Color32 = Color32::from_rgb(150, 150, 205);
 const BONF: Color32 = Color32::from_rgb(80, 90, 170);
 const ONE: Color32 = Color32::from_rgb(20, 30, 90);
 const POINT: Color32 = Color32::from_rgb(200, 60, 60);
-
-/// A y-axis formatter naming the characteristic drawn at y = −k (row k from the top).
-pub fn row_names(
-    names: Vec<String>,
-) -> impl Fn(egui_plot::GridMark, &std::ops::RangeInclusive<f64>) -> String {
-    move |mark, _| {
-        let k = -mark.value;
-        if (k - k.round()).abs() < 1e-9 && k >= 0.0 && (k as usize) < names.len() {
-            names[k as usize].clone()
-        } else {
-            String::new()
-        }
-    }
-}
 
 /// Draws the interval view.
 pub fn intervals_ui(ui: &mut egui::Ui, s: &mut Shown) {
@@ -139,7 +127,7 @@ fn difference_chart(ui: &mut egui::Ui, s: &Shown, height: f32) {
             (ONE, "one at a time"),
             (POINT, "difference"),
         ] {
-            super::app::swatch(ui, color, true);
+            swatch(ui, color, true);
             ui.label(name);
             ui.add_space(10.0);
         }
@@ -230,7 +218,7 @@ fn margin_chart(ui: &mut egui::Ui, s: &Shown, eq: &Equivalence, height: f32) {
             .into_iter()
             .enumerate()
         {
-            super::app::swatch(ui, colors[k], true);
+            swatch(ui, colors[k], true);
             ui.label(name);
             ui.add_space(10.0);
         }
@@ -320,10 +308,7 @@ fn equivalence_table(ui: &mut egui::Ui, s: &Shown, eq: &Equivalence) {
                     .map(|u| format!(" {u}"))
                     .unwrap_or_default();
                 ui.label(&r.characteristic);
-                ui.label(format!(
-                    "{}{unit}",
-                    super::specification::margin_words(r.margin)
-                ));
+                ui.label(format!("{}{unit}", margin_words(r.margin)));
                 ui.label(format!("{}{unit}", format_sig(r.difference, 4)));
                 ui.label(format!(
                     "[{}, {}]",

@@ -1,20 +1,41 @@
 //! The desktop window (eframe/egui + egui_plot). It renders finished results; all statistics
 //! run in a background worker.
+//!
+//! Imports go one way: the views and panels import only the shared modules (`action`,
+//! `state`, `shown`, `theme`, `widgets`, `words`, their own state's module) and never `app`,
+//! which imports them all and applies their [`action::Action`]s and the worker's
+//! [`worker::Outcome`]s in one place.
 
+pub mod action;
 pub mod app;
 pub mod characteristics;
 pub mod direction;
 pub mod intervals;
+pub mod jobs;
+pub mod lots;
 pub mod overview;
 pub mod pairs;
+pub mod screenshot;
 pub mod shown;
+pub mod side;
+pub mod signing;
+pub mod spec_cells;
+pub mod spec_editor;
 pub mod specification;
+pub mod state;
+pub mod theme;
+pub mod toolbar;
+pub mod widgets;
+pub mod words;
 pub mod worker;
 
 use std::path::PathBuf;
 use std::process::ExitCode;
 
-pub use app::{LotshiftApp, Saved, View};
+use crate::exit::EXIT_BAD_INPUT;
+
+pub use app::LotshiftApp;
+pub use state::{ResultState, Saved, View};
 
 /// Opens the window (with `files`, or the bundled sample lots), or renders it to `screenshot`
 /// and exits.
@@ -35,7 +56,7 @@ pub fn run_with_spec(
         eprintln!(
             "lotshift: error: give two lot files (reference, then candidate), or none for the sample lots"
         );
-        return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+        return ExitCode::from(EXIT_BAD_INPUT);
     }
     let start_view = match view.as_deref().map(View::from_name) {
         None => None,
@@ -45,7 +66,7 @@ pub fn run_with_spec(
                 "lotshift: error: unknown view; use one of: {}",
                 View::ALL.map(View::name).join(", ")
             );
-            return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+            return ExitCode::from(EXIT_BAD_INPUT);
         }
     };
     let taking_screenshot = screenshot.is_some();
@@ -94,7 +115,7 @@ pub fn run_with_spec(
     );
     if let Err(e) = run {
         eprintln!("lotshift: error: cannot open the window: {e}");
-        return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+        return ExitCode::from(EXIT_BAD_INPUT);
     }
     let outcome = result_slot.lock().ok().and_then(|s| s.clone());
     if let Some(done) = outcome {
@@ -102,11 +123,11 @@ pub fn run_with_spec(
             Some(Ok(())) => {}
             Some(Err(e)) => {
                 eprintln!("lotshift: error: screenshot failed: {e}");
-                return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+                return ExitCode::from(EXIT_BAD_INPUT);
             }
             None => {
                 eprintln!("lotshift: error: the window closed before the screenshot was taken");
-                return ExitCode::from(crate::cli::EXIT_BAD_INPUT);
+                return ExitCode::from(EXIT_BAD_INPUT);
             }
         }
     }

@@ -8,9 +8,12 @@ use crate::analysis::decision::{Decision, Outcome};
 use crate::analysis::{format_confidence, format_p, format_sig};
 use crate::report::{box_m_line, mardia_line, permutation_line, unequal_line};
 
-use super::app::{View, lot_colors, swatch, test_line};
+use super::action::Action;
 use super::shown::Shown;
-use super::specification::{EDITED, MARGIN_CAUTION, margin_words, observed_words};
+use super::state::View;
+use super::theme::{lot_colors, lot_filled};
+use super::widgets::swatch;
+use super::words::{EDITED, MARGIN_CAUTION, margin_words, observed_words, test_line};
 
 /// The colour an outcome is written in.
 fn outcome_color(ui: &egui::Ui, o: Outcome) -> egui::Color32 {
@@ -21,8 +24,8 @@ fn outcome_color(ui: &egui::Ui, o: Outcome) -> egui::Color32 {
     }
 }
 
-/// Draws the verdict view; the link to the specification view sets `view`.
-pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, view: &mut View) {
+/// Draws the verdict view; the link to the specification view asks for that tab.
+pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) {
     egui::ScrollArea::vertical().show(ui, |ui| {
         let c = &s.comparison;
         let h = &c.hotelling;
@@ -57,7 +60,7 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, view: &mut View) {
         for w in &c.warnings {
             ui.label(RichText::new(format!("Warning: {w}")).color(ui.visuals().warn_fg_color));
         }
-        decision_ui(ui, s, view);
+        decision_ui(ui, s, actions);
         ui.add_space(8.0);
         ui.strong("Hotelling's two-sample T² test");
         egui::Grid::new("test")
@@ -161,7 +164,7 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, view: &mut View) {
 
 /// Whether the shift matters: the margins, equivalence per characteristic and at once, the
 /// fraction inside every limit; or, without margins, how to give them.
-fn decision_ui(ui: &mut egui::Ui, s: &Shown, view: &mut View) {
+fn decision_ui(ui: &mut egui::Ui, s: &Shown, actions: &mut Vec<Action>) {
     let c = &s.comparison;
     let decision = c.decision.as_ref();
     if decision.and_then(|d| d.outcome).is_none() {
@@ -169,7 +172,7 @@ fn decision_ui(ui: &mut egui::Ui, s: &Shown, view: &mut View) {
             ui.spacing_mut().item_spacing.x = 4.0;
             ui.label("Equivalence is not assessed: it needs margins. Type them, load a specification file or choose a margin rule in the");
             if ui.link("Specification tab").clicked() {
-                *view = View::Specification;
+                actions.push(Action::ShowView(View::Specification));
             }
         });
         if let Some(d) = decision {
@@ -298,7 +301,7 @@ fn in_spec_ui(ui: &mut egui::Ui, s: &Shown, d: &Decision) {
     ));
     for (g, l) in ins.lots.iter().enumerate() {
         ui.horizontal(|ui| {
-            swatch(ui, colors[g], crate::palette::LOTS[g].filled);
+            swatch(ui, colors[g], lot_filled(g));
             ui.label(format!(
                 "{}: expected {} ppm outside{}",
                 s.comparison.lots[g].name,

@@ -7,8 +7,40 @@ use egui_plot::{HLine, Legend, Line, LineStyle, MarkerShape, Plot, PlotPoints, P
 
 use crate::analysis::{format_confidence, format_sig};
 
-use super::app::{Saved, lot_colors};
+use super::action::Action;
 use super::shown::{SMALL_POINTS, Shown};
+use super::state::Saved;
+use super::theme::{lot_colors, lot_filled};
+
+/// The pair view's own state (kept between sessions in [`Saved`]).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct PairsState {
+    /// Pair shown (characteristic names, across and up).
+    pub pair: Option<[String; 2]>,
+    /// Show the grid of leading pairs.
+    pub grid: bool,
+    /// Draw the mean-difference region as the shadow of the full T² region (else the pair
+    /// alone).
+    pub difference_shadow: bool,
+}
+
+impl PairsState {
+    /// The state kept from the last session.
+    pub fn from_saved(saved: &Saved) -> Self {
+        PairsState {
+            pair: saved.pair.clone(),
+            grid: saved.pair_grid,
+            difference_shadow: saved.difference_shadow,
+        }
+    }
+
+    /// Keeps the state for the next session.
+    pub fn save_to(&self, saved: &mut Saved) {
+        saved.pair = self.pair.clone();
+        saved.pair_grid = self.grid;
+        saved.difference_shadow = self.difference_shadow;
+    }
+}
 
 /// Colour of the specification limits.
 const LIMITS: Color32 = Color32::from_rgb(40, 140, 85);
@@ -36,12 +68,12 @@ fn index_of(names: &[String], n: &str) -> Option<usize> {
 }
 
 /// The pair to show: the saved one if it still exists, else the two leading drivers.
-pub fn current_pair(s: &Shown, saved: &Saved) -> Option<(usize, usize)> {
+pub fn current_pair(s: &Shown, state: &PairsState) -> Option<(usize, usize)> {
     let names = &s.comparison.characteristics;
     if names.len() < 2 {
         return None;
     }
-    if let Some([a, b]) = &saved.pair
+    if let Some([a, b]) = &state.pair
         && let (Some(i), Some(j)) = (index_of(names, a), index_of(names, b))
         && i != j
     {
@@ -60,14 +92,22 @@ fn label(s: &Shown, k: usize) -> String {
     }
 }
 
-/// Draws the pair view.
-pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
+/// Draws the pair view, with the data ellipses at `coverage`; choosing a pair or an option
+/// asks for it.
+pub fn pairs_ui(
+    ui: &mut egui::Ui,
+    s: &mut Shown,
+    state: &PairsState,
+    coverage: f64,
+    actions: &mut Vec<Action>,
+) {
     let colors = lot_colors(ui);
-    let Some((mut i, mut j)) = current_pair(s, saved) else {
+    let Some((mut i, mut j)) = current_pair(s, state) else {
         ui.label("Pairs need at least two characteristics.");
         return;
     };
     let names = s.comparison.characteristics.clone();
+    let mut grid = state.grid;
     ui.horizontal(|ui| {
         ui.label("across");
         egui::ComboBox::from_id_salt("pair-x")
@@ -85,12 +125,16 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                     ui.selectable_value(&mut j, k, n);
                 }
             });
-        ui.checkbox(&mut saved.pair_grid, "grid of leading pairs");
+        if ui.checkbox(&mut grid, "grid of leading pairs").changed() {
+            actions.push(Action::ShowPairGrid(grid));
+        }
     });
     if i != j {
-        saved.pair = Some([names[i].clone(), names[j].clone()]);
+        let pair = [names[i].clone(), names[j].clone()];
+        if state.pair.as_ref() != Some(&pair) {
+            actions.push(Action::SelectPair(pair));
+        }
     }
-    let coverage = saved.coverage;
     let view = s.pair(i, j, coverage);
     let conf = format_confidence(s.comparison.alpha);
     let (xl, xu) = limits(s, i);
@@ -110,7 +154,7 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
         .small(),
     );
     let avail = ui.available_size();
-    let grid_w = if saved.pair_grid {
+    let grid_w = if grid {
         (avail.x * 0.36).min(420.0)
     } else {
         0.0
@@ -182,7 +226,7 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                         plot.points(
                             Points::new(name.clone(), PlotPoints::Borrowed(&view.points[*g]))
                                 .color(color.gamma_multiply(0.8))
-                                .filled(crate::palette::LOTS[*g].filled)
+                                .filled(lot_filled(*g))
                                 .radius(2.8),
                         );
                         // Same name as the units: one legend entry per lot.
@@ -205,7 +249,7 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                         plot.points(
                             Points::new(name.clone(), vec![view.geometry.means[*g]])
                                 .shape(MarkerShape::Diamond)
-                                .filled(crate::palette::LOTS[*g].filled)
+                                .filled(lot_filled(*g))
                                 .radius(7.0)
                                 .color(*color)
                                 .allow_hover(false),
@@ -220,9 +264,9 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
                 ));
             }
             ui.add_space(4.0);
-            difference_ui(ui, s, saved, &view.geometry, i, j);
+            difference_ui(ui, s, state, actions, &view.geometry, i, j);
         });
-        if saved.pair_grid {
+        if grid {
             ui.vertical(|ui| {
                 ui.set_width(grid_w);
                 clicked_pair = grid_ui(ui, s, coverage, grid_w);
@@ -230,26 +274,31 @@ pub fn pairs_ui(ui: &mut egui::Ui, s: &mut Shown, saved: &mut Saved) {
         }
     });
     if let Some((a, b)) = clicked_pair {
-        saved.pair = Some([names[a].clone(), names[b].clone()]);
+        actions.push(Action::SelectPair([names[a].clone(), names[b].clone()]));
     }
 }
 
 fn difference_ui(
     ui: &mut egui::Ui,
     s: &Shown,
-    saved: &mut Saved,
+    state: &PairsState,
+    actions: &mut Vec<Action>,
     g: &crate::analysis::PairGeometry,
     i: usize,
     j: usize,
 ) {
+    let mut shadow = state.difference_shadow;
     ui.horizontal(|ui| {
         ui.label("Mean difference region:");
-        ui.radio_value(&mut saved.difference_shadow, true, "consistent with all characteristics")
+        ui.radio_value(&mut shadow, true, "consistent with all characteristics")
             .on_hover_text("The shadow of the full T² confidence region on this pair: agrees with the simultaneous intervals");
-        ui.radio_value(&mut saved.difference_shadow, false, "this pair alone")
+        ui.radio_value(&mut shadow, false, "this pair alone")
             .on_hover_text("A confidence region for these two mean differences only (2-characteristic critical value)");
     });
-    let outline = if saved.difference_shadow {
+    if shadow != state.difference_shadow {
+        actions.push(Action::DifferenceShadow(shadow));
+    }
+    let outline = if shadow {
         &g.difference_shadow
     } else {
         &g.difference_pair
@@ -351,7 +400,7 @@ fn grid_ui(ui: &mut egui::Ui, s: &mut Shown, coverage: f64, width: f32) -> Optio
                             plot.points(
                                 Points::new(format!("lot {g}"), PlotPoints::Borrowed(pts))
                                     .color(color.gamma_multiply(0.6))
-                                    .filled(crate::palette::LOTS[g].filled)
+                                    .filled(lot_filled(g))
                                     .radius(1.2)
                                     .allow_hover(false),
                             );

@@ -1,16 +1,18 @@
-//! Background work for the window: loading files and running comparisons off the UI thread,
-//! with progress, cancellation, panic capture, and a run number so that a result from an old
-//! run never replaces a newer one.
+//! Background work for the window: comparisons off the UI thread, with progress,
+//! cancellation, panic capture, and a run number so that a result from an old run never
+//! replaces a newer one; and the channel every other background job
+//! (module `jobs`: files, dialogs, keys, signatures) delivers its [`Outcome`] through,
+//! with the count of work under way.
 
 use std::panic::{AssertUnwindSafe, catch_unwind};
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{Receiver, Sender, channel};
+use std::sync::mpsc::{self, Receiver, channel};
 use std::sync::{Arc, Mutex};
 
 use crate::analysis::{self, Comparison, Progress, Settings};
-use crate::data::spec::{Spec, SpecRow};
-use crate::data::{self, LoadOptions, Lot, Selection};
+use crate::data::spec::Spec;
+use crate::data::{self, Lot, Selection};
 use crate::pipeline::{self, Request, SpecRequest};
 use crate::report::Record;
 
@@ -90,6 +92,62 @@ pub enum Outcome {
         /// Chosen files (empty when cancelled).
         paths: Vec<PathBuf>,
     },
+    /// A remembered signing key was looked at: whether it is there, and the printed name
+    /// stored beside it.
+    KeyLooked {
+        /// The key's path as remembered.
+        path: String,
+        /// The file is there.
+        exists: bool,
+        /// The printed name beside it, if any.
+        signer: Option<String>,
+    },
+    /// A chosen signing key was read: its path and the printed name beside it, or why it
+    /// cannot be used.
+    KeyRead(Result<(PathBuf, Option<String>), String>),
+    /// A new signing key was made: the private key's path, or why not.
+    KeyCreated(Result<PathBuf, String>),
+    /// The record was signed (and is being saved): the printed name used, or why not.
+    Signed(Result<String, String>),
+    /// A signed summary was checked: what was found (the signature valid), or the message
+    /// (unreadable, NOT VERIFIED).
+    SummaryChecked(Result<String, String>),
+}
+
+/// Which count of work under way an outcome ends.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(super) enum Ends {
+    /// None: the outcome of a dialog (which may be cancelled, and then nothing arrives), or a
+    /// delivery of a run (runs are followed by their run number).
+    Nothing,
+    /// A file read.
+    Load,
+    /// A file written to a path given (not chosen in a dialog).
+    Save,
+    /// A key, signature or summary job.
+    Job,
+}
+
+struct Envelope {
+    outcome: Outcome,
+    ends: Ends,
+}
+
+/// Where a background job delivers: the worker's channel, and a repaint request.
+#[derive(Clone)]
+pub(super) struct Deliver {
+    tx: mpsc::Sender<Envelope>,
+    ctx: Option<egui::Context>,
+}
+
+impl Deliver {
+    /// Delivers `outcome`, which ends one piece of work counted as `ends`.
+    pub(super) fn send(&self, outcome: Outcome, ends: Ends) {
+        let _ = self.tx.send(Envelope { outcome, ends });
+        if let Some(c) = &self.ctx {
+            c.request_repaint();
+        }
+    }
 }
 
 /// Progress and cancellation of one run, shared with its thread.
@@ -118,16 +176,17 @@ impl Progress for RunHandle {
 
 /// The window's background worker.
 pub struct Worker {
-    tx: Sender<Outcome>,
-    rx: Receiver<Outcome>,
-    ctx: Option<egui::Context>,
+    deliver: Deliver,
+    rx: Receiver<Envelope>,
     latest_run: u64,
     active: Option<Arc<RunHandle>>,
     loads_pending: usize,
     saves_pending: usize,
+    jobs_pending: usize,
 }
 
-fn panic_text(e: &Box<dyn std::any::Any + Send>) -> String {
+/// A panic's message.
+pub(super) fn panic_text(e: &Box<dyn std::any::Any + Send>) -> String {
     e.downcast_ref::<&str>()
         .map(|s| s.to_string())
         .or_else(|| e.downcast_ref::<String>().cloned())
@@ -140,195 +199,31 @@ pub fn sha256_hex(bytes: &[u8]) -> String {
     data::hex(&sha2::Sha256::digest(bytes))
 }
 
-fn load_source(src: &Source, options: &LoadOptions) -> Result<Lot, String> {
-    match src {
-        Source::Path(p) => data::load(p, options),
-        Source::Embedded(name, bytes) => data::load_bytes(name, bytes, options),
-    }
-    .map_err(|e| e.to_string())
-}
-
 impl Worker {
     /// A worker that asks `ctx` (when given) to repaint whenever something finishes.
     pub fn new(ctx: Option<egui::Context>) -> Self {
         let (tx, rx) = channel();
         Worker {
-            tx,
+            deliver: Deliver { tx, ctx },
             rx,
-            ctx,
             latest_run: 0,
             active: None,
             loads_pending: 0,
             saves_pending: 0,
+            jobs_pending: 0,
         }
     }
 
-    fn send(tx: &Sender<Outcome>, ctx: &Option<egui::Context>, o: Outcome) {
-        let _ = tx.send(o);
-        if let Some(c) = ctx {
-            c.request_repaint();
+    /// Counts one more piece of work under way as `ends` (an outcome sent with the same
+    /// `ends` ends it), and gives the job its way to deliver.
+    pub(super) fn begin(&mut self, ends: Ends) -> Deliver {
+        match ends {
+            Ends::Nothing => {}
+            Ends::Load => self.loads_pending += 1,
+            Ends::Save => self.saves_pending += 1,
+            Ends::Job => self.jobs_pending += 1,
         }
-    }
-
-    /// Reads files for `slot` in the background.
-    pub fn load(&mut self, slot: Slot, sources: Vec<Source>) {
-        self.loads_pending += 1;
-        let tx = self.tx.clone();
-        let ctx = self.ctx.clone();
-        std::thread::spawn(move || {
-            let options = LoadOptions::default();
-            let result = catch_unwind(AssertUnwindSafe(|| {
-                let lots: Result<Vec<Lot>, String> = if sources.len() == 2 {
-                    // Both lots are parsed in parallel.
-                    std::thread::scope(|s| {
-                        let h = s.spawn(|| load_source(&sources[0], &options));
-                        let b = load_source(&sources[1], &options);
-                        let a = h.join().unwrap_or_else(|e| Err(panic_text(&e)));
-                        Ok(vec![a?, b?])
-                    })
-                } else {
-                    sources.iter().map(|s| load_source(s, &options)).collect()
-                };
-                lots
-            }))
-            .unwrap_or_else(|e| Err(format!("internal error while reading: {}", panic_text(&e))));
-            Self::send(&tx, &ctx, Outcome::Loaded { slot, result });
-        });
-    }
-
-    /// Opens a native file dialog in the background (the window keeps drawing meanwhile).
-    pub fn pick(&mut self, slot: Slot) {
-        let tx = self.tx.clone();
-        let ctx = self.ctx.clone();
-        std::thread::spawn(move || {
-            let dialog = rfd::FileDialog::new()
-                .set_title(match slot {
-                    Slot::Reference => "Open the reference lot",
-                    Slot::Candidate => "Open the candidate lot",
-                    Slot::Both => "Open two lot files (reference first)",
-                    Slot::Combined => "Open one file holding both lots",
-                })
-                .add_filter(
-                    "Lot files",
-                    &["csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods"],
-                )
-                .add_filter("All files", &["*"]);
-            let paths = if slot == Slot::Both {
-                dialog.pick_files().unwrap_or_default()
-            } else {
-                dialog.pick_file().into_iter().collect()
-            };
-            Self::send(&tx, &ctx, Outcome::Picked { slot, paths });
-        });
-    }
-
-    /// Opens a dialog for a key, a key folder or a summary, in the background.
-    pub fn choose(&mut self, purpose: Purpose) {
-        let tx = self.tx.clone();
-        let ctx = self.ctx.clone();
-        std::thread::spawn(move || {
-            let path = match purpose {
-                Purpose::SigningKey => rfd::FileDialog::new()
-                    .set_title("Choose your private signing key")
-                    .add_filter("PEM key", &["pem"])
-                    .pick_file(),
-                Purpose::KeyFolder => rfd::FileDialog::new()
-                    .set_title("Folder for the new signing key")
-                    .pick_folder(),
-                Purpose::Summary => rfd::FileDialog::new()
-                    .set_title("Open a signed summary")
-                    .add_filter("JSON", &["json"])
-                    .pick_file(),
-                Purpose::Specification => rfd::FileDialog::new()
-                    .set_title("Open a specification file (limits and margins)")
-                    .add_filter(
-                        "Specification files",
-                        &["csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods"],
-                    )
-                    .add_filter("All files", &["*"])
-                    .pick_file(),
-            };
-            Self::send(&tx, &ctx, Outcome::Chosen { purpose, path });
-        });
-    }
-
-    /// Asks where to save `contents` (a native dialog, in the background) and writes it there
-    /// atomically.
-    pub fn export(&mut self, suggested_name: String, contents: String) {
-        let tx = self.tx.clone();
-        let ctx = self.ctx.clone();
-        std::thread::spawn(move || {
-            let picked = rfd::FileDialog::new()
-                .set_title("Export the comparison record")
-                .set_file_name(&suggested_name)
-                .add_filter("JSON", &["json"])
-                .save_file();
-            if let Some(path) = picked {
-                let result = crate::report::write_atomic(&path, contents.as_bytes())
-                    .map(|()| path)
-                    .map_err(|e| format!("the record was not written: {e}"));
-                Self::send(&tx, &ctx, Outcome::Exported(result));
-            }
-        });
-    }
-
-    /// Reads a specification file in the background. A file that cannot be read, or whose
-    /// content is wrong, arrives as the loader's message (file, row, column); nothing panics.
-    pub fn load_spec(&mut self, path: PathBuf) {
-        self.loads_pending += 1;
-        let tx = self.tx.clone();
-        let ctx = self.ctx.clone();
-        std::thread::spawn(move || {
-            let result = catch_unwind(AssertUnwindSafe(|| {
-                data::spec::load_spec(&path, &LoadOptions::default()).map_err(|e| e.to_string())
-            }))
-            .unwrap_or_else(|e| {
-                Err(format!(
-                    "{}: internal error while reading: {}",
-                    path.display(),
-                    panic_text(&e)
-                ))
-            });
-            Self::send(&tx, &ctx, Outcome::SpecLoaded(result));
-        });
-    }
-
-    /// Writes specification rows as CSV ([`data::spec::to_csv`]) atomically, to `path` or,
-    /// without one, where a save dialog (in the background) says. Delivers the file as
-    /// saved: its path and name, the SHA-256 of the bytes written, and the rows.
-    pub fn save_spec(&mut self, suggested_name: String, rows: Vec<SpecRow>, path: Option<PathBuf>) {
-        // A save to a given path counts as work under way (a dialog does not: it may be
-        // cancelled, and then nothing arrives).
-        if path.is_some() {
-            self.saves_pending += 1;
-        }
-        let tx = self.tx.clone();
-        let ctx = self.ctx.clone();
-        std::thread::spawn(move || {
-            let picked = path.or_else(|| {
-                rfd::FileDialog::new()
-                    .set_title("Save the specification")
-                    .set_file_name(&suggested_name)
-                    .add_filter("CSV", &["csv"])
-                    .save_file()
-            });
-            let Some(path) = picked else { return };
-            let text = data::spec::to_csv(&rows);
-            let result = crate::report::write_atomic(&path, text.as_bytes())
-                .map(|()| {
-                    let shown = path.display().to_string();
-                    Spec {
-                        file_name: path
-                            .file_name()
-                            .map_or_else(|| shown.clone(), |n| n.to_string_lossy().into_owned()),
-                        path: shown,
-                        sha256: sha256_hex(text.as_bytes()),
-                        rows,
-                    }
-                })
-                .map_err(|e| format!("the specification was not written: {e}"));
-            Self::send(&tx, &ctx, Outcome::SpecSaved(result));
-        });
+        self.deliver.clone()
     }
 
     /// Starts a comparison, cancelling any run still going. Returns its run number.
@@ -339,21 +234,19 @@ impl Worker {
             id: self.latest_run,
             cancel: AtomicBool::new(false),
             stage: Mutex::new(("starting".into(), 0.0)),
-            repaint: self.ctx.clone(),
+            repaint: self.deliver.ctx.clone(),
         });
         self.active = Some(handle.clone());
-        let tx = self.tx.clone();
-        let ctx = self.ctx.clone();
+        let out = self.begin(Ends::Nothing);
         std::thread::spawn(move || {
             let deliver = |result: Result<Box<Shown>, String>, last: bool| {
-                Self::send(
-                    &tx,
-                    &ctx,
+                out.send(
                     Outcome::Compared {
                         run: handle.id,
                         result,
                         last,
                     },
+                    Ends::Nothing,
                 );
             };
             let outcome = catch_unwind(AssertUnwindSafe(|| {
@@ -386,44 +279,52 @@ impl Worker {
             .and_then(|h| h.stage.lock().ok().map(|s| s.clone()))
     }
 
-    /// True while a comparison or a load is under way.
+    /// True while a comparison, a load or a save to a given path is under way.
     pub fn busy(&self) -> bool {
         self.active.is_some() || self.loads_pending > 0 || self.saves_pending > 0
+    }
+
+    /// Nothing under way at all (dialogs aside): not [`Self::busy`], and no job.
+    pub fn idle(&self) -> bool {
+        !self.busy() && self.jobs_pending == 0
     }
 
     /// Finished work, oldest first; results of superseded runs are dropped here.
     pub fn poll(&mut self) -> Vec<Outcome> {
         let mut out = Vec::new();
-        while let Ok(o) = self.rx.try_recv() {
-            match &o {
-                Outcome::Compared { run, last, .. } => {
-                    if *run != self.latest_run {
-                        continue;
-                    }
-                    if *last {
-                        self.active = None;
-                    }
-                }
-                Outcome::Loaded { .. } | Outcome::SpecLoaded(_) => {
-                    self.loads_pending = self.loads_pending.saturating_sub(1);
-                }
-                Outcome::SpecSaved(_) => {
-                    self.saves_pending = self.saves_pending.saturating_sub(1);
-                }
-                Outcome::Picked { .. } | Outcome::Exported(_) | Outcome::Chosen { .. } => {}
+        while let Ok(e) = self.rx.try_recv() {
+            if let Some(o) = self.receive(e) {
+                out.push(o);
             }
-            out.push(o);
         }
         out
+    }
+
+    fn receive(&mut self, e: Envelope) -> Option<Outcome> {
+        match e.ends {
+            Ends::Nothing => {}
+            Ends::Load => self.loads_pending = self.loads_pending.saturating_sub(1),
+            Ends::Save => self.saves_pending = self.saves_pending.saturating_sub(1),
+            Ends::Job => self.jobs_pending = self.jobs_pending.saturating_sub(1),
+        }
+        if let Outcome::Compared { run, last, .. } = &e.outcome {
+            if *run != self.latest_run {
+                return None;
+            }
+            if *last {
+                self.active = None;
+            }
+        }
+        Some(e.outcome)
     }
 
     /// Blocks until one outcome arrives (for tests and the screenshot mode).
     pub fn wait(&mut self, timeout: std::time::Duration) -> Vec<Outcome> {
         match self.rx.recv_timeout(timeout) {
-            Ok(o) => {
-                // Put it back through the same filter as poll.
-                let _ = self.tx.send(o);
-                self.poll()
+            Ok(e) => {
+                let mut out: Vec<Outcome> = self.receive(e).into_iter().collect();
+                out.extend(self.poll());
+                out
             }
             Err(_) => Vec::new(),
         }
@@ -444,8 +345,7 @@ pub fn run_comparison(
         selection: selection.clone(),
         settings: settings.clone(),
         spec: SpecRequest::default(),
-        strict_columns: false,
-        exclusions: Vec::new(),
+        ..Request::default()
     };
     run_comparison_staged(lots, &request, progress, &|_| {})
 }
@@ -494,6 +394,7 @@ pub fn run_comparison_staged(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::data::LoadOptions;
     use std::time::Duration;
 
     fn sample_lots() -> [Arc<Lot>; 2] {

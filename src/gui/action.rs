@@ -1,0 +1,85 @@
+//! What the panels and views ask the window to do. They draw from borrowed state and return
+//! actions; the app applies them in one place ([`crate::gui::app::LotshiftApp::apply`]),
+//! so no panel or view changes the app's state itself (a view changes only its own state:
+//! the text in the specification editor's cells).
+
+use std::path::PathBuf;
+
+use crate::analysis::Settings;
+
+use super::state::View;
+use super::worker::Slot;
+
+/// One thing to do, as a button, a shortcut, a dropped file or an edit asks.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Action {
+    /// Open a file dialog for lot files.
+    PickLots(Slot),
+    /// Read these files into a slot (recent files, dropped files).
+    LoadPaths(Slot, Vec<PathBuf>),
+    /// Read the bundled sample lots.
+    LoadSamples,
+    /// Make the candidate the reference and vice versa.
+    SwapLots,
+    /// Split the file holding both lots by this column into these two lot values (the
+    /// reference first). With two equal values the choice is kept and nothing is split yet.
+    SplitBy {
+        /// The lot column.
+        column: String,
+        /// The reference and candidate lot values.
+        values: [String; 2],
+    },
+    /// Tick or untick a characteristic (by its match key).
+    SetCompared {
+        /// Match key of the characteristic.
+        key: String,
+        /// Compare it.
+        compared: bool,
+    },
+    /// New analysis settings (a run follows only with [`Action::Rerun`]).
+    Settings(Box<Settings>),
+    /// Coverage of the data ellipses (drawn from the result; no run).
+    SetCoverage(f64),
+    /// Compare the current lots, selection, settings and specification.
+    Rerun,
+    /// Cancel the comparison under way.
+    CancelRun,
+    /// Open a tab.
+    ShowView(View),
+    /// Sort the characteristics table by this column (again: the other way).
+    SortTable(usize),
+    /// Show this pair of characteristics (x, y) in the pair view.
+    SelectPair([String; 2]),
+    /// Show the grid of leading pairs.
+    ShowPairGrid(bool),
+    /// Draw the mean-difference region as the shadow of the full T² region (else the pair
+    /// alone).
+    DifferenceShadow(bool),
+    /// Open a dialog for a specification file.
+    PickSpec,
+    /// Save the specification as CSV, to this path or where a dialog says.
+    SaveSpec(Option<PathBuf>),
+    /// An edit of the specification is done: apply it (a new run when it checks).
+    ApplySpec,
+    /// Save the comparison record (a dialog asks where).
+    Export,
+    /// Open the signing form.
+    OpenSigning,
+    /// Close the signing form.
+    CloseSigning,
+    /// Open a dialog for an existing signing key.
+    PickSigningKey,
+    /// Open a dialog for the folder to create a signing key in.
+    PickKeyFolder,
+    /// Sign the result with the remembered key and save the signed summary, to this path or
+    /// where a dialog says.
+    Sign(Option<PathBuf>),
+    /// Open a dialog for a signed summary to check.
+    PickSummary,
+    /// Check this signed summary against the loaded lots and the current result.
+    CheckSummary(PathBuf),
+    /// Dismiss the message with this index.
+    Dismiss(usize),
+    /// Close the confirmation line.
+    CloseNotice,
+}

@@ -1,0 +1,363 @@
+//! The window's background jobs besides comparisons: reading lot and specification files,
+//! file dialogs, writing the record, the specification and signed summaries, and the signing
+//! keys and signatures (reading, creating and looking at keys, signing, checking a signed
+//! summary). Each runs on its own thread and delivers an [`Outcome`]; none runs on the UI
+//! thread, so no frame waits for a disk, a dialog or a signature.
+
+use std::panic::{AssertUnwindSafe, catch_unwind};
+use std::path::{Path, PathBuf};
+
+use crate::data::spec::{Spec, SpecRow};
+use crate::data::{self, LoadOptions, Lot};
+use crate::report::Record;
+use crate::report::sign::{self, Meaning};
+
+use super::worker::{Ends, Outcome, Purpose, Slot, Source, Worker, panic_text, sha256_hex};
+
+fn load_source(src: &Source, options: &LoadOptions) -> Result<Lot, String> {
+    match src {
+        Source::Path(p) => data::load(p, options),
+        Source::Embedded(name, bytes) => data::load_bytes(name, bytes, options),
+    }
+    .map_err(|e| e.to_string())
+}
+
+/// Runs `job`, turning a panic into an error naming `what`.
+fn guarded<T>(what: &str, job: impl FnOnce() -> Result<T, String>) -> Result<T, String> {
+    catch_unwind(AssertUnwindSafe(job))
+        .unwrap_or_else(|e| Err(format!("internal error while {what}: {}", panic_text(&e))))
+}
+
+/// A signature to make: the record, who signs it and why, with which key, and where the
+/// signed summary goes.
+pub struct SignJob {
+    /// The remembered private key.
+    pub key: PathBuf,
+    /// The record to sign (its analysis time is set when signing).
+    pub record: Record,
+    /// Printed name of the signer.
+    pub signer: String,
+    /// Meaning of the signature.
+    pub meaning: Meaning,
+    /// File name a save dialog suggests.
+    pub suggested_name: String,
+    /// Where to save (none: a save dialog asks).
+    pub to: Option<PathBuf>,
+}
+
+impl Worker {
+    /// Reads files for `slot` in the background.
+    pub fn load(&mut self, slot: Slot, sources: Vec<Source>) {
+        let out = self.begin(Ends::Load);
+        std::thread::spawn(move || {
+            let options = LoadOptions::default();
+            let result = guarded("reading", || {
+                if sources.len() == 2 {
+                    // Both lots are parsed in parallel.
+                    std::thread::scope(|s| {
+                        let h = s.spawn(|| load_source(&sources[0], &options));
+                        let b = load_source(&sources[1], &options);
+                        let a = h.join().unwrap_or_else(|e| Err(panic_text(&e)));
+                        Ok(vec![a?, b?])
+                    })
+                } else {
+                    sources.iter().map(|s| load_source(s, &options)).collect()
+                }
+            });
+            out.send(Outcome::Loaded { slot, result }, Ends::Load);
+        });
+    }
+
+    /// Opens a native file dialog in the background (the window keeps drawing meanwhile).
+    pub fn pick(&mut self, slot: Slot) {
+        let out = self.begin(Ends::Nothing);
+        std::thread::spawn(move || {
+            let dialog = rfd::FileDialog::new()
+                .set_title(match slot {
+                    Slot::Reference => "Open the reference lot",
+                    Slot::Candidate => "Open the candidate lot",
+                    Slot::Both => "Open two lot files (reference first)",
+                    Slot::Combined => "Open one file holding both lots",
+                })
+                .add_filter(
+                    "Lot files",
+                    &["csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods"],
+                )
+                .add_filter("All files", &["*"]);
+            let paths = if slot == Slot::Both {
+                dialog.pick_files().unwrap_or_default()
+            } else {
+                dialog.pick_file().into_iter().collect()
+            };
+            out.send(Outcome::Picked { slot, paths }, Ends::Nothing);
+        });
+    }
+
+    /// Opens a dialog for a key, a key folder, a summary or a specification, in the
+    /// background.
+    pub fn choose(&mut self, purpose: Purpose) {
+        let out = self.begin(Ends::Nothing);
+        std::thread::spawn(move || {
+            let path = match purpose {
+                Purpose::SigningKey => rfd::FileDialog::new()
+                    .set_title("Choose your private signing key")
+                    .add_filter("PEM key", &["pem"])
+                    .pick_file(),
+                Purpose::KeyFolder => rfd::FileDialog::new()
+                    .set_title("Folder for the new signing key")
+                    .pick_folder(),
+                Purpose::Summary => rfd::FileDialog::new()
+                    .set_title("Open a signed summary")
+                    .add_filter("JSON", &["json"])
+                    .pick_file(),
+                Purpose::Specification => rfd::FileDialog::new()
+                    .set_title("Open a specification file (limits and margins)")
+                    .add_filter(
+                        "Specification files",
+                        &["csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods"],
+                    )
+                    .add_filter("All files", &["*"])
+                    .pick_file(),
+            };
+            out.send(Outcome::Chosen { purpose, path }, Ends::Nothing);
+        });
+    }
+
+    /// Writes `contents` atomically to `to` or, without one, where a save dialog (in the
+    /// background) says. A write to a given path counts as work under way (a dialog does
+    /// not: it may be cancelled, and then nothing arrives).
+    pub fn export(&mut self, suggested_name: String, contents: String, to: Option<PathBuf>) {
+        let ends = if to.is_some() {
+            Ends::Save
+        } else {
+            Ends::Nothing
+        };
+        let out = self.begin(ends);
+        std::thread::spawn(move || {
+            let picked = to.or_else(|| {
+                rfd::FileDialog::new()
+                    .set_title("Export the comparison record")
+                    .set_file_name(&suggested_name)
+                    .add_filter("JSON", &["json"])
+                    .save_file()
+            });
+            if let Some(path) = picked {
+                let result = crate::report::write_atomic(&path, contents.as_bytes())
+                    .map(|()| path)
+                    .map_err(|e| format!("the record was not written: {e}"));
+                out.send(Outcome::Exported(result), ends);
+            }
+        });
+    }
+
+    /// Reads a specification file in the background. A file that cannot be read, or whose
+    /// content is wrong, arrives as the loader's message (file, row, column); nothing panics.
+    pub fn load_spec(&mut self, path: PathBuf) {
+        let out = self.begin(Ends::Load);
+        std::thread::spawn(move || {
+            let result = catch_unwind(AssertUnwindSafe(|| {
+                data::spec::load_spec(&path, &LoadOptions::default()).map_err(|e| e.to_string())
+            }))
+            .unwrap_or_else(|e| {
+                Err(format!(
+                    "{}: internal error while reading: {}",
+                    path.display(),
+                    panic_text(&e)
+                ))
+            });
+            out.send(Outcome::SpecLoaded(result), Ends::Load);
+        });
+    }
+
+    /// Writes specification rows as CSV ([`data::spec::to_csv`]) atomically, to `path` or,
+    /// without one, where a save dialog (in the background) says. Delivers the file as
+    /// saved: its path and name, the SHA-256 of the bytes written, and the rows.
+    pub fn save_spec(&mut self, suggested_name: String, rows: Vec<SpecRow>, path: Option<PathBuf>) {
+        // A save to a given path counts as work under way (a dialog does not: it may be
+        // cancelled, and then nothing arrives).
+        let ends = if path.is_some() {
+            Ends::Save
+        } else {
+            Ends::Nothing
+        };
+        let out = self.begin(ends);
+        std::thread::spawn(move || {
+            let picked = path.or_else(|| {
+                rfd::FileDialog::new()
+                    .set_title("Save the specification")
+                    .set_file_name(&suggested_name)
+                    .add_filter("CSV", &["csv"])
+                    .save_file()
+            });
+            let Some(path) = picked else { return };
+            let text = data::spec::to_csv(&rows);
+            let result = crate::report::write_atomic(&path, text.as_bytes())
+                .map(|()| {
+                    let shown = path.display().to_string();
+                    Spec {
+                        file_name: path
+                            .file_name()
+                            .map_or_else(|| shown.clone(), |n| n.to_string_lossy().into_owned()),
+                        path: shown,
+                        sha256: sha256_hex(text.as_bytes()),
+                        rows,
+                    }
+                })
+                .map_err(|e| format!("the specification was not written: {e}"));
+            out.send(Outcome::SpecSaved(result), ends);
+        });
+    }
+
+    /// Looks whether the remembered signing key at `path` is there, and reads the printed
+    /// name stored beside it.
+    pub fn look_up_key(&mut self, path: String) {
+        let out = self.begin(Ends::Job);
+        std::thread::spawn(move || {
+            let found = guarded("looking at the signing key", || {
+                let p = Path::new(&path);
+                Ok((p.exists(), sign::signer_beside(p)))
+            });
+            let (exists, signer) = found.unwrap_or((false, None));
+            out.send(
+                Outcome::KeyLooked {
+                    path,
+                    exists,
+                    signer,
+                },
+                Ends::Job,
+            );
+        });
+    }
+
+    /// Reads a chosen private signing key (to check it is one) and the printed name beside it.
+    pub fn read_key(&mut self, path: PathBuf) {
+        let out = self.begin(Ends::Job);
+        std::thread::spawn(move || {
+            let result = guarded("reading the signing key", || {
+                sign::read_signing_key(&path).map_err(|e| e.to_string())?;
+                let signer = sign::signer_beside(&path);
+                Ok((path, signer))
+            });
+            out.send(Outcome::KeyRead(result), Ends::Job);
+        });
+    }
+
+    /// Makes a new signing key for `signer` in `folder`.
+    pub fn create_key(&mut self, folder: PathBuf, signer: String) {
+        let out = self.begin(Ends::Job);
+        std::thread::spawn(move || {
+            let result = guarded("creating the signing key", || {
+                sign::keygen(&folder, "lotshift-signing-key", &signer).map_err(|e| e.to_string())
+            });
+            out.send(Outcome::KeyCreated(result), Ends::Job);
+        });
+    }
+
+    /// Signs a record with the key, then saves the signed summary (to the path given, or
+    /// where a save dialog says). Delivers [`Outcome::Signed`] once signed (and, with a path
+    /// given, written) and [`Outcome::Exported`] once written.
+    pub fn sign(&mut self, job: SignJob) {
+        let out = self.begin(Ends::Job);
+        std::thread::spawn(move || {
+            let signed = guarded("signing", || {
+                let key = sign::read_signing_key(&job.key).map_err(|e| e.to_string())?;
+                let mut record = job.record;
+                record.analysed_at = Some(sign::now_rfc3339());
+                sign::sign(
+                    &record,
+                    &key,
+                    &job.signer,
+                    job.meaning,
+                    &sign::now_rfc3339(),
+                )
+                .map_err(|e| e.to_string())
+            });
+            let summary = match signed {
+                Ok(s) => s,
+                Err(e) => return out.send(Outcome::Signed(Err(e)), Ends::Job),
+            };
+            let json = summary.to_json();
+            match job.to {
+                // Written first, so that the job ends with everything delivered.
+                Some(path) => {
+                    let result = crate::report::write_atomic(&path, json.as_bytes())
+                        .map(|()| path)
+                        .map_err(|e| format!("the record was not written: {e}"));
+                    out.send(Outcome::Exported(result), Ends::Nothing);
+                    out.send(Outcome::Signed(Ok(job.signer)), Ends::Job);
+                }
+                None => {
+                    out.send(Outcome::Signed(Ok(job.signer)), Ends::Job);
+                    let picked = rfd::FileDialog::new()
+                        .set_title("Export the comparison record")
+                        .set_file_name(&job.suggested_name)
+                        .add_filter("JSON", &["json"])
+                        .save_file();
+                    if let Some(path) = picked {
+                        let result = crate::report::write_atomic(&path, json.as_bytes())
+                            .map(|()| path)
+                            .map_err(|e| format!("the record was not written: {e}"));
+                        out.send(Outcome::Exported(result), Ends::Nothing);
+                    }
+                }
+            }
+        });
+    }
+
+    /// Checks a signed summary's signature and, when `loaded` (the SHA-256 of the loaded lots)
+    /// are the files it names, its numbers against `current` (the current result's record).
+    pub fn check_summary(&mut self, path: PathBuf, loaded: Vec<String>, current: Option<Record>) {
+        let out = self.begin(Ends::Job);
+        std::thread::spawn(move || {
+            let result = guarded("checking the signed summary", || {
+                summary_note(&path, &loaded, current.as_ref())
+            });
+            out.send(Outcome::SummaryChecked(result), Ends::Job);
+        });
+    }
+}
+
+/// What checking the signed summary at `path` finds, in words: the signature, whether the
+/// loaded lots are the files it names, and whether the current result has its numbers.
+///
+/// # Errors
+/// The file cannot be read, or the summary does not verify ("NOT VERIFIED").
+pub fn summary_note(
+    path: &Path,
+    loaded: &[String],
+    current: Option<&Record>,
+) -> Result<String, String> {
+    let text = std::fs::read_to_string(path).map_err(|e| format!("{}: {e}", path.display()))?;
+    let s = sign::verify_signature(&text, None)
+        .map_err(|e| format!("{}: NOT VERIFIED: {e}", path.display()))?;
+    let sig = &s.signature;
+    let mut note = format!(
+        "{}: signature valid — signed by {} on {} UTC, meaning {}, key {}.",
+        path.display(),
+        sig.signer,
+        sig.signed_at,
+        sig.meaning,
+        sig.key_fingerprint
+    );
+    let recorded: Vec<String> = s.record["lots"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .map(|l| l["sha256"].as_str().unwrap_or_default().to_string())
+        .collect();
+    if loaded.len() == 2 && recorded == loaded {
+        match current {
+            Some(record) => {
+                let now = serde_json::to_value(record).unwrap_or_default();
+                match sign::first_difference(&s.record, &now) {
+                    None => note.push_str(" The loaded lots are the files it names, and every number matches the current result."),
+                    Some(d) => note.push_str(&format!(" The loaded lots are the files it names, but the current result differs (check the settings and characteristics): {d}")),
+                }
+            }
+            None => note.push_str(" The loaded lots are the files it names (SHA-256 match)."),
+        }
+    } else {
+        note.push_str(" The loaded lots are not the files it names; load them to compare the numbers, or use lotshift verify.");
+    }
+    Ok(note)
+}

@@ -1,0 +1,246 @@
+//! The side panel: the two lot slots, the lot column of a file holding both lots, the
+//! characteristics to compare and the settings. Each part draws from borrowed state and
+//! returns [`Action`]s.
+
+use egui::RichText;
+
+use crate::analysis::Settings;
+use crate::data::{Lot, match_key};
+
+use super::action::Action;
+use super::lots::{Combined, Lots, counterpart};
+use super::shown::Shown;
+use super::widgets::{lot_swatch, settled};
+use super::worker::Slot;
+
+/// Lot slot `i` (0 reference, 1 candidate): the file, its rows, and the units the current
+/// result used.
+pub fn lot_slot_ui(
+    ui: &mut egui::Ui,
+    i: usize,
+    lots: &Lots,
+    current: Option<&Shown>,
+    actions: &mut Vec<Action>,
+) {
+    let title = if i == 0 {
+        "Reference lot"
+    } else {
+        "Candidate lot"
+    };
+    ui.horizontal(|ui| {
+        lot_swatch(ui, i);
+        ui.strong(title);
+        if lots.combined.is_none() && ui.small_button("Open…").clicked() {
+            actions.push(Action::PickLots(if i == 0 {
+                Slot::Reference
+            } else {
+                Slot::Candidate
+            }));
+        }
+    });
+    match &lots.slots[i] {
+        None => {
+            ui.weak("no file: drop one here or use Open…");
+        }
+        Some(lot) => lot_lines(ui, i, lot, current),
+    }
+}
+
+fn lot_lines(ui: &mut egui::Ui, i: usize, lot: &Lot, current: Option<&Shown>) {
+    let p = &lot.provenance;
+    ui.label(format!("{} — \"{}\"", p.file_name, lot.name));
+    // Always two lines, so the panel does not jump while a run is under way.
+    ui.label(format!("{} rows read", lot.len()));
+    match current.map(|s| (s, &s.prepared.lots[i])) {
+        Some((s, pl)) if pl.n_excluded > 0 => {
+            let why = missing_cells(s, i);
+            ui.label(format!(
+                "{} units used; {} left out for missing cells ({})",
+                pl.data.nrows(),
+                pl.n_excluded,
+                why.join(", ")
+            ))
+            .on_hover_text("A unit with a missing cell in any compared characteristic is left out of the whole analysis (listwise).");
+        }
+        Some((_, pl)) => {
+            ui.label(format!("{} units used", pl.data.nrows()));
+        }
+        None => {
+            ui.weak("units used: when the comparison is done");
+        }
+    }
+    for n in &p.notes {
+        ui.weak(n);
+    }
+}
+
+/// "2 in mass", per compared characteristic with missing cells in lot `lot`.
+fn missing_cells(s: &Shown, lot: usize) -> Vec<String> {
+    s.prepared
+        .characteristics
+        .iter()
+        .zip(&s.prepared.lots[lot].missing)
+        .filter(|(_, m)| **m > 0)
+        .map(|(c, m)| format!("{m} in {c}"))
+        .collect()
+}
+
+/// The lot column and the two lot values of a file holding both lots.
+pub fn combined_ui(ui: &mut egui::Ui, c: &Combined, actions: &mut Vec<Action>) {
+    ui.add_space(6.0);
+    ui.strong(format!("Lots in {}", c.table.provenance.file_name));
+    let mut column = c.column.clone();
+    egui::ComboBox::from_label("lot column")
+        .selected_text(column.clone())
+        .show_ui(ui, |ui| {
+            for (name, _) in &c.candidates {
+                ui.selectable_value(&mut column, name.clone(), name);
+            }
+        });
+    let values = c
+        .candidates
+        .iter()
+        .find(|(n, _)| n == &column)
+        .map(|(_, v)| v.clone())
+        .unwrap_or_default();
+    let mut chosen = c.values.clone();
+    if column != c.column && values.len() >= 2 {
+        chosen = [values[0].clone(), values[1].clone()];
+    }
+    for (k, label) in ["reference lot value", "candidate lot value"]
+        .iter()
+        .enumerate()
+    {
+        egui::ComboBox::from_label(*label)
+            .selected_text(chosen[k].clone())
+            .show_ui(ui, |ui| {
+                for v in &values {
+                    ui.selectable_value(&mut chosen[k], v.clone(), v);
+                }
+            });
+    }
+    if column != c.column || chosen != c.values {
+        actions.push(Action::SplitBy {
+            column,
+            values: chosen,
+        });
+    }
+}
+
+/// A tick box per characteristic both lots have, the labels, and the numeric columns in one
+/// lot only.
+pub fn characteristics_ui(ui: &mut egui::Ui, lots: &Lots, actions: &mut Vec<Action>) {
+    ui.strong("Characteristics to compare");
+    let [Some(a), Some(b)] = &lots.slots else {
+        ui.weak("load two lots to choose");
+        return;
+    };
+    let mut changed = false;
+    for c in a.columns.iter().filter(|c| c.is_numeric()) {
+        if counterpart(b, c).is_none() {
+            continue;
+        }
+        let key = match_key(&c.name);
+        let mut on = !lots.excluded.contains(&key);
+        let label = match &c.unit {
+            Some(u) => format!("{} ({u})", c.name),
+            None => c.name.clone(),
+        };
+        if ui.checkbox(&mut on, label).changed() {
+            actions.push(Action::SetCompared { key, compared: on });
+            changed = true;
+        }
+    }
+    let labels: Vec<&str> = a
+        .columns
+        .iter()
+        .filter(|c| !c.is_numeric())
+        .map(|c| c.header.as_str())
+        .collect();
+    if !labels.is_empty() {
+        ui.weak(format!("labels: {}", labels.join(", ")));
+    }
+    for (g, (this, other)) in [(a, b), (b, a)].into_iter().enumerate() {
+        for c in this.columns.iter().filter(|c| c.is_numeric()) {
+            if counterpart(other, c).is_none() {
+                ui.label(
+                    RichText::new(format!(
+                        "not compared: \"{}\" is only in the {} lot",
+                        c.header,
+                        if g == 0 { "reference" } else { "candidate" }
+                    ))
+                    .italics(),
+                );
+            }
+        }
+    }
+    if changed {
+        actions.push(Action::Rerun);
+    }
+}
+
+/// The analysis settings and the data-ellipse coverage.
+pub fn settings_ui(
+    ui: &mut egui::Ui,
+    settings: &Settings,
+    coverage: f64,
+    actions: &mut Vec<Action>,
+) {
+    ui.strong("Settings");
+    let mut s = settings.clone();
+    let mut cov = coverage;
+    let mut changed = false;
+    ui.horizontal(|ui| {
+        let label = ui.label("alpha");
+        changed |= ui
+            .add(
+                egui::DragValue::new(&mut s.alpha)
+                    .range(0.0001..=0.5)
+                    .speed(0.001)
+                    .max_decimals(4),
+            )
+            .labelled_by(label.id)
+            .on_hover_text("Significance level of the test; intervals are at 1 - alpha confidence")
+            .changed();
+    });
+    changed |= ui
+        .checkbox(&mut s.leave_one_out, "leave-one-out misclassification")
+        .changed();
+    ui.horizontal(|ui| {
+        let label = ui.label("data ellipse coverage");
+        ui.add(
+            egui::DragValue::new(&mut cov)
+                .range(0.5..=0.999)
+                .speed(0.005)
+                .max_decimals(3),
+        )
+        .labelled_by(label.id);
+    });
+    changed |= ui
+        .checkbox(&mut s.checks, "assumption checks")
+        .on_hover_text(
+            "Box's M, Mardia's tests, Shapiro–Wilk, outliers and the unequal-covariance test",
+        )
+        .changed();
+    ui.horizontal(|ui| {
+        let label = ui.label("permutations");
+        let r = ui
+            .add(
+                egui::DragValue::new(&mut s.permutations)
+                    .range(0..=999_999)
+                    .speed(100.0),
+            )
+            .labelled_by(label.id)
+            .on_hover_text("Relabellings for the permutation p-value; 0 skips it");
+        changed |= settled(&r);
+    });
+    if s != *settings {
+        actions.push(Action::Settings(Box::new(s)));
+    }
+    if cov != coverage {
+        actions.push(Action::SetCoverage(cov));
+    }
+    if changed {
+        actions.push(Action::Rerun);
+    }
+}
