@@ -597,7 +597,7 @@ mod tests {
     #[test]
     fn f_upper_points_match_printed_tables() {
         // Printed F table; common practice; values from memory (two decimals, as tables print
-        // them). tests/reference.rs checks the same points against 50-digit mpmath values.
+        // them). tests/suite/reference.rs checks the same points against 50-digit mpmath values.
         for &(q, d1, d2, table) in &[
             (0.05, 1.0, 10.0, 4.96),
             (0.05, 2.0, 10.0, 4.10),
@@ -614,7 +614,7 @@ mod tests {
             assert!((got - table).abs() <= 0.005, "F({d1}, {d2}) at {q}: {got}");
         }
         // Johnson & Wichern, Applied Multivariate Statistical Analysis, 6th ed., Example 6.3
-        // rounds the upper 5% point of F(2, 97) to 3.1 (from memory; tests/reference.rs).
+        // rounds the upper 5% point of F(2, 97) to 3.1 (from memory; tests/suite/reference.rs).
         assert!((f_isf(0.05, 2.0, 97.0) - 3.1).abs() < 0.05);
     }
 

@@ -188,7 +188,7 @@ mod tests {
     fn normal_quantile() {
         // Φ⁻¹(0.975) = √2·erfinv(0.95) = 1.959963984540054: mpmath at 50 digits, rounded to 16
         // (tests/fixtures/make_fixtures.py writes it as distributions.norm_ppf and
-        // tests/reference.rs checks it from there); printed normal tables give 1.960.
+        // tests/suite/reference.rs checks it from there); printed normal tables give 1.960.
         assert!((qnorm(0.975) - 1.959_963_984_540_054).abs() < 1e-13);
     }
 }

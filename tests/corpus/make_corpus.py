@@ -1,6 +1,6 @@
 #!/usr/bin/env python3
 """Writes the hostile-input corpus (tests/corpus/): small files that lot exports get wrong in
-practice. tests/hostile.rs states the behaviour each must show. Standard library only.
+practice. tests/suite/hostile.rs states the behaviour each must show. Standard library only.
 Regenerate: python3 tests/corpus/make_corpus.py
 """
 import os

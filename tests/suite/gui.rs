@@ -1,6 +1,6 @@
 //! The window, driven headless through egui_kittest's accessibility tree: no display needed.
 
-mod common;
+use crate::common;
 
 use std::time::{Duration, Instant};
 

@@ -6,7 +6,7 @@
 //! writes the records of the sample comparisons (and their signed summaries and read-back
 //! forms) to DIR, to compare two builds byte for byte.
 
-mod common;
+use crate::common;
 use common::sample;
 
 use std::path::Path;

@@ -1,7 +1,7 @@
 //! Lot files: every dialect the loader accepts and every bad input it must refuse, with the
 //! exact place (file, row as a spreadsheet shows it, column) in each error.
 
-mod common;
+use crate::common;
 use common::sample;
 
 use lotshift::data::{

@@ -1,7 +1,7 @@
 //! Mathematical properties of the two-sample T² that any correct implementation has,
 //! a type-I error simulation, and the planted truth of the sample lots.
 
-mod common;
+use crate::common;
 use common::{names, sample};
 
 use lotshift::analysis::{self, Comparison, LotData, Settings, Silent};

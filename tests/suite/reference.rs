@@ -338,7 +338,7 @@ fn distributions_match_scipy() {
         close(dist::t_sf2(r[0], r[1]), r[2], tol, &format!("t_sf2 {r:?}"));
     }
     for row in d["ncf_sf"].as_array().unwrap() {
-        // scipy.stats.ncf (Boost); tests/equivalence.rs holds both tails to 1e-9 relative.
+        // scipy.stats.ncf (Boost); tests/suite/equivalence.rs holds both tails to 1e-9 relative.
         let r = nums(row);
         let got = lotshift::stats::power::ncf_sf(r[0], r[1], r[2], r[3]);
         assert!(

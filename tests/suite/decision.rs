@@ -3,7 +3,7 @@
 //! outcome on constructed lots, symmetry and invariance properties, big lots, and the command
 //! line (messages for bad specification files, verify with a specification).
 
-mod common;
+use crate::common;
 use common::{names, reference_fixtures, sample};
 
 use std::path::{Path, PathBuf};

@@ -2,7 +2,7 @@
 //! simulations with seeded data (false-alarm rates, uniform permutation p-values, power), an
 //! exact enumeration, and located outliers.
 
-mod common;
+use crate::common;
 use common::names;
 
 use lotshift::analysis::{self, LotData, Settings, Silent};

@@ -1,6 +1,6 @@
 //! The built binary on the sample lots and on bad files: output, record and exit status.
 
-mod common;
+use crate::common;
 use common::sample;
 
 use std::path::PathBuf;

@@ -1,7 +1,7 @@
 //! Signed summaries: sign → verify round trips, every kind of tampering fails with its own
 //! reason, writes are atomic, and the HTML report renders in a real browser.
 
-mod common;
+use crate::common;
 use common::sample;
 
 use std::path::{Path, PathBuf};
