@@ -8,6 +8,8 @@
 //! Sign convention: equivalence is about the candidate lot relative to the reference lot, so
 //! every difference and margin here is **candidate − reference** (the opposite of the T²
 //! section, whose difference is reference − candidate).
+//!
+//! One job, kept in one file: every step from a specification to the four-way outcome, in the order it runs.
 
 use nalgebra::{DMatrix, DVector};
 use serde::{Deserialize, Serialize};

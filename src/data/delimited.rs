@@ -1,5 +1,7 @@
 //! CSV/TSV with a header row: delimiter detection (comma, semicolon, tab), decimal comma,
 //! UTF-8 with or without BOM (Latin-1 accepted for headers and labels), CRLF, quoted fields.
+//!
+//! One job, kept in one file: reading delimited text (sniffing, chunked reading, the fast decimal path) is one pass over the bytes.
 
 use std::borrow::Cow;
 use std::path::Path;

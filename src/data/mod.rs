@@ -1,5 +1,7 @@
 //! Lot files: CSV/TSV (delimiter and decimal-comma detection), spreadsheets, one file split
 //! by a lot column, column matching between two lots and listwise exclusion of missing cells.
+//!
+//! One job, kept in one file: the lot's types, the cell parser and the loader entry points that every format shares.
 
 mod delimited;
 mod error;

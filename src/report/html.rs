@@ -5,6 +5,8 @@
 //! It reads the typed [`Record`] (a file that does not parse as one is refused by the caller,
 //! never drawn half empty); the pair chart's ellipses and the score histogram's densities come
 //! from the analysis (`analysis::pair_geometry`, `ScoreHistogram::density`), as in the window.
+//!
+//! One job, kept in one file: the self-contained page, its style and its charts are written together.
 
 use std::fmt::Write as _;
 

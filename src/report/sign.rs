@@ -6,6 +6,8 @@
 //! The document is `{schema, record, signature: {signer, signed_at, meaning, algorithm,
 //! canonicalization, public_key, key_fingerprint, value}}`; `value` signs the canonical bytes
 //! of the whole document with `value` left out.
+//!
+//! One job, kept in one file: the signed summary's keys, signing and verifying share the canonical bytes and must change together.
 
 use std::path::{Path, PathBuf};
 

@@ -1,4 +1,6 @@
 //! The readable text form of a comparison, for the terminal.
+//!
+//! One job, kept in one file: the text output reads top to bottom as the file does.
 
 use std::fmt::Write as _;
 

@@ -21,6 +21,8 @@
 //! Stat. 1:141) separation of variables, with the variable reordering of Gibson, Glasbey &
 //! Elston (1994) as described by Genz & Bretz (2009, Computation of Multivariate Normal and t
 //! Probabilities, §4.1.3), on a randomly shifted Kronecker lattice.
+//!
+//! One job, kept in one file: capability per characteristic and inside all limits share the limits and the normal model.
 
 use nalgebra::{DMatrix, DVector};
 use statrs::function::erf;

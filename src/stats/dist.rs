@@ -12,6 +12,8 @@
 //! Numerical Recipes (3rd ed., §6.4) evaluated by the modified Lentz method, on the side of
 //! `(a + 1) / (a + b + 2)` where it converges fast; the prefactor uses Stirling's series with
 //! `log1p` (as in DiDonato & Morris 1992, ACM TOMS 708, `brcomp`) when `a` or `b` is large.
+//!
+//! One job, kept in one file: the central distributions share the incomplete beta function and its careful prefactor.
 
 use statrs::distribution::{Continuous as _, FisherSnedecor, StudentsT};
 use statrs::function::gamma::ln_gamma;

@@ -30,6 +30,8 @@
 //! underflows. [`super::power::ncf_sf`] is this upper tail. The cost grows like `√λ`
 //! (about a millisecond at `λ = 10⁶`), so the series is used up to [`NCF_SERIES_MAX_LAMBDA`];
 //! beyond it Patnaik's two-moment central-F approximation is used (see [`ncf_lower_tail`]).
+//!
+//! One job, kept in one file: both equivalence tests, their power, and the noncentral F tails they rest on.
 
 use nalgebra::DVector;
 use statrs::function::gamma::ln_gamma;
