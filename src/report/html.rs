@@ -124,7 +124,7 @@ pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> Strin
                 "<div class=\"signature\" id=\"signature\"><b>Electronically signed</b><br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b><br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of the record and this signature manifestation. Check it with <code>lotshift verify SUMMARY.json --files REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
                 esc(&s.signer),
                 esc(&s.signed_at),
-                esc(&s.meaning),
+                esc(s.meaning.as_str()),
                 esc(&s.key_fingerprint),
                 esc(&s.algorithm),
                 esc(&s.canonicalization)

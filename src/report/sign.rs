@@ -59,6 +59,12 @@ impl Meaning {
     }
 }
 
+impl std::fmt::Display for Meaning {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
 /// The signature manifestation and the signature.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct SignatureBlock {
@@ -66,8 +72,8 @@ pub struct SignatureBlock {
     pub signer: String,
     /// Date and time of signing, RFC 3339 UTC.
     pub signed_at: String,
-    /// `review`, `approval` or `authorship`.
-    pub meaning: String,
+    /// What the signature means.
+    pub meaning: Meaning,
     /// Always `Ed25519`.
     pub algorithm: String,
     /// Always `RFC 8785`.
@@ -307,7 +313,7 @@ pub fn sign_value(
         signature: SignatureBlock {
             signer: signer.to_string(),
             signed_at: signed_at.to_string(),
-            meaning: meaning.as_str().into(),
+            meaning,
             algorithm: "Ed25519".into(),
             canonicalization: "RFC 8785".into(),
             public_key: hex(vk.as_bytes()),

@@ -673,7 +673,7 @@ fn signing_runs_in_the_background_and_delivers_its_outcome() {
     assert!(notice.contains("Record written to"), "{notice}");
     let summary = sign::verify_signature(&std::fs::read_to_string(&out).unwrap(), None).unwrap();
     assert_eq!(summary.signature.signer, "Dana Whitfield");
-    assert_eq!(summary.signature.meaning, "review");
+    assert_eq!(summary.signature.meaning.as_str(), "review");
     // Checked in the window (also in the background): the numbers are the current result's.
     h.state_mut().apply(Action::CheckSummary(out.clone()));
     assert!(!h.state().worker.idle());
