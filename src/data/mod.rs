@@ -15,8 +15,8 @@ mod split;
 
 pub use error::{LoadError, LoadErrorKind, PrepareError};
 pub use pair::{
-    LeftOut, Pairing, Prepared, PreparedLot, Selection, Unmatched, label_text, prepare,
-    prepare_releasing,
+    LeftOut, Pairing, Prepared, PreparedLot, Selection, Unmatched, counterpart, label_text,
+    prepare, prepare_releasing,
 };
 pub use split::{lot_column_candidates, lot_values, split_lot};
 

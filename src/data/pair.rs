@@ -133,6 +133,18 @@ struct Plan {
     pairs: Vec<(usize, usize)>,
 }
 
+/// The column of `other` paired with `c`: numeric, with the same match key
+/// ([`match_key`]; a lot never holds two columns with one key, the loaders refuse it). The
+/// rule [`prepare`] pairs columns by, for callers that show the pairing before any number is
+/// copied (the window's column list).
+pub fn counterpart<'a>(other: &'a Lot, c: &super::Column) -> Option<&'a super::Column> {
+    let key = match_key(&c.name);
+    other
+        .columns
+        .iter()
+        .find(|x| x.is_numeric() && match_key(&x.name) == key)
+}
+
 /// Matches the lots' columns and builds the unit matrices.
 ///
 /// # Errors

@@ -5,7 +5,7 @@
 use std::collections::BTreeSet;
 use std::sync::Arc;
 
-use crate::data::{self, Column, Lot, Selection, match_key};
+use crate::data::{self, Lot, Selection, match_key};
 
 use super::spec_editor::Characteristic;
 use super::worker::{Slot, Source};
@@ -64,14 +64,7 @@ pub struct Lots {
     pub excluded: BTreeSet<String>,
 }
 
-/// The column of `other` paired with `c`: numeric, with the same match key ([`match_key`]).
-pub fn counterpart<'a>(other: &'a Lot, c: &Column) -> Option<&'a Column> {
-    let key = match_key(&c.name);
-    other
-        .columns
-        .iter()
-        .find(|x| x.is_numeric() && match_key(&x.name) == key)
-}
+pub use crate::data::counterpart;
 
 impl Lots {
     /// Both lots, when both are loaded.
