@@ -62,6 +62,8 @@ pub enum LoadErrorKind {
     /// Content that is well formed but not acceptable (a specification's limits or margins,
     /// an unknown characteristic); the text says what and why.
     Invalid(String),
+    /// The files or options asked for do not make a comparison (no file is at fault).
+    Usage(String),
     /// The lot column does not hold the two lots asked for.
     LotValues {
         /// What is wrong.
@@ -175,7 +177,7 @@ impl LoadError {
                     .collect::<Vec<_>>()
                     .join(", ")
             ),
-            LoadErrorKind::Invalid(why) => why.clone(),
+            LoadErrorKind::Invalid(why) | LoadErrorKind::Usage(why) => why.clone(),
             LoadErrorKind::LotValues { why, values } if values.is_empty() => why.clone(),
             LoadErrorKind::LotValues { why, values } => format!(
                 "{why}; the column holds {}",
@@ -186,7 +188,11 @@ impl LoadError {
                     .join(", ")
             ),
         };
-        format!("{place}: {what}")
+        if place.is_empty() {
+            what
+        } else {
+            format!("{place}: {what}")
+        }
     }
 }
 

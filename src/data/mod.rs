@@ -564,7 +564,7 @@ pub fn load_two(
         )),
         _ => Err(LoadError::new(
             "",
-            LoadErrorKind::Io("give two lot files, or one file and a lot column".into()),
+            LoadErrorKind::Usage("give two lot files, or one file and a lot column".into()),
         )),
     }
 }
