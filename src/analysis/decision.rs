@@ -469,7 +469,7 @@ pub fn assess(
             "--equivalence-distance must be a positive number (got {e})"
         )));
     }
-    let alpha = c.alpha;
+    let alpha = c.alpha();
     let mut notes = Vec::new();
     let var = |g: usize, k: usize| c.lots[g].covariance[k][k];
     // The margin rule.

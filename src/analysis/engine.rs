@@ -552,7 +552,6 @@ fn finish(
         (None, None)
     };
     let mut out = Comparison {
-        alpha,
         settings: settings.clone(),
         characteristics: characteristics.to_vec(),
         units: units.to_vec(),

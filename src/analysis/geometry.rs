@@ -23,7 +23,7 @@ pub struct PairGeometry {
 /// Ellipses for characteristics `i` and `j` from a finished comparison.
 pub fn pair_geometry(c: &Comparison, i: usize, j: usize, coverage: f64) -> PairGeometry {
     let sub = |m: &Vec<Vec<f64>>| Matrix2::new(m[i][i], m[i][j], m[j][i], m[j][j]);
-    let alpha = c.alpha;
+    let alpha = c.alpha();
     let segments = 120;
     let means = [
         [c.lots[0].mean[i], c.lots[0].mean[j]],

@@ -320,8 +320,6 @@ pub struct LotResult {
 /// Everything the tool reports about two lots.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Comparison {
-    /// Significance level used.
-    pub alpha: f64,
     /// Everything the comparison was computed with.
     pub settings: Settings,
     /// Characteristic names, in column order.
@@ -396,6 +394,13 @@ pub struct WithoutOutliers {
     pub differ: bool,
     /// The decision (differ or not) is the same with and without them.
     pub same_decision: bool,
+}
+
+impl Comparison {
+    /// Significance level used (the settings hold it once).
+    pub fn alpha(&self) -> f64 {
+        self.settings.alpha
+    }
 }
 
 /// Power at which the detectable shift is stated (common practice for planning).

@@ -43,7 +43,7 @@ pub fn test_statistics(h: &HotellingResult, sig: usize) -> String {
 
 pub(crate) fn verdict_text(c: &Comparison) -> String {
     let h = &c.hotelling;
-    let alpha = c.alpha;
+    let alpha = c.alpha();
     let stats = test_statistics(h, 4);
     let mut s = if h.differ {
         let leaders: Vec<String> = c

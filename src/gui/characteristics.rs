@@ -228,7 +228,7 @@ fn capability_ui(ui: &mut egui::Ui, s: &Shown) {
     ui.strong(format!(
         "Capability against the specification limits ({}% intervals; expected ppm outside under \
          a normal model)",
-        format_confidence(c.alpha)
+        format_confidence(c.alpha())
     ));
     egui::Grid::new("capability")
         .striped(true)

@@ -112,7 +112,7 @@ fn tables(ui: &mut egui::Ui, s: &Shown, equivalence: Option<&Equivalence>) {
 
 fn difference_chart(ui: &mut egui::Ui, s: &Shown, height: f32) {
     let c = &s.comparison;
-    let conf = format_confidence(c.alpha);
+    let conf = format_confidence(c.alpha());
     ui.label(RichText::new("Is there a difference? Reference − candidate").strong());
     ui.label(format!(
         "Mean difference (reference minus candidate) with {conf}% intervals, in pooled standard \

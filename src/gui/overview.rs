@@ -45,9 +45,9 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
             ui.visuals().text_color()
         };
         let test = RichText::new(if h.differ {
-            format!("The lots differ (alpha {})", c.alpha)
+            format!("The lots differ (alpha {})", c.alpha())
         } else {
-            format!("No difference detected (alpha {})", c.alpha)
+            format!("No difference detected (alpha {})", c.alpha())
         })
         .color(color);
         ui.label(if outcome.is_some() {
@@ -371,7 +371,7 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
                     let low: Vec<String> = c
                         .normality
                         .iter()
-                        .filter(|r| r.lots[g].is_some_and(|t| t.p_value < c.alpha))
+                        .filter(|r| r.lots[g].is_some_and(|t| t.p_value < c.alpha()))
                         .map(|r| r.characteristic.clone())
                         .collect();
                     let computed = c.normality.iter().any(|r| r.lots[g].is_some());
@@ -383,9 +383,9 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
                             crate::stats::normality::MAX_UNITS
                         )
                     } else if low.is_empty() {
-                        format!("no characteristic below p = {}", c.alpha)
+                        format!("no characteristic below p = {}", c.alpha())
                     } else {
-                        format!("below p = {}: {}", c.alpha, low.join(", "))
+                        format!("below p = {}: {}", c.alpha(), low.join(", "))
                     });
                     ui.end_row();
                 }

@@ -136,7 +136,7 @@ pub fn pairs_ui(
         }
     }
     let view = s.pair(i, j, coverage);
-    let conf = format_confidence(s.comparison.alpha);
+    let conf = format_confidence(s.comparison.alpha());
     let (xl, xu) = limits(s, i);
     let (yl, yu) = limits(s, j);
     let any_limit = [xl, xu, yl, yu].iter().any(Option::is_some);

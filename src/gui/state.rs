@@ -299,7 +299,7 @@ mod tests {
     }
 
     fn alpha(r: &ResultState) -> Option<f64> {
-        r.shown().map(|s| s.comparison.alpha)
+        r.shown().map(|s| s.comparison.alpha())
     }
 
     #[test]

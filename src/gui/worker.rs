@@ -437,7 +437,7 @@ mod tests {
                 if let Outcome::Compared { run, result, last } = o {
                     assert_eq!(run, second, "only the newest run is delivered");
                     if last {
-                        got.push((run, result.map(|s| s.comparison.alpha)));
+                        got.push((run, result.map(|s| s.comparison.alpha())));
                     }
                 }
             }
@@ -448,7 +448,7 @@ mod tests {
             if let Outcome::Compared { run, result, last } = o {
                 assert_eq!(run, second, "only the newest run is delivered");
                 if last {
-                    got.push((run, result.map(|s| s.comparison.alpha)));
+                    got.push((run, result.map(|s| s.comparison.alpha())));
                 }
             }
         }

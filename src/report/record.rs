@@ -369,7 +369,7 @@ impl Record {
             },
             analysed_at: None,
             settings: (&c.settings).into(),
-            alpha: c.alpha,
+            alpha: c.alpha(),
             characteristics: c.characteristics.clone(),
             units: c.units.clone(),
             lots,
@@ -447,7 +447,6 @@ impl Record {
             return None;
         };
         Some(Comparison {
-            alpha: self.alpha,
             settings: (&self.settings).into(),
             characteristics: self.characteristics.clone(),
             units: self.units.clone(),

@@ -102,7 +102,7 @@ pub fn render_text(
         let _ = writeln!(s, "  warning: {w}");
     }
     decision_text(&mut s, c);
-    let _ = writeln!(s, "\nHotelling's two-sample T² (alpha {})", c.alpha);
+    let _ = writeln!(s, "\nHotelling's two-sample T² (alpha {})", c.alpha());
     let _ = writeln!(s, "  T²            {}", format_sig(h.t2, 6));
     let _ = writeln!(
         s,
@@ -153,7 +153,7 @@ pub fn render_text(
     let _ = writeln!(
         s,
         "\nIntervals for the mean difference at {}% confidence (* excludes zero)",
-        format_confidence(c.alpha)
+        format_confidence(c.alpha())
     );
     let _ = writeln!(
         s,
@@ -383,7 +383,7 @@ fn decision_text(s: &mut String, c: &Comparison) {
         let _ = writeln!(
             s,
             "\nCapability ({}% intervals; expected ppm under a normal model)",
-            format_confidence(c.alpha)
+            format_confidence(c.alpha())
         );
         let _ = writeln!(
             s,

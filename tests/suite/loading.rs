@@ -424,6 +424,12 @@ fn a_file_read_in_chunks_equals_the_same_bytes_in_memory() {
 fn a_wrong_number_of_files_is_a_usage_error() {
     let e = lotshift::data::load_two(&[], None, None, &lotshift::data::LoadOptions::default())
         .unwrap_err();
-    assert!(matches!(e.kind, lotshift::data::LoadErrorKind::Usage(_)), "{e:?}");
-    assert_eq!(e.to_string(), "give two lot files, or one file and a lot column");
+    assert!(
+        matches!(e.kind, lotshift::data::LoadErrorKind::Usage(_)),
+        "{e:?}"
+    );
+    assert_eq!(
+        e.to_string(),
+        "give two lot files, or one file and a lot column"
+    );
 }

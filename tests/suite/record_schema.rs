@@ -368,7 +368,7 @@ fn engine_serialized(case: &Case) -> String {
         software: &r.software,
         analysed_at: &r.analysed_at,
         settings: &c.settings,
-        alpha: c.alpha,
+        alpha: c.alpha(),
         characteristics: &c.characteristics,
         units: &c.units,
         lots: &r.lots,
