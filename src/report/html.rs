@@ -15,7 +15,7 @@ use super::sign::SignatureBlock;
 use super::{CAUTION, Record};
 use crate::analysis::decision::{MarginRule, Outcome};
 use crate::analysis::{FavouredTest, ScoreHistogram, pair_geometry};
-use crate::format::{format_confidence, format_p, format_sig};
+use crate::format::{format_confidence, format_p, format_sig, p_text};
 
 /// Coverage of the data ellipses in the pair chart: the window's default.
 const DATA_COVERAGE: f64 = 0.95;
@@ -791,51 +791,85 @@ fn checks_section(h: &mut String, r: &Record) {
     }
     let _ = writeln!(
         h,
-        "<h2>Assumption checks</h2><p><b>Favoured: {}</b> (p = {}) — {}</p><table>",
+        "<h2>Assumption checks</h2><p><b>Favoured: {}</b> ({}) — {}</p><table>",
         esc(FavouredTest::from(f.test).name()),
-        format_p(f.p_value),
+        p_text(f.p_value),
         esc(&f.why)
     );
-    if let Some(b) = &r.box_m {
+    // The same one-line forms as the text output, from the record's own numbers.
+    use crate::report::{box_m_line, mardia_line, permutation_line, unequal_line};
+    let row = |h: &mut String, name: &str, text: String| {
         let _ = writeln!(
             h,
-            "<tr><th class=\"name\">Box's M</th><td class=\"name\">M = {}; chi-square {} on {} df, p = {}; F {} on ({}, {}) df, p = {}</td></tr>",
-            format_sig(b.m, 5),
-            format_sig(b.chi2, 5),
-            b.df,
-            format_p(b.p_value),
-            format_sig(b.f, 5),
-            b.f_df1,
-            format_sig(b.f_df2, 5),
-            format_p(b.f_p_value)
+            "<tr><th class=\"name\">{}</th><td class=\"name\">{}</td></tr>",
+            esc(name),
+            esc(&text)
         );
+    };
+    if let Some(b) = &r.box_m {
+        row(h, "Box's M", box_m_line(&b.into()));
     }
     if let Some(u) = &r.unequal_covariance {
-        let _ = writeln!(
+        row(
             h,
-            "<tr><th class=\"name\">Unequal covariances (Krishnamoorthy–Yu)</th><td class=\"name\">F = {} on ({}, {}) df, p = {}</td></tr>",
-            format_sig(u.f, 5),
-            u.df1,
-            format_sig(u.df2, 5),
-            format_p(u.p_value)
+            "Unequal covariances (Krishnamoorthy–Yu)",
+            unequal_line(&u.into()),
         );
     }
     if let Some(p) = &r.permutation {
-        let _ = writeln!(
-            h,
-            "<tr><th class=\"name\">Permutation p-value</th><td class=\"name\">{} ({} relabellings, seed {})</td></tr>",
-            format_p(p.p_value),
-            p.permutations,
-            p.seed
-        );
+        row(h, "Permutation p-value", permutation_line(&p.into()));
     }
     for m in &r.mardia {
-        let _ = writeln!(
+        row(h, &format!("Mardia, {}", m.lot), mardia_line(&m.into()));
+    }
+    for n in &r.normality {
+        let n: crate::analysis::NormalityRow = n.into();
+        for g in 0..2 {
+            let lot = r.lots.get(g).map_or("", |l| l.name.as_str());
+            if let Some(w) = &n.lots[g] {
+                row(
+                    h,
+                    &format!("Shapiro–Wilk, {} in {lot}", n.characteristic),
+                    format!("W = {}, {}", format_sig(w.w, 4), p_text(w.p_value)),
+                );
+            } else if let Some(l) = &n.large[g] {
+                row(
+                    h,
+                    &format!("Normality, {} in {lot}", n.characteristic),
+                    format!(
+                        "skewness {}, excess kurtosis {}; Anderson–Darling A* = {}, {}; K² = {}, {}",
+                        format_sig(l.skewness, 3),
+                        format_sig(l.excess_kurtosis, 3),
+                        format_sig(l.anderson_darling_modified, 4),
+                        p_text(l.anderson_darling_p),
+                        format_sig(l.k2, 4),
+                        p_text(l.k2_p)
+                    ),
+                );
+            }
+        }
+    }
+    if let Some(w) = &r.without_outliers {
+        row(
             h,
-            "<tr><th class=\"name\">Mardia, {}</th><td class=\"name\">skewness p = {}, kurtosis p = {}</td></tr>",
-            esc(&m.lot),
-            format_p(m.skewness_p),
-            format_p(m.kurtosis_p)
+            "Without the flagged outliers",
+            format!(
+                "T² = {}, {}: the decision {}",
+                format_sig(w.t2, 5),
+                p_text(w.p_value),
+                if w.same_decision { "holds" } else { "changes" }
+            ),
+        );
+    }
+    if let Some(d) = &r.detectable {
+        row(
+            h,
+            "Detectable shift",
+            format!(
+                "Mahalanobis distance {} with power {} at these lot sizes",
+                format_sig(d.distance, 3),
+                d.power
+            ),
         );
     }
     if let Some(units) = r.outliers.as_ref().map(|o| &o.units) {
