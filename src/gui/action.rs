@@ -21,6 +21,23 @@ pub enum Action {
     LoadSamples,
     /// Make the candidate the reference and vice versa.
     SwapLots,
+    /// The roles of two files loaded together are right: stop asking.
+    ConfirmRoles,
+    /// Compare a candidate column with a reference column of another name as one
+    /// characteristic, for this session (a run follows).
+    PairColumns {
+        /// The reference lot's column name.
+        reference: String,
+        /// The candidate lot's column name as read.
+        candidate: String,
+    },
+    /// Undo a pairing (a run follows).
+    UnpairColumns {
+        /// The reference lot's column name.
+        reference: String,
+        /// The candidate lot's column name as read.
+        candidate: String,
+    },
     /// Split the file holding both lots by this column into these two lot values (the
     /// reference first). With two equal values the choice is kept and nothing is split yet.
     SplitBy {

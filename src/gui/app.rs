@@ -19,7 +19,7 @@ use crate::report::CAUTION;
 
 use super::action::Action;
 use super::characteristics::{self, TableState};
-use super::lots::{self, Lots};
+use super::lots::{self, ColumnPair, Lots};
 use super::pairs::{self, PairsState};
 use super::screenshot::{ScreenshotOutcome, ScreenshotPlan};
 use super::signing::{self, Note, SignForm};
@@ -56,6 +56,9 @@ pub struct LotshiftApp {
     pub pairs: PairsState,
     /// A specification file read before the lots it is for.
     pending_spec: Option<Spec>,
+    /// Two lots are being read in an order the user gave (the sample lots, the command
+    /// line's reference then candidate): their roles are not guessed, so not asked about.
+    order_given: bool,
 }
 
 impl LotshiftApp {
@@ -77,6 +80,7 @@ impl LotshiftApp {
             spec: SpecRequest::default(),
             spec_editor: SpecEditor::default(),
             pending_spec: None,
+            order_given: false,
         }
     }
 
@@ -95,6 +99,27 @@ impl LotshiftApp {
             Action::LoadPaths(slot, paths) => self.load_paths(slot, paths),
             Action::LoadSamples => self.load_samples(),
             Action::SwapLots => self.swap(),
+            Action::ConfirmRoles => self.lots.roles_to_confirm = false,
+            Action::PairColumns {
+                reference,
+                candidate,
+            } => {
+                self.lots.pair(ColumnPair {
+                    reference,
+                    candidate,
+                });
+                self.rerun();
+            }
+            Action::UnpairColumns {
+                reference,
+                candidate,
+            } => {
+                self.lots.unpair(&ColumnPair {
+                    reference,
+                    candidate,
+                });
+                self.rerun();
+            }
             Action::SplitBy { column, values } => {
                 if self.lots.choose_split(column, values) {
                     self.resplit();
@@ -205,7 +230,14 @@ impl LotshiftApp {
 
     /// Loads the bundled sample lots.
     pub fn load_samples(&mut self) {
+        self.order_given = true;
         self.worker.load(Slot::Both, lots::samples());
+    }
+
+    /// Loads two files the user gave in order: the reference, then the candidate.
+    pub fn load_in_order(&mut self, paths: Vec<PathBuf>) {
+        self.load_paths(Slot::Both, paths);
+        self.order_given = true;
     }
 
     /// Loads files into a slot.
@@ -213,6 +245,7 @@ impl LotshiftApp {
         if paths.is_empty() {
             return;
         }
+        self.order_given = false;
         for p in paths.iter().rev() {
             let s = p.display().to_string();
             self.saved.recent.retain(|r| r != &s);
@@ -335,6 +368,9 @@ impl LotshiftApp {
             }
             Ok(lots) => {
                 self.lots.place(slot, lots);
+                if slot == Slot::Both && std::mem::take(&mut self.order_given) {
+                    self.lots.roles_to_confirm = false;
+                }
                 self.rerun();
             }
         }
@@ -467,6 +503,10 @@ impl LotshiftApp {
 
     fn side_ui(&mut self, ui: &mut egui::Ui) {
         let mut actions = Vec::new();
+        if self.lots.roles_to_confirm {
+            side::roles_ui(ui, &self.lots, &mut actions);
+            self.apply_all(std::mem::take(&mut actions));
+        }
         for i in 0..2 {
             if i == 1 {
                 ui.add_space(6.0);
@@ -478,6 +518,8 @@ impl LotshiftApp {
             side::combined_ui(ui, c, &mut actions);
             self.apply_all(std::mem::take(&mut actions));
         }
+        side::one_lot_columns_ui(ui, &self.lots, &mut actions);
+        self.apply_all(std::mem::take(&mut actions));
         ui.separator();
         side::characteristics_ui(ui, &self.lots, &mut actions);
         self.apply_all(std::mem::take(&mut actions));

@@ -62,6 +62,37 @@ pub struct Lots {
     pub combined: Option<Combined>,
     /// Match keys of characteristics the user unticked.
     pub excluded: BTreeSet<String>,
+    /// Two files were loaded together and their roles have not been confirmed yet.
+    pub roles_to_confirm: bool,
+    /// Columns written differently in the two lots that the user paired for this session.
+    pub pairs: Vec<ColumnPair>,
+    /// The candidate lot as read and its copy with the paired columns renamed.
+    paired: Option<(Arc<Lot>, Arc<Lot>)>,
+}
+
+/// A column of the candidate lot the user paired with a reference column of another name:
+/// the run compares them as one characteristic (the candidate column's header stays as
+/// read, so messages and the record still name the file's header).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct ColumnPair {
+    /// The reference lot's column name.
+    pub reference: String,
+    /// The candidate lot's column name, as read.
+    pub candidate: String,
+}
+
+/// A numeric column found in one lot only, and the nearest name among the other lot's
+/// columns that are in one lot only.
+#[derive(Debug, Clone, PartialEq)]
+pub struct OneLotColumn {
+    /// 0: the reference lot, 1: the candidate lot.
+    pub lot: usize,
+    /// Header as read.
+    pub header: String,
+    /// Name without the unit.
+    pub name: String,
+    /// The nearest column name in the other lot, if one is near enough.
+    pub nearest: Option<String>,
 }
 
 pub use crate::data::counterpart;
@@ -69,10 +100,86 @@ pub use crate::data::counterpart;
 impl Lots {
     /// Both lots, when both are loaded.
     pub fn both(&self) -> Option<[Arc<Lot>; 2]> {
-        match &self.slots {
-            [Some(a), Some(b)] => Some([a.clone(), b.clone()]),
+        match (&self.slots[0], self.candidate()) {
+            (Some(a), Some(b)) => Some([a.clone(), b.clone()]),
             _ => None,
         }
+    }
+
+    /// The candidate lot as the run sees it: with the paired columns renamed to their
+    /// reference names (the lot as read when nothing is paired).
+    pub fn candidate(&self) -> Option<&Arc<Lot>> {
+        let b = self.slots[1].as_ref()?;
+        match &self.paired {
+            Some((source, renamed)) if Arc::ptr_eq(source, b) => Some(renamed),
+            _ => Some(b),
+        }
+    }
+
+    /// Pairs a candidate column with a reference column of another name, for this session.
+    pub fn pair(&mut self, pair: ColumnPair) {
+        if !self.pairs.contains(&pair) {
+            self.pairs.push(pair);
+        }
+        self.rebuild_paired();
+    }
+
+    /// Forgets a pairing.
+    pub fn unpair(&mut self, pair: &ColumnPair) {
+        self.pairs.retain(|p| p != pair);
+        self.rebuild_paired();
+    }
+
+    fn rebuild_paired(&mut self) {
+        self.paired = None;
+        let Some(b) = &self.slots[1] else {
+            return;
+        };
+        if self.pairs.is_empty() {
+            return;
+        }
+        let mut renamed = Lot::clone(b);
+        for c in renamed.columns.iter_mut().filter(|c| c.is_numeric()) {
+            let key = match_key(&c.name);
+            if let Some(p) = self.pairs.iter().find(|p| match_key(&p.candidate) == key) {
+                c.name.clone_from(&p.reference);
+            }
+        }
+        self.paired = Some((b.clone(), Arc::new(renamed)));
+    }
+
+    fn clear_pairs(&mut self) {
+        self.pairs.clear();
+        self.paired = None;
+    }
+
+    /// The numeric columns (with some values) found in one lot only, reference lot first,
+    /// each with the nearest name among the other lot's one-lot columns.
+    pub fn one_lot_columns(&self) -> Vec<OneLotColumn> {
+        let (Some(a), Some(b)) = (&self.slots[0], self.candidate()) else {
+            return Vec::new();
+        };
+        let only = |this: &Lot, other: &Lot| -> Vec<(String, String)> {
+            this.columns
+                .iter()
+                .filter(|c| c.is_numeric() && counterpart(other, c).is_none())
+                .map(|c| (c.header.clone(), c.name.clone()))
+                .collect()
+        };
+        let sides = [only(a, b), only(b, a)];
+        let mut out = Vec::new();
+        for (lot, cols) in sides.iter().enumerate() {
+            let others: Vec<String> = sides[1 - lot].iter().map(|(_, n)| n.clone()).collect();
+            for (header, name) in cols {
+                out.push(OneLotColumn {
+                    lot,
+                    header: header.clone(),
+                    name: name.clone(),
+                    nearest: data::spec::nearest(name, &others).map(str::to_owned),
+                });
+            }
+        }
+        out
     }
 
     /// Both slots are filled.
@@ -92,7 +199,7 @@ impl Lots {
     /// The characteristics both lots have (numeric in both, with some values), in the
     /// reference lot's order, with their units; without the unticked ones when `ticked`.
     pub fn characteristic_list(&self, ticked: bool) -> Vec<Characteristic> {
-        let [Some(a), Some(b)] = &self.slots else {
+        let (Some(a), Some(b)) = (&self.slots[0], self.candidate()) else {
             return Vec::new();
         };
         a.columns
@@ -138,6 +245,10 @@ impl Lots {
     /// holding both lots goes through [`Self::set_combined`] instead).
     pub fn place(&mut self, slot: Slot, mut lots: Vec<Lot>) {
         self.combined = None;
+        self.clear_pairs();
+        // Two files read together get their roles from the order they came in: the user
+        // confirms them. One file put in a slot the user chose settles both roles.
+        self.roles_to_confirm = slot == Slot::Both && lots.len() == 2;
         match slot {
             Slot::Reference | Slot::Candidate => {
                 self.slots[usize::from(slot == Slot::Candidate)] = lots.pop().map(Arc::new);
@@ -170,6 +281,7 @@ impl Lots {
             column,
             values: [values[0].clone(), values[1].clone()],
         });
+        self.roles_to_confirm = false;
         self.resplit()
     }
 
@@ -195,6 +307,7 @@ impl Lots {
         };
         let [a, b] = data::split_lot(&c.table, &c.column, Some([&c.values[0], &c.values[1]]))
             .map_err(|e| e.to_string())?;
+        self.clear_pairs();
         self.slots = [Some(Arc::new(a)), Some(Arc::new(b))];
         Ok(())
     }
@@ -205,5 +318,11 @@ impl Lots {
             c.values.swap(0, 1);
         }
         self.slots.swap(0, 1);
+        // A pairing renames a candidate column to the reference's name: after the swap the
+        // other lot's column is the one renamed.
+        for p in &mut self.pairs {
+            std::mem::swap(&mut p.reference, &mut p.candidate);
+        }
+        self.rebuild_paired();
     }
 }

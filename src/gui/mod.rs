@@ -99,7 +99,7 @@ pub fn run_with_spec(
             if files.is_empty() {
                 app.load_samples();
             } else {
-                app.load_paths(worker::Slot::Both, files);
+                app.load_in_order(files);
             }
             if let Some(p) = spec {
                 app.load_spec_path(p);

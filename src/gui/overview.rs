@@ -24,6 +24,15 @@ fn outcome_color(ui: &egui::Ui, o: Outcome) -> egui::Color32 {
     }
 }
 
+/// The characteristic a warning says looks like a whole-number code (cavity, nest), if it
+/// is such a warning.
+pub fn code_column(warning: &str) -> Option<&str> {
+    let rest = warning.strip_prefix('"')?;
+    let (name, tail) = rest.split_once('"')?;
+    tail.starts_with(" holds only the whole numbers")
+        .then_some(name)
+}
+
 /// Draws the verdict view; the link to the specification view asks for that tab.
 pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) {
     egui::ScrollArea::vertical().show(ui, |ui| {
@@ -59,6 +68,21 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
         ui.add_space(8.0);
         for w in &c.warnings {
             ui.label(RichText::new(format!("Warning: {w}")).color(ui.visuals().warn_fg_color));
+            if let Some(name) = code_column(w)
+                && ui
+                    .button(format!("read {name} as a label"))
+                    .on_hover_text(format!(
+                        "Untick \"{name}\" from the compared characteristics and compare \
+                         again; tick it in the side panel to compare it again"
+                    ))
+                    .clicked()
+            {
+                actions.push(Action::SetCompared {
+                    key: crate::data::match_key(name),
+                    compared: false,
+                });
+                actions.push(Action::Rerun);
+            }
         }
         decision_ui(ui, s, actions);
         ui.add_space(8.0);
@@ -147,6 +171,13 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                 &p.sha256[..12.min(p.sha256.len())],
                 pl.n_read,
                 pl.data.nrows()
+            ));
+        }
+        for p in &s.prepared.pairings {
+            ui.label(format!(
+                "compared as one characteristic: the reference's \"{}\" and the \
+                 candidate's \"{}\"",
+                p.reference, p.candidate
             ));
         }
         for u in &s.prepared.unmatched {
@@ -324,9 +355,9 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
     }
     ui.label(
         RichText::new(format!(
-            "Favoured: {} (p = {}) — {}",
+            "Favoured: {} ({}) — {}",
             c.favoured.test,
-            format_p(c.favoured.p_value),
+            crate::format::p_text(c.favoured.p_value),
             c.favoured.why
         ))
         .strong(),
@@ -402,12 +433,12 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
         for u in o.units.iter().take(20) {
             let labels: Vec<String> = u.labels.iter().map(|(h, v)| format!("{h} {v}")).collect();
             ui.label(format!(
-                "  {} lot, row {}: {} — d² = {}, p = {}",
+                "  {} lot, row {}: {} — d² = {}, {}",
                 if u.lot == 0 { "reference" } else { "candidate" },
                 u.row.map_or("?".into(), |r| r.to_string()),
                 labels.join(", "),
                 format_sig(u.d2, 4),
-                format_p(u.p_value)
+                crate::format::p_text(u.p_value)
             ));
         }
         if o.units.len() > 20 {

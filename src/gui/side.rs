@@ -85,6 +85,100 @@ fn missing_cells(s: &Shown, lot: usize) -> Vec<String> {
         .collect()
 }
 
+/// The roles two files loaded together were given, until the user confirms them: each file
+/// with its role, a swap, and the confirmation. The comparison runs meanwhile.
+pub fn roles_ui(ui: &mut egui::Ui, lots: &Lots, actions: &mut Vec<Action>) {
+    let file = |i: usize| {
+        lots.slots[i]
+            .as_ref()
+            .map_or_else(|| "(none)".to_owned(), |l| l.provenance.file_name.clone())
+    };
+    egui::Frame::group(ui.style())
+        .stroke(egui::Stroke::new(1.5, ui.visuals().warn_fg_color))
+        .show(ui, |ui| {
+            ui.label(
+                RichText::new("Which file is which lot?")
+                    .strong()
+                    .color(ui.visuals().warn_fg_color),
+            );
+            ui.label(
+                "The two files were read together, and their order alone gave them their \
+                 roles. Check them before reading the result:",
+            );
+            for (i, role) in ["reference", "candidate"].iter().enumerate() {
+                ui.horizontal(|ui| {
+                    lot_swatch(ui, i);
+                    ui.label(format!("{role} lot: {}", file(i)));
+                });
+            }
+            ui.horizontal(|ui| {
+                if ui.button("Swap the roles").clicked() {
+                    actions.push(Action::SwapLots);
+                }
+                if ui.button("These roles are right").clicked() {
+                    actions.push(Action::ConfirmRoles);
+                }
+            });
+        });
+    ui.add_space(6.0);
+}
+
+/// The numeric columns found in one lot only, each with a click to pair it with the
+/// nearest name in the other lot, and the pairings made this session with an undo.
+pub fn one_lot_columns_ui(ui: &mut egui::Ui, lots: &Lots, actions: &mut Vec<Action>) {
+    let one_lot = lots.one_lot_columns();
+    if one_lot.is_empty() && lots.pairs.is_empty() {
+        return;
+    }
+    ui.add_space(6.0);
+    ui.strong("Columns in one lot only");
+    for c in &one_lot {
+        let lot = if c.lot == 0 { "reference" } else { "candidate" };
+        ui.label(
+            RichText::new(format!(
+                "\"{}\": only in the {lot} lot, not compared",
+                c.header
+            ))
+            .italics(),
+        );
+        if let Some(other) = &c.nearest {
+            let (reference, candidate) = if c.lot == 0 {
+                (c.name.clone(), other.clone())
+            } else {
+                (other.clone(), c.name.clone())
+            };
+            if ui
+                .small_button(format!("pair with {other}"))
+                .on_hover_text(format!(
+                    "Compare the reference's \"{reference}\" and the candidate's \
+                     \"{candidate}\" as one characteristic, for this session. The record \
+                     lists the pairing."
+                ))
+                .clicked()
+            {
+                actions.push(Action::PairColumns {
+                    reference,
+                    candidate,
+                });
+            }
+        }
+    }
+    for p in &lots.pairs {
+        ui.horizontal_wrapped(|ui| {
+            ui.label(format!(
+                "paired: reference \"{}\" with candidate \"{}\"",
+                p.reference, p.candidate
+            ));
+            if ui.small_button("undo").clicked() {
+                actions.push(Action::UnpairColumns {
+                    reference: p.reference.clone(),
+                    candidate: p.candidate.clone(),
+                });
+            }
+        });
+    }
+}
+
 /// The lot column and the two lot values of a file holding both lots.
 pub fn combined_ui(ui: &mut egui::Ui, c: &Combined, actions: &mut Vec<Action>) {
     ui.add_space(6.0);
@@ -119,6 +213,14 @@ pub fn combined_ui(ui: &mut egui::Ui, c: &Combined, actions: &mut Vec<Action>) {
                 }
             });
     }
+    ui.label(format!(
+        "reference lot: the rows where {} is \"{}\"",
+        c.column, c.values[0]
+    ));
+    ui.label(format!(
+        "candidate lot: the rows where {} is \"{}\"",
+        c.column, c.values[1]
+    ));
     if column != c.column || chosen != c.values {
         actions.push(Action::SplitBy {
             column,
@@ -127,11 +229,11 @@ pub fn combined_ui(ui: &mut egui::Ui, c: &Combined, actions: &mut Vec<Action>) {
     }
 }
 
-/// A tick box per characteristic both lots have, the labels, and the numeric columns in one
-/// lot only.
+/// A tick box per characteristic both lots have, and the labels (the columns in one lot
+/// only are listed under the lot slots, [`one_lot_columns_ui`]).
 pub fn characteristics_ui(ui: &mut egui::Ui, lots: &Lots, actions: &mut Vec<Action>) {
     ui.strong("Characteristics to compare");
-    let [Some(a), Some(b)] = &lots.slots else {
+    let (Some(a), Some(b)) = (&lots.slots[0], lots.candidate()) else {
         ui.weak("load two lots to choose");
         return;
     };
@@ -159,20 +261,6 @@ pub fn characteristics_ui(ui: &mut egui::Ui, lots: &Lots, actions: &mut Vec<Acti
         .collect();
     if !labels.is_empty() {
         ui.weak(format!("labels: {}", labels.join(", ")));
-    }
-    for (g, (this, other)) in [(a, b), (b, a)].into_iter().enumerate() {
-        for c in this.columns.iter().filter(|c| c.is_numeric()) {
-            if counterpart(other, c).is_none() {
-                ui.label(
-                    RichText::new(format!(
-                        "not compared: \"{}\" is only in the {} lot",
-                        c.header,
-                        if g == 0 { "reference" } else { "candidate" }
-                    ))
-                    .italics(),
-                );
-            }
-        }
     }
     if changed {
         actions.push(Action::Rerun);

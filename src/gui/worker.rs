@@ -12,7 +12,7 @@ use std::sync::{Arc, Mutex};
 
 use crate::analysis::{self, Comparison, Progress, Settings};
 use crate::data::spec::Spec;
-use crate::data::{self, Lot, Selection};
+use crate::data::{self, Lot, Prepared, Selection};
 use crate::pipeline::{self, Request, SpecRequest};
 use crate::report::Record;
 
@@ -364,7 +364,9 @@ pub fn run_comparison_staged(
 ) -> Result<Box<Shown>, String> {
     progress.report("matching columns", 0.0);
     let settings = &request.settings;
-    let prepared = Arc::new(pipeline::prepare_shared(lots, request).map_err(|e| e.to_string())?);
+    let mut prepared = pipeline::prepare_shared(lots, request).map_err(|e| e.to_string())?;
+    add_session_pairings(&mut prepared, lots);
+    let prepared = Arc::new(prepared);
     let quick = Settings {
         permutations: 0,
         ..settings.clone()
@@ -389,6 +391,33 @@ pub fn run_comparison_staged(
     )
     .map_err(|e| e.to_string())?;
     Ok(bundle(c))
+}
+
+/// Lists the columns the user paired in the window (the candidate lot's copy carries the
+/// reference's name, its header as read) among the pairings the record shows: the data layer
+/// lists pairs whose names differ, and a renamed column's name no longer does.
+fn add_session_pairings(prepared: &mut Prepared, lots: &[Arc<Lot>; 2]) {
+    for name in &prepared.characteristics {
+        let key = data::match_key(name);
+        let find = |lot: &Lot| {
+            lot.columns
+                .iter()
+                .find(|c| c.is_numeric() && data::match_key(&c.name) == key)
+                .map(|c| c.header.clone())
+        };
+        let (Some(reference), Some(candidate)) = (find(&lots[0]), find(&lots[1])) else {
+            continue;
+        };
+        let as_read = data::split_header(&candidate).0;
+        if data::match_key(&as_read) != key
+            && !prepared.pairings.iter().any(|p| p.candidate == candidate)
+        {
+            prepared.pairings.push(data::Pairing {
+                reference,
+                candidate,
+            });
+        }
+    }
 }
 
 #[cfg(test)]

@@ -822,3 +822,218 @@ fn a_result_arriving_leaves_the_focus_in_the_cell_being_typed_in() {
         .unwrap();
     assert_eq!((entry.lower, entry.upper), (Some(27.9), Some(28.1)));
 }
+
+/// A fresh folder for one test's files.
+fn scratch(test: &str) -> std::path::PathBuf {
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-{test}-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    dir
+}
+
+/// A sample lot's text with `edit` applied to its header line and `extra` (a header and the
+/// cell of row `k`) appended to every line.
+fn sample_text(
+    name: &str,
+    edit: &dyn Fn(&str) -> String,
+    extra: Option<(&str, &dyn Fn(usize) -> String)>,
+) -> String {
+    let text = std::fs::read_to_string(common::sample(name)).unwrap();
+    let mut out = String::new();
+    for (k, line) in text.lines().enumerate() {
+        let mut line = if k == 0 { edit(line) } else { line.to_owned() };
+        if let Some((header, cell)) = &extra {
+            line.push(',');
+            line.push_str(&if k == 0 {
+                (*header).to_owned()
+            } else {
+                cell(k)
+            });
+        }
+        out.push_str(&line);
+        out.push('\n');
+    }
+    out
+}
+
+#[test]
+fn two_files_loaded_together_ask_for_their_roles_until_confirmed() {
+    let mut h = harness();
+    // The bundled samples have fixed roles: nothing to confirm.
+    assert_eq!(
+        h.query_all_by_label_contains("Which file is which lot?")
+            .count(),
+        0
+    );
+    // Two files whose name order puts the candidate first, as a drop sorts them.
+    let dir = scratch("roles");
+    let same = |l: &str| l.to_owned();
+    let cand = dir.join("candidate-lot.csv");
+    let refr = dir.join("reference-lot.csv");
+    std::fs::write(&cand, sample_text("candidate-route-b.csv", &same, None)).unwrap();
+    std::fs::write(&refr, sample_text("reference-route-a.csv", &same, None)).unwrap();
+    h.state_mut()
+        .load_paths(Slot::Both, vec![cand.clone(), refr.clone()]);
+    settle(&mut h);
+    // The comparison ran, and the notice names each file with its role.
+    assert!(h.state().result.is_current());
+    h.get_by_label("Which file is which lot?");
+    h.get_by_label("reference lot: candidate-lot.csv");
+    h.get_by_label("candidate lot: reference-lot.csv");
+    h.get_by_label("Swap the roles").click();
+    h.run_steps(1);
+    settle(&mut h);
+    {
+        let c = &h.state().result.shown().unwrap().comparison;
+        assert_eq!(c.lots[0].name, "reference-lot");
+        assert_eq!(c.lots[1].name, "candidate-lot");
+        let want = sample_t2();
+        let t2 = c.hotelling.t2;
+        assert!(((t2 - want) / want).abs() < 1e-10, "{t2} against {want}");
+    }
+    // The notice stays until the roles are confirmed.
+    h.get_by_label("reference lot: reference-lot.csv");
+    h.get_by_label("candidate lot: candidate-lot.csv");
+    h.get_by_label("These roles are right").click();
+    h.run_steps(2);
+    assert_eq!(
+        h.query_all_by_label_contains("Which file is which lot?")
+            .count(),
+        0
+    );
+    assert!(!h.state().lots.roles_to_confirm);
+    // One file chosen for one slot settles the roles: no notice.
+    h.state_mut()
+        .load_paths(Slot::Both, vec![cand.clone(), refr.clone()]);
+    settle(&mut h);
+    h.get_by_label("Which file is which lot?");
+    h.state_mut()
+        .load_paths(Slot::Candidate, vec![refr.clone()]);
+    settle(&mut h);
+    assert!(!h.state().lots.roles_to_confirm);
+    // Nor when the user gave the order (the command line: reference, then candidate).
+    h.state_mut().load_in_order(vec![refr, cand]);
+    settle(&mut h);
+    assert_eq!(
+        h.state().result.shown().unwrap().comparison.lots[0].name,
+        "reference-lot"
+    );
+    assert!(!h.state().lots.roles_to_confirm);
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn a_split_file_says_which_value_is_which_lot() {
+    let mut h = harness();
+    h.state_mut()
+        .load_paths(Slot::Combined, vec![common::sample("both-routes.csv")]);
+    settle(&mut h);
+    h.get_by_label("reference lot: the rows where route is \"A\"");
+    h.get_by_label("candidate lot: the rows where route is \"B\"");
+    h.get_by_label("Swap lots").click();
+    h.run_steps(1);
+    settle(&mut h);
+    h.get_by_label("reference lot: the rows where route is \"B\"");
+    h.get_by_label("candidate lot: the rows where route is \"A\"");
+}
+
+#[test]
+fn a_misspelt_header_is_paired_only_by_the_click() {
+    let mut h = harness();
+    let dir = scratch("pairing");
+    let refr = dir.join("reference.csv");
+    let cand = dir.join("candidate.csv");
+    let same = |l: &str| l.to_owned();
+    let misspell = |l: &str| l.replace("hub length (mm)", "hub lenght (mm)");
+    std::fs::write(&refr, sample_text("reference-route-a.csv", &same, None)).unwrap();
+    std::fs::write(&cand, sample_text("candidate-route-b.csv", &misspell, None)).unwrap();
+    h.state_mut().load_paths(Slot::Both, vec![refr, cand]);
+    settle(&mut h);
+    // Listed beside the lot slots, and not compared until the click.
+    h.get_by_label("\"hub length (mm)\": only in the reference lot, not compared");
+    h.get_by_label("\"hub lenght (mm)\": only in the candidate lot, not compared");
+    {
+        let s = h.state().result.shown().unwrap();
+        assert_eq!(s.comparison.characteristics.len(), 4);
+        assert!(s.record.pairings.is_empty());
+    }
+    h.get_by_label("pair with hub length").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let s = h.state().result.shown().unwrap();
+    assert_eq!(s.comparison.characteristics.len(), 5);
+    // The same T² as the correctly named files (numpy, make_fixtures.py).
+    let want = sample_t2();
+    let t2 = s.comparison.hotelling.t2;
+    assert!(((t2 - want) / want).abs() < 1e-10, "{t2} against {want}");
+    // The record names both headers as read.
+    assert_eq!(s.record.pairings.len(), 1);
+    assert_eq!(s.record.pairings[0].reference, "hub length (mm)");
+    assert_eq!(s.record.pairings[0].candidate, "hub lenght (mm)");
+    assert!(
+        s.record.not_compared.is_empty(),
+        "{:?}",
+        s.record.not_compared
+    );
+    // The candidate lot as read keeps its header and name.
+    let lot = h.state().lots.slots[1].clone().unwrap();
+    assert!(lot.columns.iter().any(|c| c.name == "hub lenght"));
+    h.get_by_label_contains("compared as one characteristic: the reference's \"hub length (mm)\"");
+    assert_eq!(h.query_all_by_label("pair with hub length").count(), 0);
+    // Undo puts it back.
+    h.get_by_label("undo").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let s = h.state().result.shown().unwrap();
+    assert_eq!(s.comparison.characteristics.len(), 4);
+    assert!(s.record.pairings.is_empty());
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn a_code_column_is_read_as_a_label_with_one_click() {
+    let mut h = harness();
+    let dir = scratch("code");
+    let refr = dir.join("reference.csv");
+    let cand = dir.join("candidate.csv");
+    let same = |l: &str| l.to_owned();
+    let cavity = |k: usize| (1 + k % 4).to_string();
+    std::fs::write(
+        &refr,
+        sample_text("reference-route-a.csv", &same, Some(("cavity", &cavity))),
+    )
+    .unwrap();
+    std::fs::write(
+        &cand,
+        sample_text("candidate-route-b.csv", &same, Some(("cavity", &cavity))),
+    )
+    .unwrap();
+    h.state_mut().load_paths(Slot::Both, vec![refr, cand]);
+    settle(&mut h);
+    {
+        // Compared, with the warning, until the user says otherwise.
+        let c = &h.state().result.shown().unwrap().comparison;
+        assert_eq!(c.characteristics.len(), 6);
+        assert!(
+            c.warnings
+                .iter()
+                .any(|w| w.starts_with("\"cavity\" holds only the whole numbers")),
+            "{:?}",
+            c.warnings
+        );
+    }
+    h.get_by_label("read cavity as a label").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let c = &h.state().result.shown().unwrap().comparison;
+    assert!(!c.characteristics.iter().any(|n| n == "cavity"));
+    assert_eq!(c.characteristics.len(), 5);
+    assert!(!c.warnings.iter().any(|w| w.contains("\"cavity\" holds")));
+    let want = sample_t2();
+    let t2 = c.hotelling.t2;
+    assert!(((t2 - want) / want).abs() < 1e-10, "{t2} against {want}");
+    assert_eq!(h.query_all_by_label("read cavity as a label").count(), 0);
+    // The tick box in the side panel shows it unticked.
+    assert!(h.state().lots.excluded.contains("cavity"));
+    let _ = std::fs::remove_dir_all(dir);
+}
