@@ -148,11 +148,9 @@ impl SpecArgs {
     ///
     /// # Errors
     /// The specification file's load error (file, row, column).
-    pub fn request(&self) -> Result<SpecRequest, String> {
+    pub fn request(&self) -> Result<SpecRequest, CliError> {
         let file = match &self.spec {
-            Some(path) => Some(
-                data::spec::load_spec(path, &LoadOptions::default()).map_err(|e| e.to_string())?,
-            ),
+            Some(path) => Some(data::spec::load_spec(path, &LoadOptions::default())?),
             None => None,
         };
         let rule = match (self.margin_fraction, self.margin_sd) {
@@ -160,7 +158,7 @@ impl SpecArgs {
             (None, Some(k)) => MarginRule::ReferenceSd(k),
             (None, None) => MarginRule::FileOnly,
         };
-        analysis::decision::check_rule(rule).map_err(|e| e.to_string())?;
+        analysis::decision::check_rule(rule)?;
         Ok(SpecRequest {
             file,
             rule,

@@ -8,8 +8,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
     let spec = a.spec.request()?;
     let mut lots = load_lots(&a.lots)?;
     let exclusions = match &a.lots.exclude_units {
-        Some(path) => data::exclusions::load_exclusions(path, [&lots[0], &lots[1]])
-            .map_err(|e| e.to_string())?,
+        Some(path) => data::exclusions::load_exclusions(path, [&lots[0], &lots[1]])?,
         None => Vec::new(),
     };
     let request = Request {
@@ -30,8 +29,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
     };
     // The unit matrices take the numbers over, and the engine centres them in place: memory
     // holds one copy of the units.
-    let (prepared, c) =
-        pipeline::run_owned(&mut lots, &request, &Silent).map_err(|e| e.to_string())?;
+    let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
     let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     record.analysed_at = Some(sign::now_rfc3339());
     // Sign before printing anything, so a bad key or meaning stops with nothing written.
@@ -41,7 +39,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
             let meaning = sign::Meaning::parse(meaning_text).ok_or_else(|| {
                 format!("--meaning must be review, approval or authorship (got \"{meaning_text}\")")
             })?;
-            let key = sign::read_signing_key(key_path).map_err(|e| e.to_string())?;
+            let key = sign::read_signing_key(key_path)?;
             let signer = a.signer.clone().or_else(|| sign::signer_beside(key_path)).ok_or_else(|| {
                 format!(
                     "no printed name for the signer: give --signer, or keep the .signer.json file \
@@ -49,10 +47,13 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
                     key_path.display()
                 )
             })?;
-            Some(
-                sign::sign(&record, &key, &signer, meaning, &sign::now_rfc3339())
-                    .map_err(|e| e.to_string())?,
-            )
+            Some(sign::sign(
+                &record,
+                &key,
+                &signer,
+                meaning,
+                &sign::now_rfc3339(),
+            )?)
         }
         None => None,
     };
@@ -100,10 +101,10 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
     let spec: StatsFile =
         serde_json::from_str(&text).map_err(|e| format!("{}: {e}", a.file.display()))?;
     let [l1, l2] = spec.lots.as_slice() else {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "{}: \"lots\" must hold exactly two lots",
             a.file.display()
-        ));
+        )));
     };
     let units = if spec.units.is_empty() {
         vec![None; spec.characteristics.len()]
@@ -121,10 +122,8 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
         .map_err(|e| format!("{}: {e}", a.file.display()))?;
     let plan = a.spec.request()?;
     if !plan.is_empty() {
-        let given = plan
-            .specification(&c.characteristics, &c.units)
-            .map_err(|e| e.to_string())?;
-        analysis::apply_specification(&mut c, &given, None).map_err(|e| e.to_string())?;
+        let given = plan.specification(&c.characteristics, &c.units)?;
+        analysis::apply_specification(&mut c, &given, None)?;
     }
     let record = Record::new(&c, None);
     if a.json.as_deref() != Some("-") {

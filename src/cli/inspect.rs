@@ -8,7 +8,7 @@ pub(super) fn inspect(a: InspectArgs) -> CliResult {
         sheet: a.sheet.clone(),
         labels: a.labels.clone(),
     };
-    let lot = data::load(&a.file, &options).map_err(|e| e.to_string())?;
+    let lot = data::load(&a.file, &options)?;
     let p = &lot.provenance;
     outln!("file        {}", p.path);
     outln!("sha256      {}", p.sha256);

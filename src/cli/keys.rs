@@ -7,7 +7,7 @@ pub(super) fn keygen(a: KeygenArgs) -> CliResult {
     if a.signer.trim().is_empty() {
         return Err("--signer needs the printed name of the key's owner".into());
     }
-    let private = sign::keygen(&a.out, &a.name, a.signer.trim()).map_err(|e| e.to_string())?;
+    let private = sign::keygen(&a.out, &a.name, a.signer.trim())?;
     let (public, signer) = sign::key_companions(&private);
     outln!(
         "private key  {} (keep it to yourself; mode 0600)",

@@ -87,7 +87,45 @@ pub enum Command {
     Report(ReportArgs),
 }
 
-pub(crate) type CliResult = Result<ExitCode, String>;
+pub(crate) type CliResult = Result<ExitCode, CliError>;
+
+/// Why a subcommand could not do its job. Every kind exits with status 2
+/// ([`EXIT_BAD_INPUT`]) and one line on standard error; the kinds keep the engine's and the
+/// loaders' own errors (file, row, column) instead of flattening them to text.
+#[derive(Debug, thiserror::Error)]
+pub enum CliError {
+    /// A lot, specification or exclusion file that cannot be read.
+    #[error(transparent)]
+    Load(#[from] crate::data::LoadError),
+    /// The comparison could not be made.
+    #[error(transparent)]
+    Pipeline(#[from] crate::pipeline::PipelineError),
+    /// A margin rule that does not fit.
+    #[error(transparent)]
+    Decision(#[from] crate::analysis::decision::DecisionError),
+    /// The engine could not compare (summary-statistics input).
+    #[error(transparent)]
+    Engine(#[from] crate::stats::EngineError),
+    /// A key, a signature or a summary file.
+    #[error(transparent)]
+    Sign(#[from] crate::report::sign::SignError),
+    /// Options that do not fit together, an output that cannot be written, a file that is not
+    /// what the subcommand reads: the reason in words.
+    #[error("{0}")]
+    Failed(String),
+}
+
+impl From<String> for CliError {
+    fn from(s: String) -> Self {
+        CliError::Failed(s)
+    }
+}
+
+impl From<&str> for CliError {
+    fn from(s: &str) -> Self {
+        CliError::Failed(s.to_string())
+    }
+}
 
 /// Runs a subcommand; returns the process exit status.
 pub fn run(command: Command) -> ExitCode {
@@ -112,8 +150,8 @@ pub fn run(command: Command) -> ExitCode {
 /// Reads the two lots named by `args`.
 ///
 /// # Errors
-/// The load error's message.
-pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], String> {
+/// The load error (file, row, column), or options that do not fit together.
+pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], CliError> {
     let options = LoadOptions {
         sheet: args.sheet.clone(),
         labels: args.labels.clone(),
@@ -126,8 +164,12 @@ pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], String> {
         return Err("--lot-values needs --lot-column: the column the two values are in".into());
     }
     let wanted = values.as_ref().map(|v| [v[0].as_str(), v[1].as_str()]);
-    data::load_two(&args.files, args.lot_column.as_deref(), wanted, &options)
-        .map_err(|e| e.to_string())
+    Ok(data::load_two(
+        &args.files,
+        args.lot_column.as_deref(),
+        wanted,
+        &options,
+    )?)
 }
 
 /// Splits `--lot-values REFERENCE,CANDIDATE` into its two values.

@@ -5,16 +5,16 @@ use super::*;
 
 pub(super) fn plan(a: PlanArgs) -> CliResult {
     if !(a.alpha > 0.0 && a.alpha < 1.0) {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "alpha must lie strictly between 0 and 1 (got {})",
             a.alpha
-        ));
+        )));
     }
     if !(a.target_power > a.alpha && a.target_power < 1.0) {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "the target power must lie between alpha and 1 (got {})",
             a.target_power
-        ));
+        )));
     }
     if let Some(margin) = a.margin {
         return plan_tost(&a, margin);
@@ -26,10 +26,10 @@ pub(super) fn plan(a: PlanArgs) -> CliResult {
             let spec: StatsFile =
                 serde_json::from_str(&text).map_err(|e| format!("{}: {e}", file.display()))?;
             let [l1, l2] = spec.lots.as_slice() else {
-                return Err(format!(
+                return Err(CliError::from(format!(
                     "{}: \"lots\" must hold exactly two lots",
                     file.display()
-                ));
+                )));
             };
             let units = vec![None; spec.characteristics.len()];
             let settings = Settings {
@@ -69,9 +69,9 @@ pub(super) fn plan(a: PlanArgs) -> CliResult {
     if let Some(n) = a.units {
         let pw = crate::stats::power::power(p, n, n, delta2, a.alpha);
         if pw.is_nan() {
-            return Err(format!(
+            return Err(CliError::from(format!(
                 "{n} units per lot are too few for {p} characteristics"
-            ));
+            )));
         }
         outln!("  power with {n} units per lot   {}", format_sig(pw, 4));
     }
@@ -96,16 +96,16 @@ fn plan_t2_equivalence(
 ) -> CliResult {
     use crate::stats::equivalence::{t2_equivalence_power, t2_equivalence_units_per_lot};
     if !(epsilon > 0.0 && epsilon.is_finite()) {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "--equivalence-distance must be a positive number (got {epsilon})"
-        ));
+        )));
     }
     if delta >= epsilon {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "the true distance {} must lie below the margin {epsilon}: at or beyond the margin \
              no lot size shows equivalence",
             format_sig(delta, 4)
-        ));
+        )));
     }
     outln!(
         "Power of the T² equivalence test at alpha {} for {source}, margin ε = {epsilon}",
@@ -141,16 +141,16 @@ fn plan_tost(a: &PlanArgs, margin: f64) -> CliResult {
     use crate::stats::equivalence::{tost_power, tost_units_per_lot};
     let sd = a.sd.unwrap_or(f64::NAN);
     if !(margin > 0.0 && margin.is_finite() && sd > 0.0 && sd.is_finite()) {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "--margin and --sd must be positive numbers (got {margin} and {sd})"
-        ));
+        )));
     }
     let theta = a.difference;
     if theta.abs() >= margin {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "the true difference {theta} must lie inside the margin ±{margin}: at or beyond it \
              no lot size shows equivalence"
-        ));
+        )));
     }
     let m = [-margin, margin];
     outln!(

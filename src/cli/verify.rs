@@ -7,7 +7,7 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
     let text =
         std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
     let expected = match &a.key {
-        Some(k) => Some(sign::read_verifying_key(k).map_err(|e| e.to_string())?),
+        Some(k) => Some(sign::read_verifying_key(k)?),
         None => None,
     };
     let fail = |why: String| -> CliResult {
@@ -89,8 +89,7 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
             &options,
         ),
         None => data::load_two(&files, None, None, &options),
-    }
-    .map_err(|e| e.to_string())?;
+    }?;
     let characteristics = typed.characteristics.clone();
     let settings = Settings::from(&typed.settings);
     let recorded_spec = typed
@@ -108,8 +107,7 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
             );
         }
         (Some(path), Some(recorded)) => {
-            let file =
-                data::spec::load_spec(path, &LoadOptions::default()).map_err(|e| e.to_string())?;
+            let file = data::spec::load_spec(path, &LoadOptions::default())?;
             let want = recorded.sha256.clone().unwrap_or_default();
             if file.sha256 != want {
                 return fail(format!(
@@ -156,10 +154,9 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         exclusions: typed.exclusions.iter().map(Into::into).collect(),
     };
     let mut lots = lots;
-    let (prepared, c) =
-        pipeline::run_owned(&mut lots, &request, &Silent).map_err(|e| e.to_string())?;
+    let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
     let recomputed = serde_json::to_value(Record::new(&c, Some((&prepared, [&lots[0], &lots[1]]))))
-        .map_err(|e| e.to_string())?;
+        .map_err(|e| CliError::from(e.to_string()))?;
     if let Some(diff) = sign::first_difference(rec, &recomputed) {
         return fail(format!("a recomputed number differs: {diff}"));
     }
@@ -205,10 +202,10 @@ pub(super) fn report_html(a: ReportArgs) -> CliResult {
         })?;
         html::render_html(&record, None)
     } else {
-        return Err(format!(
+        return Err(CliError::from(format!(
             "{}: neither a comparison record nor a signed summary",
             a.file.display()
-        ));
+        )));
     };
     report::write_atomic(&a.out, html.as_bytes())
         .map_err(|e| format!("the report was not written: {e}"))?;
