@@ -308,8 +308,23 @@ impl LotshiftApp {
     }
 
     /// Swaps reference and candidate.
+    /// Swaps the lots. A margin is an allowed candidate − reference range, so an asymmetric
+    /// margin is mirrored (below and above exchanged) to keep its meaning for the new roles.
     pub fn swap(&mut self) {
         self.lots.swap();
+        let mut mirrored = Vec::new();
+        for r in &mut self.spec_editor.rows {
+            if r.asymmetric && (!r.below.trim().is_empty() || !r.above.trim().is_empty()) {
+                std::mem::swap(&mut r.below, &mut r.above);
+                mirrored.push(r.characteristic.clone());
+            }
+        }
+        if !mirrored.is_empty() {
+            self.notice = Some(format!(
+                "Asymmetric margins mirrored for the new roles (candidate − reference): {}",
+                mirrored.join(", ")
+            ));
+        }
         self.rerun();
     }
 

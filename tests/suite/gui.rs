@@ -1037,3 +1037,40 @@ fn a_code_column_is_read_as_a_label_with_one_click() {
     assert!(h.state().lots.excluded.contains("cavity"));
     let _ = std::fs::remove_dir_all(dir);
 }
+
+/// A margin is a candidate − reference range: swapping the lots mirrors an asymmetric margin
+/// (below and above exchanged), so the same limits of the plan apply to the new roles.
+#[test]
+fn swapping_the_lots_mirrors_an_asymmetric_margin() {
+    let mut h = harness();
+    h.state_mut().load_spec_path(common::sample("hub-spec.csv"));
+    settle(&mut h);
+    {
+        let row = &mut h.state_mut().spec_editor.rows[2];
+        row.set_asymmetric(true);
+        row.below = "0.01".into();
+        row.above = "0.03".into();
+    }
+    h.state_mut().apply_spec();
+    settle(&mut h);
+    let margin = |h: &Harness<'static, LotshiftApp>| {
+        let d = h
+            .state()
+            .result
+            .shown()
+            .unwrap()
+            .comparison
+            .decision
+            .clone()
+            .unwrap();
+        d.specification.characteristics[2].margin.unwrap()
+    };
+    assert_eq!(margin(&h), [-0.01, 0.03]);
+    h.state_mut().swap();
+    settle(&mut h);
+    assert_eq!(
+        h.state().result.shown().unwrap().comparison.lots[0].name,
+        "candidate-route-b"
+    );
+    assert_eq!(margin(&h), [-0.03, 0.01]);
+}
