@@ -81,8 +81,7 @@ fn order_statistics(data: [&DMatrix<f64>; 2]) -> Vec<[ColumnSummary; 2]> {
 fn complete_summaries(summaries: &mut [[ColumnSummary; 2]], m: [&LotMoments; 2]) {
     for (k, pair) in summaries.iter_mut().enumerate() {
         for (sum, m) in pair.iter_mut().zip(m) {
-            let again = column_summary(&[], m.origin[k] + m.offset[k], m.ssp[(k, k)]);
-            sum.mean = again.mean;
+            sum.mean = m.origin[k] + m.offset[k];
             sum.sd = if m.n > 1 {
                 (m.ssp[(k, k)] / (m.n - 1) as f64).sqrt()
             } else {

@@ -56,7 +56,8 @@ pub fn load_exclusions(path: &Path, lots: [&Lot; 2]) -> Result<Vec<Exclusion>, L
         path,
         &LoadOptions {
             sheet: None,
-            // Everything but `row` is text, whatever it looks like.
+            // Read as any table: `row` as a number, `lot`, `reason` and label values as their
+            // cells' text (a numeric-looking serial is matched by its written form).
             labels: Vec::new(),
         },
     )?;

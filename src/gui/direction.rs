@@ -47,7 +47,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         .allow_scroll(false)
         .y_axis_formatter(row_names(names))
         .y_axis_min_width(120.0)
-        .x_axis_label("standardized coefficient")
+        .x_axis_label("weight per standard deviation")
         .show(ui, |plot| {
             plot.vline(VLine::new("zero", 0.0).color(Color32::GRAY));
             plot.bar_chart(

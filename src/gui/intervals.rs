@@ -14,7 +14,7 @@ use crate::analysis::{format_confidence, format_p, format_sig};
 
 use super::shown::Shown;
 use super::widgets::{row_names, swatch};
-use super::words::margin_words;
+use super::words::{margin_words, unit_suffix};
 
 /// Colours of the margin chart for the window's theme: the margin band, and an equivalence
 /// interval inside its margin, not shown inside, wholly outside.
@@ -300,13 +300,7 @@ fn equivalence_table(ui: &mut egui::Ui, s: &Shown, eq: &Equivalence) {
             }
             ui.end_row();
             for r in &eq.per_characteristic {
-                let unit = c
-                    .characteristics
-                    .iter()
-                    .position(|n| n == &r.characteristic)
-                    .and_then(|k| c.units.get(k).cloned().flatten())
-                    .map(|u| format!(" {u}"))
-                    .unwrap_or_default();
+                let unit = unit_suffix(c, &r.characteristic);
                 ui.label(&r.characteristic);
                 ui.label(format!("{}{unit}", margin_words(r.margin)));
                 ui.label(format!("{}{unit}", format_sig(r.difference, 4)));
@@ -340,14 +334,8 @@ fn interval_table(ui: &mut egui::Ui, s: &Shown) {
                 ui.strong(h);
             }
             ui.end_row();
-            for (k, iv) in c.intervals.iter().enumerate() {
-                let unit = c
-                    .units
-                    .get(k)
-                    .cloned()
-                    .flatten()
-                    .map(|u| format!(" {u}"))
-                    .unwrap_or_default();
+            for iv in &c.intervals {
+                let unit = unit_suffix(c, &iv.characteristic);
                 ui.label(&iv.characteristic);
                 ui.label(format!("{}{unit}", format_sig(iv.difference, 4)));
                 for (r, flag) in [

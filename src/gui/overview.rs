@@ -13,7 +13,7 @@ use super::shown::Shown;
 use super::state::View;
 use super::theme::{lot_colors, lot_filled};
 use super::widgets::swatch;
-use super::words::{EDITED, MARGIN_CAUTION, margin_words, observed_words, test_line};
+use super::words::{EDITED, MARGIN_CAUTION, margin_words, observed_words, test_line, unit_suffix};
 
 /// The colour an outcome is written in.
 fn outcome_color(ui: &egui::Ui, o: Outcome) -> egui::Color32 {
@@ -146,7 +146,7 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
             .show(ui, |ui| {
                 ui.label("characteristic");
                 ui.label("T² lost without it");
-                ui.label("standardized coefficient");
+                ui.label("weight / SD");
                 ui.end_row();
                 for r in &c.ranking {
                     ui.label(&r.characteristic);
@@ -243,14 +243,7 @@ fn decision_ui(ui: &mut egui::Ui, s: &Shown, actions: &mut Vec<Action>) {
                     }
                     ui.end_row();
                     for r in &eq.per_characteristic {
-                        let k = c
-                            .characteristics
-                            .iter()
-                            .position(|n| n == &r.characteristic);
-                        let unit = k
-                            .and_then(|k| c.units.get(k).cloned().flatten())
-                            .map(|u| format!(" {u}"))
-                            .unwrap_or_default();
+                        let unit = unit_suffix(c, &r.characteristic);
                         ui.label(&r.characteristic);
                         ui.label(format!("{}{unit}", margin_words(r.margin)));
                         ui.label(format!("{}{unit}", format_sig(r.difference, 4)));

@@ -28,6 +28,16 @@ pub fn short_number(v: f64) -> String {
 }
 
 /// A margin (allowed candidate − reference) for reading: "± 0.03", or "−0.2 to +0.3".
+/// " mm" for a characteristic measured in mm (by name), "" without a unit.
+pub fn unit_suffix(c: &crate::analysis::Comparison, characteristic: &str) -> String {
+    c.characteristics
+        .iter()
+        .position(|n| n == characteristic)
+        .and_then(|k| c.units.get(k).cloned().flatten())
+        .map(|u| format!(" {u}"))
+        .unwrap_or_default()
+}
+
 pub fn margin_words(m: [f64; 2]) -> String {
     if -m[0] == m[1] {
         format!("± {}", short_number(m[1]))

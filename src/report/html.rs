@@ -505,7 +505,7 @@ fn intervals_table(h: &mut String, r: &Record) {
 }
 
 fn ranking_table(h: &mut String, r: &Record) {
-    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>T² lost without it</th><th>standardized coefficient</th></tr>\n");
+    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>T² lost without it</th><th>weight / SD</th></tr>\n");
     for c in &r.ranking {
         let _ = writeln!(
             h,
