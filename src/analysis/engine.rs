@@ -210,14 +210,18 @@ fn compare_centred(
     )?;
     // Unit-level results: scores, apparent and holdout errors.
     let pooled = Pooled::new(&m1, &m2, characteristics)?;
+    // `a = Sp⁻¹ (x̄2 − x̄1)`: a score grows toward the candidate; a unit goes to the candidate
+    // when its score is above zero, to the reference otherwise.
     let a = DVector::from_vec(out.discriminant.coefficients.clone());
+    // Reference − candidate: the direction the holdout count (`discriminant`) is written in,
+    // and twice the reference mean's offset from the midpoint.
     let d = &m1.offset - &m2.offset;
     let half = &d * 0.5;
     let s1 = discriminant::scores(&c1, &a, &half);
     let s2 = discriminant::scores(&c2, &a, &(-&half));
     let apparent = [
-        s1.iter().filter(|&&s| s < 0.0).count(),
-        s2.iter().filter(|&&s| s >= 0.0).count(),
+        s1.iter().filter(|&&s| s > 0.0).count(),
+        s2.iter().filter(|&&s| s <= 0.0).count(),
     ];
     out.discriminant.apparent_misclassified = Some(apparent);
     let scores = [s1, s2];
@@ -438,6 +442,7 @@ pub fn compare_summaries(
                 min: f64::NAN,
                 median: f64::NAN,
                 max: f64::NAN,
+                decimals: None,
             };
             [one(&moments[0], lots[0]), one(&moments[1], lots[1])]
         })

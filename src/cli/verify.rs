@@ -155,10 +155,23 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
     };
     let mut lots = lots;
     let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
-    let recomputed = serde_json::to_value(Record::new(&c, Some((&prepared, [&lots[0], &lots[1]]))))
-        .map_err(|e| CliError::from(e.to_string()))?;
+    // A record of the earlier schema wrote every difference as reference − candidate: it is
+    // recomputed the same way round, never reinterpreted.
+    let v1 = typed.schema == report::SCHEMA_V1;
+    let c = if v1 { c.reference_minus_candidate() } else { c };
+    let mut again = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
+    if v1 {
+        again.schema = report::SCHEMA_V1.into();
+    }
+    let recomputed = serde_json::to_value(again).map_err(|e| CliError::from(e.to_string()))?;
     if let Some(diff) = sign::first_difference(rec, &recomputed) {
         return fail(format!("a recomputed number differs: {diff}"));
+    }
+    if v1 {
+        outln!(
+            "schema       {} (differences written reference − candidate, as that release did)",
+            report::SCHEMA_V1
+        );
     }
     outln!("recomputed   every number in the record matches the lot files");
     outln!("VERIFIED");
@@ -193,7 +206,10 @@ pub(super) fn report_html(a: ReportArgs) -> CliResult {
             Err(e) => eprintln!("lotshift: warning: {e}"),
         }
         html::render_html(&record, Some(&signature))
-    } else if doc.get("schema").and_then(|s| s.as_str()) == Some(report::SCHEMA) {
+    } else if matches!(
+        doc.get("schema").and_then(|s| s.as_str()),
+        Some(report::SCHEMA | report::SCHEMA_V1)
+    ) {
         let record = Record::deserialize(&doc).map_err(|e| {
             format!(
                 "{}: not a comparison record lotshift can read: {e}",

@@ -59,6 +59,24 @@ pub enum Action {
     SetCoverage(f64),
     /// Compare the current lots, selection, settings and specification.
     Rerun,
+    /// Set a unit aside with a recorded reason (a run follows).
+    SetUnitAside {
+        /// 0 reference, 1 candidate.
+        lot: usize,
+        /// The unit's row in its lot file.
+        row: u32,
+        /// The unit's labels, `[header, value]`.
+        labels: Vec<(String, String)>,
+        /// Why.
+        reason: String,
+    },
+    /// Put a unit set aside back (a run follows).
+    RestoreUnit {
+        /// 0 reference, 1 candidate.
+        lot: usize,
+        /// The unit's row in its lot file.
+        row: u32,
+    },
     /// Cancel the comparison under way.
     CancelRun,
     /// Open a tab.

@@ -129,6 +129,25 @@ impl LotshiftApp {
             Action::Settings(s) => self.saved.settings = *s,
             Action::SetCoverage(c) => self.saved.coverage = c,
             Action::Rerun => self.rerun(),
+            Action::SetUnitAside {
+                lot,
+                row,
+                labels,
+                reason,
+            } => {
+                self.lots
+                    .set_unit_aside(crate::data::exclusions::Exclusion {
+                        lot,
+                        row,
+                        labels,
+                        reason,
+                    });
+                self.rerun();
+            }
+            Action::RestoreUnit { lot, row } => {
+                self.lots.restore_unit(lot, row);
+                self.rerun();
+            }
             Action::CancelRun => {
                 self.worker.cancel();
                 self.result
@@ -295,6 +314,7 @@ impl LotshiftApp {
             selection: self.lots.selection(),
             settings: self.saved.settings.clone(),
             spec,
+            exclusions: self.lots.set_aside.clone(),
             ..Request::default()
         };
         self.worker.compare(lots, request);

@@ -60,7 +60,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
     let mut line = String::new();
     if let Some(a) = d.apparent_misclassified {
         line.push_str(&format!(
-            "Misclassified by the rule (a score below 0 is put with the candidate lot): {} of {} reference, {} of {} candidate ({:.1}%).",
+            "Misclassified by the rule (a score above 0 is put with the candidate lot): {} of {} reference, {} of {} candidate ({:.1}%).",
             a[0],
             c.lots[0].n,
             a[1],

@@ -309,8 +309,8 @@ fn difference_ui(
         .unwrap_or(false);
     Plot::new(("difference", i, j))
         .height((ui.available_height() - 24.0).max(160.0))
-        .x_axis_label(format!("difference in {}", label(s, i)))
-        .y_axis_label(format!("difference in {}", label(s, j)))
+        .x_axis_label(format!("candidate − reference in {}", label(s, i)))
+        .y_axis_label(format!("candidate − reference in {}", label(s, j)))
         .show(ui, |plot| {
             if let Some(o) = outline {
                 plot.line(

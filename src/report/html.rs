@@ -15,7 +15,10 @@ use super::sign::SignatureBlock;
 use super::{CAUTION, Record};
 use crate::analysis::decision::{MarginRule, Outcome};
 use crate::analysis::{FavouredTest, ScoreHistogram, pair_geometry};
-use crate::format::{format_confidence, format_p, format_sig, p_text};
+use crate::format::{
+    format_confidence, format_measure, format_p, format_sig, p_text, shift_sentence,
+};
+use crate::stats::moments::finer_decimals;
 
 /// Coverage of the data ellipses in the pair chart: the window's default.
 const DATA_COVERAGE: f64 = 0.95;
@@ -83,12 +86,17 @@ pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> Strin
     );
     let _ = writeln!(
         h,
-        "<h1>Lot comparison: {} (reference) vs {} (candidate)</h1><div class=\"muted\">{} {}; analysed {}; difference = reference minus candidate</div>",
+        "<h1>Lot comparison: {} (reference) vs {} (candidate)</h1><div class=\"muted\">{} {}; analysed {}; {}</div>",
         esc(&lot_name(0)),
         esc(&lot_name(1)),
         esc(&r.software.name),
         esc(&r.software.version),
-        esc(r.analysed_at.as_deref().unwrap_or("(time not recorded)"))
+        esc(r.analysed_at.as_deref().unwrap_or("(time not recorded)")),
+        if r.schema == super::SCHEMA_V1 {
+            "a record of schema lotshift.comparison/1: its differences (not those of the equivalence section) are reference minus candidate"
+        } else {
+            "every difference is candidate minus reference"
+        }
     );
     let differ = r.hotelling.differ;
     let _ = writeln!(
@@ -452,20 +460,21 @@ fn test_section(h: &mut String, r: &Record) {
 }
 
 fn characteristics_section(h: &mut String, r: &Record) {
-    h.push_str("<h2>Per characteristic</h2><table><tr><th class=\"name\">characteristic</th><th>mean ref</th><th>SD ref</th><th>mean cand</th><th>SD cand</th><th>difference</th><th>std. difference</th><th>p (pooled t)</th><th>p (Welch)</th></tr>\n");
+    h.push_str("<h2>Per characteristic</h2><table><tr><th class=\"name\">characteristic</th><th>mean ref.</th><th>SD ref.</th><th>mean cand.</th><th>SD cand.</th><th>cand. − ref.</th><th>std. difference</th><th>p (pooled t)</th><th>p (Welch)</th></tr>\n");
     for c in &r.per_characteristic {
         let unit = c
             .unit
             .as_deref()
             .map(|u| format!(" ({})", esc(u)))
             .unwrap_or_default();
+        let decimals = finer_decimals(c.lots[0].decimals, c.lots[1].decimals);
         let _ = writeln!(
             h,
             "<tr><td class=\"name\">{}{unit}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
             esc(&c.characteristic),
-            format_sig(c.lots[0].mean, 7),
+            format_measure(c.lots[0].mean, decimals),
             format_sig(c.lots[0].sd, 4),
-            format_sig(c.lots[1].mean, 7),
+            format_measure(c.lots[1].mean, decimals),
             format_sig(c.lots[1].sd, 4),
             format_sig(c.difference, 4),
             format_sig(c.standardized_difference, 3),
@@ -477,8 +486,14 @@ fn characteristics_section(h: &mut String, r: &Record) {
 }
 
 fn intervals_table(h: &mut String, r: &Record) {
-    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>difference</th><th>simultaneous (T²)</th><th>Bonferroni</th><th>one at a time</th></tr>\n");
+    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>unit</th><th>cand. − ref.</th><th>simultaneous (T²)</th><th>Bonferroni</th><th>one at a time</th></tr>\n");
     for iv in &r.intervals {
+        let unit = r
+            .per_characteristic
+            .iter()
+            .find(|c| c.characteristic == iv.characteristic)
+            .and_then(|c| c.unit.as_deref())
+            .unwrap_or("");
         let cell = |x: [f64; 2], k: usize| {
             format!(
                 "[{}, {}]{}",
@@ -493,8 +508,9 @@ fn intervals_table(h: &mut String, r: &Record) {
         };
         let _ = writeln!(
             h,
-            "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
             esc(&iv.characteristic),
+            esc(unit),
             format_sig(iv.difference, 4),
             cell(iv.simultaneous, 0),
             cell(iv.bonferroni, 1),
@@ -502,6 +518,25 @@ fn intervals_table(h: &mut String, r: &Record) {
         );
     }
     h.push_str("</table>\n");
+    if r.schema != super::SCHEMA_V1 {
+        let conf = format_confidence(r.alpha);
+        h.push_str("<ul class=\"readings\">");
+        for (iv, c) in r.intervals.iter().zip(&r.per_characteristic) {
+            let _ = write!(
+                h,
+                "<li>{}</li>",
+                esc(&shift_sentence(
+                    &iv.characteristic,
+                    c.unit.as_deref(),
+                    iv.difference,
+                    iv.simultaneous,
+                    finer_decimals(c.lots[0].decimals, c.lots[1].decimals),
+                    &conf
+                ))
+            );
+        }
+        h.push_str("</ul>\n");
+    }
 }
 
 fn ranking_table(h: &mut String, r: &Record) {

@@ -8,7 +8,9 @@ pub mod sign;
 mod text;
 
 pub use canonical::{CanonicalError, canonical_bytes};
-pub use record::{CAUTION, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, Software};
+pub use record::{
+    CAUTION, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, SCHEMA_V1, Software,
+};
 pub use text::{box_m_line, mardia_line, permutation_line, render_text, unequal_line};
 
 use std::io::Write as _;

@@ -1,4 +1,5 @@
-//! The record every export and signed summary is built from (schema `lotshift.comparison/1`).
+//! The record every export and signed summary is built from (schema `lotshift.comparison/2`:
+//! every difference is candidate − reference; `/1` wrote reference − candidate).
 
 //!
 //! Every key is a field of a type of the report layer (this file and [`super::sections`]),
@@ -17,7 +18,11 @@ use crate::analysis::{Comparison, LotResult};
 use crate::data::{ColumnData, Lot, Prepared};
 
 /// Schema identifier written into every record.
-pub const SCHEMA: &str = "lotshift.comparison/1";
+pub const SCHEMA: &str = "lotshift.comparison/2";
+
+/// The earlier schema, whose differences were reference − candidate; `verify` still verifies
+/// summaries of it (see [`crate::analysis::Comparison::reference_minus_candidate`]).
+pub const SCHEMA_V1: &str = "lotshift.comparison/1";
 
 /// The caution carried by every output.
 pub const CAUTION: &str = "This statistical result supports, and does not replace, the lot \

@@ -1,5 +1,5 @@
 //! The sections of the comparison record, defined here and nowhere else: their field names
-//! are the record's keys (schema `lotshift.comparison/1`, README "The comparison record"), in
+//! are the record's keys (schema `lotshift.comparison/2`, README "The comparison record"), in
 //! the order they are written. The engine's types (`analysis`, `stats`, `data`) are converted
 //! into these with `From`, and back for the engine functions that read a comparison; every
 //! conversion names every field, so a field added to or renamed in an engine type does not
@@ -242,7 +242,7 @@ impl From<&HotellingRecord> for HotellingResult {
 pub struct IntervalRecord {
     /// Characteristic name.
     pub characteristic: String,
-    /// Mean difference, reference minus candidate.
+    /// Mean difference, candidate − reference (reference − candidate in schema `/1`).
     #[serde(deserialize_with = "nan::de")]
     pub difference: f64,
     /// Its standard error.
@@ -463,6 +463,10 @@ pub struct ColumnSummaryRecord {
     /// Largest value (null from summary statistics).
     #[serde(deserialize_with = "nan::de")]
     pub max: f64,
+    /// Decimal places the measurements carry (null from summary statistics or for values with
+    /// more than 9); means are written to one place more.
+    #[serde(default)]
+    pub decimals: Option<u8>,
 }
 
 impl From<&ColumnSummary> for ColumnSummaryRecord {
@@ -474,6 +478,7 @@ impl From<&ColumnSummary> for ColumnSummaryRecord {
             min,
             median,
             max,
+            decimals,
         } = *c;
         ColumnSummaryRecord {
             n,
@@ -482,6 +487,7 @@ impl From<&ColumnSummary> for ColumnSummaryRecord {
             min,
             median,
             max,
+            decimals,
         }
     }
 }
@@ -495,6 +501,7 @@ impl From<&ColumnSummaryRecord> for ColumnSummary {
             min: c.min,
             median: c.median,
             max: c.max,
+            decimals: c.decimals,
         }
     }
 }
@@ -508,7 +515,7 @@ pub struct CharacteristicRecord {
     pub unit: Option<String>,
     /// Summary in each lot.
     pub lots: [ColumnSummaryRecord; 2],
-    /// Mean difference, reference minus candidate.
+    /// Mean difference, candidate − reference (reference − candidate in schema `/1`).
     #[serde(deserialize_with = "nan::de")]
     pub difference: f64,
     /// Pooled standard deviation.

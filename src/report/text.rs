@@ -7,7 +7,9 @@ use std::fmt::Write as _;
 use crate::analysis::Comparison;
 use crate::analysis::decision::MarginFrom;
 use crate::data::Prepared;
-use crate::format::{format_confidence, format_p, format_sig, p_text};
+use crate::format::{
+    format_confidence, format_measure, format_p, format_sig, p_text, shift_sentence,
+};
 use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
 use crate::stats::permutation::PermutationResult;
 
@@ -15,6 +17,20 @@ use super::CAUTION;
 
 fn unit_suffix(u: &Option<String>) -> String {
     u.as_ref().map(|u| format!(" ({u})")).unwrap_or_default()
+}
+
+/// The data's resolution for a characteristic: the finer of the two lots'.
+fn decimals_of(r: &crate::analysis::CharacteristicResult) -> Option<u8> {
+    crate::stats::moments::finer_decimals(r.lots[0].decimals, r.lots[1].decimals)
+}
+
+/// A characteristic's unit for a table cell ("" when the header gave none).
+fn unit_of(c: &Comparison, name: &str) -> String {
+    c.characteristics
+        .iter()
+        .position(|n| n == name)
+        .and_then(|k| c.units.get(k).cloned().flatten())
+        .unwrap_or_default()
 }
 
 /// Renders a comparison as plain text.
@@ -29,7 +45,7 @@ pub fn render_text(
     let h = &c.hotelling;
     let _ = writeln!(
         s,
-        "lotshift comparison (difference = first lot minus second lot)"
+        "lotshift comparison (every difference is candidate − reference: lot 2 minus lot 1)"
     );
     for (i, lot) in c.lots.iter().enumerate() {
         let extra = prepared
@@ -43,8 +59,9 @@ pub fn render_text(
             .unwrap_or_default();
         let _ = writeln!(
             s,
-            "  lot {}: \"{}\" from {} — {} units used{}",
+            "  lot {} ({}): \"{}\" from {} — {} units used{}",
             i + 1,
+            ["reference", "candidate"][i],
             lot.name,
             files[i],
             lot.n,
@@ -135,15 +152,16 @@ pub fn render_text(
     let _ = writeln!(
         s,
         "  {:<22} {:>12} {:>12} {:>11} {:>10} {:>9} {:>9}",
-        "characteristic", "mean lot 1", "mean lot 2", "difference", "std diff", "t p", "Welch p"
+        "characteristic", "mean ref.", "mean cand.", "cand − ref", "std diff", "t p", "Welch p"
     );
     for r in &c.per_characteristic {
+        let decimals = decimals_of(r);
         let _ = writeln!(
             s,
             "  {:<22} {:>12} {:>12} {:>11} {:>10} {:>9} {:>9}",
             format!("{}{}", r.characteristic, unit_suffix(&r.unit)),
-            format_sig(r.lots[0].mean, 6),
-            format_sig(r.lots[1].mean, 6),
+            format_measure(r.lots[0].mean, decimals),
+            format_measure(r.lots[1].mean, decimals),
             format_sig(r.difference, 4),
             format_sig(r.standardized_difference, 3),
             format_p(r.pooled_p),
@@ -152,13 +170,14 @@ pub fn render_text(
     }
     let _ = writeln!(
         s,
-        "\nIntervals for the mean difference at {}% confidence (* excludes zero)",
+        "\nIntervals for the mean difference, candidate − reference, at {}% confidence, in each \
+         characteristic's unit (* excludes zero)",
         format_confidence(c.alpha())
     );
     let _ = writeln!(
         s,
-        "  {:<22} {:>11} {:>25} {:>25} {:>25}",
-        "characteristic", "difference", "simultaneous (T²)", "Bonferroni", "one at a time"
+        "  {:<22} {:>6} {:>11} {:>25} {:>25} {:>25}",
+        "characteristic", "unit", "cand − ref", "simultaneous (T²)", "Bonferroni", "one at a time"
     );
     let iv = |x: [f64; 2], flag: bool| {
         format!(
@@ -171,12 +190,29 @@ pub fn render_text(
     for i in &c.intervals {
         let _ = writeln!(
             s,
-            "  {:<22} {:>11} {:>25} {:>25} {:>25}",
+            "  {:<22} {:>6} {:>11} {:>25} {:>25} {:>25}",
             i.characteristic,
+            unit_of(c, &i.characteristic),
             format_sig(i.difference, 4),
             iv(i.simultaneous, i.excludes_zero[0]),
             iv(i.bonferroni, i.excludes_zero[1]),
             iv(i.one_at_a_time, i.excludes_zero[2])
+        );
+    }
+    let conf = format_confidence(c.alpha());
+    let _ = writeln!(s, "\nIn words");
+    for (i, r) in c.intervals.iter().zip(&c.per_characteristic) {
+        let _ = writeln!(
+            s,
+            "  {}",
+            shift_sentence(
+                &i.characteristic,
+                r.unit.as_deref(),
+                i.difference,
+                i.simultaneous,
+                decimals_of(r),
+                &conf
+            )
         );
     }
     let d = &c.discriminant;

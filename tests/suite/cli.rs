@@ -48,7 +48,7 @@ fn compare_prints_the_verdict_and_writes_the_record() {
     assert!(out.contains("supports, and does not replace"));
     let rec: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
-    assert_eq!(rec["schema"], "lotshift.comparison/1");
+    assert_eq!(rec["schema"], "lotshift.comparison/2");
     assert_eq!(rec["alpha"], 0.05);
     assert_eq!(rec["lots"][0]["n"], 39);
     assert_eq!(rec["lots"][0]["n_excluded"], 1);

@@ -609,6 +609,7 @@ const KEYS: &[&str] = &[
     "per_characteristic[].lots[].min",
     "per_characteristic[].lots[].median",
     "per_characteristic[].lots[].max",
+    "per_characteristic[].lots[].decimals",
     "per_characteristic[].difference",
     "per_characteristic[].pooled_sd",
     "per_characteristic[].standardized_difference",
