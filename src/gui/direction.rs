@@ -106,7 +106,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         .legend(Legend::default())
         .allow_scroll(false)
         .x_axis_label(format!(
-            "score along the direction (0 = midpoint between the means; D² = {})",
+            "score along the direction, higher toward the candidate (0 = midpoint between the means; D² = {})",
             format_sig(c.hotelling.mahalanobis_d2, 4)
         ))
         .y_axis_label("density")

@@ -692,7 +692,7 @@ fn score_chart(r: &Record) -> String {
     }
     let _ = write!(
         s,
-        "<line x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"8\" y2=\"{bottom}\" stroke=\"#333\" stroke-dasharray=\"4 3\"/><line x1=\"{left}\" x2=\"{right}\" y1=\"{bottom}\" y2=\"{bottom}\" stroke=\"#333\"/><text x=\"{1}\" y=\"{2}\" text-anchor=\"middle\">discriminant score (filled indigo: reference, amber outline: candidate; dashed: allocation cut-off)</text></svg></div>",
+        "<line x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"8\" y2=\"{bottom}\" stroke=\"#333\" stroke-dasharray=\"4 3\"/><line x1=\"{left}\" x2=\"{right}\" y1=\"{bottom}\" y2=\"{bottom}\" stroke=\"#333\"/><text x=\"{1}\" y=\"{2}\" text-anchor=\"middle\">discriminant score, higher toward the candidate (filled indigo: reference, amber outline: candidate; dashed: allocation cut-off)</text></svg></div>",
         x(0.0),
         (left + right) / 2.0,
         h - 12.0

@@ -242,7 +242,10 @@ mod tests {
         assert_eq!(resolution_decimals(&[0.1 + 0.2]), Some(1));
         assert_eq!(resolution_decimals(&[1.0 / 3.0]), None);
         // Far from zero the last places still count.
-        assert_eq!(resolution_decimals(&[1_000_000.123_4, 1_000_000.5]), Some(4));
+        assert_eq!(
+            resolution_decimals(&[1_000_000.123_4, 1_000_000.5]),
+            Some(4)
+        );
         assert_eq!(resolution_decimals(&[]), None);
     }
 

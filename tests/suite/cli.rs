@@ -719,3 +719,60 @@ fn a_tiny_lot_says_which_checks_could_not_run() {
     assert!(why.contains("Shapiro–Wilk needs at least 3 units"), "{why}");
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+#[test]
+fn every_output_names_the_direction_candidate_minus_reference() {
+    // A mistake this guards against: reading a shift the wrong way round. The text, the HTML
+    // report and the record all say candidate − reference, and the numbers agree with it:
+    // each difference is the candidate's mean minus the reference's (arithmetic on the
+    // record's own means).
+    let dir = tmpdir("direction");
+    let (json, html) = (dir.join("r.json"), dir.join("r.html"));
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--json",
+        json.to_str().unwrap(),
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(
+        out.contains("every difference is candidate − reference"),
+        "{out}"
+    );
+    assert!(out.contains("Intervals for the mean difference, candidate − reference"));
+    assert!(
+        out.contains("The candidate's hub length is 0.0094 mm higher on average"),
+        "{out}"
+    );
+    // Means to the data's resolution (three decimals in the files) plus one digit.
+    assert!(out.contains("27.9956") && out.contains("28.0050"), "{out}");
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(page.contains("every difference is candidate minus reference"));
+    assert!(page.contains("<th>cand. − ref.</th>"));
+    assert!(
+        page.contains("The candidate&#39;s hub length")
+            || page.contains("The candidate's hub length")
+    );
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(rec["schema"], "lotshift.comparison/2");
+    for (k, row) in rec["per_characteristic"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .enumerate()
+    {
+        let m = |g: usize| rec["lots"][g]["mean"][k].as_f64().unwrap();
+        let d = row["difference"].as_f64().unwrap();
+        assert!((d - (m(1) - m(0))).abs() < 1e-9 * m(0).abs(), "{k}");
+        // The files carry three decimals in mm and two in g.
+        let places = if row["unit"] == "g" { 2 } else { 3 };
+        assert_eq!(row["lots"][0]["decimals"], places, "{k}");
+        let iv = &rec["intervals"][k];
+        assert_eq!(iv["difference"].as_f64().unwrap(), d);
+    }
+}
