@@ -187,6 +187,11 @@ pub struct CompareArgs {
     /// difference detected": not "equivalent", and never an automatic release of a lot.
     #[arg(long)]
     pub fail_on_shift: bool,
+    /// Describe the comparison in the record and the report, as NAME=VALUE (repeat it):
+    /// part, reference lot, candidate lot, change request, purpose, notes, or a name of your
+    /// own.
+    #[arg(long = "field", value_name = "NAME=VALUE")]
+    pub fields: Vec<String>,
     /// Skip the leave-one-out misclassification rate.
     #[arg(long)]
     pub no_holdout: bool,

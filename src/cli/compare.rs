@@ -4,7 +4,13 @@
 use super::*;
 
 pub(super) fn compare(a: CompareArgs) -> CliResult {
-    // The specification first: a bad file stops before the lots are read.
+    // The description and the specification first: a bad one stops before the lots are read.
+    let fields = a
+        .fields
+        .iter()
+        .map(|f| report::parse_field(f))
+        .collect::<Result<Vec<_>, _>>()
+        .map_err(CliError::from)?;
     let spec = a.spec.request()?;
     let mut lots = load_lots(&a.lots)?;
     let exclusions = match &a.lots.exclude_units {
@@ -32,6 +38,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
     let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
     let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     record.analysed_at = Some(sign::now_rfc3339());
+    record.fields = fields;
     // Sign before printing anything, so a bad key or meaning stops with nothing written.
     let signed = match &a.sign {
         Some(key_path) => {

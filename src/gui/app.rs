@@ -46,6 +46,9 @@ pub struct LotshiftApp {
     screenshot: Option<ScreenshotPlan>,
     /// The signing form, while open.
     pub signing: Option<SignForm>,
+    /// What the comparison is about ([`crate::report::STANDARD_FIELDS`], in that order), as
+    /// typed: copied into the record that is exported and signed.
+    pub fields: [String; 6],
     /// Specification and margins of the latest run (built from `spec_editor`).
     pub spec: SpecRequest,
     /// The specification view's state: the specification as edited in the window.
@@ -77,6 +80,7 @@ impl LotshiftApp {
             notice: None,
             screenshot: None,
             signing: None,
+            fields: Default::default(),
             spec: SpecRequest::default(),
             spec_editor: SpecEditor::default(),
             pending_spec: None,
@@ -356,7 +360,10 @@ impl LotshiftApp {
                 // A run held for a specification problem stays held: a result still
                 // arriving is not current, and the problem stays the message. A failed run
                 // keeps the previous result on screen, marked as not current.
-                Outcome::Compared { result, .. } => self.result.arrive(result),
+                Outcome::Compared { result, .. } => {
+                    self.result.arrive(result);
+                    self.sync_fields();
+                }
                 Outcome::SpecLoaded(Err(e)) => self.messages.push(format!(
                     "{e} — the specification was not loaded; the table and the result are \
                      unchanged"
@@ -561,6 +568,26 @@ impl LotshiftApp {
         ui.separator();
         side::settings_ui(ui, &self.saved.settings, self.saved.coverage, &mut actions);
         self.apply_all(actions);
+        ui.separator();
+        if side::fields_ui(ui, &mut self.fields) {
+            self.sync_fields();
+        }
+    }
+
+    /// Puts the typed description into the record on screen (the one exported and signed).
+    pub fn sync_fields(&mut self) {
+        let fields: Vec<crate::report::FieldRecord> = crate::report::STANDARD_FIELDS
+            .iter()
+            .zip(&self.fields)
+            .filter(|(_, v)| !v.trim().is_empty())
+            .map(|(n, v)| crate::report::FieldRecord {
+                name: (*n).to_string(),
+                value: v.trim().to_string(),
+            })
+            .collect();
+        if let Some(s) = self.result.shown_mut() {
+            s.record.fields = fields;
+        }
     }
 
     fn central_ui(&mut self, ui: &mut egui::Ui) {

@@ -332,3 +332,24 @@ pub fn settings_ui(
         actions.push(Action::Rerun);
     }
 }
+
+/// The description of the comparison for the record (part, lot identifiers, change request,
+/// purpose, notes): the form's own text, edited in place. Returns whether anything changed.
+pub fn fields_ui(ui: &mut egui::Ui, fields: &mut [String; 6]) -> bool {
+    let mut changed = false;
+    egui::CollapsingHeader::new("About this comparison (for the record)")
+        .default_open(false)
+        .show(ui, |ui| {
+            egui::Grid::new("fields").num_columns(2).show(ui, |ui| {
+                for (name, value) in crate::report::STANDARD_FIELDS.iter().zip(fields.iter_mut()) {
+                    ui.label(*name);
+                    changed |= ui
+                        .add(egui::TextEdit::singleline(value).desired_width(170.0))
+                        .changed();
+                    ui.end_row();
+                }
+            });
+            ui.weak("Printed at the top of the report and covered by the signature.");
+        });
+    changed
+}

@@ -98,6 +98,7 @@ pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> Strin
             "every difference is candidate minus reference"
         }
     );
+    fields_section(&mut h, r);
     let differ = r.hotelling.differ;
     let _ = writeln!(
         h,
@@ -124,6 +125,7 @@ pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> Strin
     h.push_str(&score_chart(r));
     h.push_str(&pair_chart(r));
     checks_section(&mut h, r);
+    settings_section(&mut h, r);
     let _ = writeln!(h, "<p class=\"caution\">{}</p>", esc(CAUTION));
     match signature {
         Some(s) => {
@@ -442,6 +444,69 @@ fn lots_section(h: &mut String, r: &Record) {
     }
 }
 
+/// What the comparison is about, as entered: the standard fields first, in their order,
+/// then any other; every standard field is printed, a blank one as "(not given)", so that a
+/// missing entry shows on paper.
+fn fields_section(h: &mut String, r: &Record) {
+    h.push_str("<table id=\"fields\">");
+    let value = |name: &str| {
+        r.fields
+            .iter()
+            .find(|f| f.name.eq_ignore_ascii_case(name))
+            .map(|f| f.value.clone())
+    };
+    for name in super::STANDARD_FIELDS {
+        let _ = write!(
+            h,
+            "<tr><th class=\"name\">{}</th><td class=\"name\">{}</td></tr>",
+            esc(name),
+            value(name).map_or_else(
+                || "<span class=\"muted\">(not given)</span>".into(),
+                |v| esc(&v)
+            )
+        );
+    }
+    for f in &r.fields {
+        if !super::STANDARD_FIELDS
+            .iter()
+            .any(|n| n.eq_ignore_ascii_case(&f.name))
+        {
+            let _ = write!(
+                h,
+                "<tr><th class=\"name\">{}</th><td class=\"name\">{}</td></tr>",
+                esc(&f.name),
+                esc(&f.value)
+            );
+        }
+    }
+    h.push_str("</table>\n");
+}
+
+/// Every setting the comparison ran with (the record's `settings`, key by key, so a setting
+/// added later is printed too).
+fn settings_section(h: &mut String, r: &Record) {
+    h.push_str("<h2>Settings</h2><table id=\"settings\">");
+    if let Ok(serde_json::Value::Object(m)) = serde_json::to_value(&r.settings) {
+        for (k, v) in m {
+            let shown = match &v {
+                serde_json::Value::String(s) => s.clone(),
+                other => other.to_string(),
+            };
+            let _ = write!(
+                h,
+                "<tr><th class=\"name\">{}</th><td class=\"name\">{}</td></tr>",
+                esc(&k.replace('_', " ")),
+                esc(&shown)
+            );
+        }
+    }
+    let _ = write!(
+        h,
+        "<tr><th class=\"name\">record schema</th><td class=\"name\">{}</td></tr></table>\n",
+        esc(&r.schema)
+    );
+}
+
 fn test_section(h: &mut String, r: &Record) {
     let t = &r.hotelling;
     let _ = writeln!(
@@ -456,6 +521,42 @@ fn test_section(h: &mut String, r: &Record) {
         format_sig(t.critical_t2, 6),
         format_sig(t.critical_f, 6),
         format_sig(t.mahalanobis_d2, 6)
+    );
+    let d = &r.discriminant;
+    let n = [
+        r.lots.first().map_or(0, |l| l.n),
+        r.lots.get(1).map_or(0, |l| l.n),
+    ];
+    // In floating point: a record that disagrees with itself may hold any counts.
+    let total = (n[0] as f64 + n[1] as f64).max(1.0);
+    h.push_str("<table id=\"discrimination\">");
+    let _ = write!(
+        h,
+        "<tr><th class=\"name\">units compared</th><td class=\"name\">{} (reference) and {} (candidate)</td></tr>",
+        n[0], n[1]
+    );
+    if let Some(a) = d.apparent_misclassified {
+        let _ = write!(
+            h,
+            "<tr><th class=\"name\">misclassified by the discriminant rule</th><td class=\"name\">{} of the reference, {} of the candidate ({:.1}%)</td></tr>",
+            a[0],
+            a[1],
+            100.0 * (a[0] as f64 + a[1] as f64) / total
+        );
+    }
+    if let Some(l) = d.leave_one_out_misclassified {
+        let _ = write!(
+            h,
+            "<tr><th class=\"name\">misclassified, each unit held out</th><td class=\"name\">{} of the reference, {} of the candidate ({:.1}%)</td></tr>",
+            l[0],
+            l[1],
+            100.0 * d.leave_one_out_rate.unwrap_or(f64::NAN)
+        );
+    }
+    let _ = write!(
+        h,
+        "<tr><th class=\"name\">condition number of the pooled correlation matrix</th><td class=\"name\">{}</td></tr></table>\n",
+        format_sig(r.condition_number, 3)
     );
 }
 

@@ -292,6 +292,52 @@ pub struct Record {
     /// The T² test without the units flagged as outliers.
     #[serde(default)]
     pub without_outliers: Option<WithoutOutliersRecord>,
+    /// What the comparison is about, as entered (part, lot identifiers, change request,
+    /// purpose, notes): printed in the report, covered by the signature, not recomputed.
+    #[serde(default)]
+    pub fields: Vec<FieldRecord>,
+}
+
+/// `fields[]`: one entry of the comparison's description, as entered.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct FieldRecord {
+    /// What it is ("part", "reference lot", "change request", …).
+    pub name: String,
+    /// As entered.
+    pub value: String,
+}
+
+/// The entry fields the window's form offers and the report prints first, in this order
+/// (`--field` takes these and any other name).
+pub const STANDARD_FIELDS: [&str; 6] = [
+    "part",
+    "reference lot",
+    "candidate lot",
+    "change request",
+    "purpose",
+    "notes",
+];
+
+/// Parses `--field NAME=VALUE`.
+///
+/// # Errors
+/// No `=`, or an empty name or value, in words.
+pub fn parse_field(s: &str) -> Result<FieldRecord, String> {
+    let Some((name, value)) = s.split_once('=') else {
+        return Err(format!(
+            "--field takes NAME=VALUE (for example --field \"part=HX40 hub\"), got \"{s}\""
+        ));
+    };
+    let (name, value) = (name.trim(), value.trim());
+    if name.is_empty() || value.is_empty() {
+        return Err(format!(
+            "--field \"{s}\": both the name and the value must be given"
+        ));
+    }
+    Ok(FieldRecord {
+        name: name.to_string(),
+        value: value.to_string(),
+    })
 }
 
 impl Record {
@@ -430,6 +476,7 @@ impl Record {
                 .unwrap_or_default(),
             detectable: c.detectable.as_ref().map(Into::into),
             without_outliers: c.without_outliers.as_ref().map(Into::into),
+            fields: Vec::new(),
         }
     }
 

@@ -437,7 +437,8 @@ pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> 
 
 fn walk(path: &str, a: &Value, b: &Value, prose: bool) -> Option<String> {
     {
-        const SKIP: [&str; 3] = ["analysed_at", "software", "file"];
+        // `fields` is what was typed about the comparison, not a result: never recomputed.
+        const SKIP: [&str; 4] = ["analysed_at", "software", "file", "fields"];
         match (a, b) {
             (Value::Object(x), Value::Object(y)) => {
                 for (k, va) in x {

@@ -114,6 +114,11 @@ pub fn render_text(
             );
         }
     }
+    if let Some(fields) = record.map(|r| &r.fields).filter(|f| !f.is_empty()) {
+        for f in fields {
+            let _ = writeln!(s, "  {}: {}", f.name, f.value);
+        }
+    }
     let _ = writeln!(s, "\nVerdict\n  {}", c.verdict);
     for w in &c.warnings {
         let _ = writeln!(s, "  warning: {w}");

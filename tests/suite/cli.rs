@@ -776,3 +776,51 @@ fn every_output_names_the_direction_candidate_minus_reference() {
         assert_eq!(iv["difference"].as_f64().unwrap(), d);
     }
 }
+
+#[test]
+fn fields_describe_the_comparison_in_the_record_text_and_report() {
+    let dir = tmpdir("fields");
+    let (json, html) = (dir.join("r.json"), dir.join("r.html"));
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--field",
+        "part=HX40 hub",
+        "--field",
+        "change request = CR-0193",
+        "--field",
+        "supplier=Route B works",
+        "--json",
+        json.to_str().unwrap(),
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stdout(&o).contains("  change request: CR-0193"));
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(rec["fields"][0]["name"], "part");
+    assert_eq!(rec["fields"][1]["value"], "CR-0193");
+    assert_eq!(rec["fields"][2]["name"], "supplier");
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(page.contains("HX40 hub") && page.contains("Route B works"));
+    // A standard entry left blank still shows on paper.
+    assert!(
+        page.contains("reference lot</th><td class=\"name\"><span class=\"muted\">(not given)")
+    );
+    // A malformed entry stops before anything is read or written.
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--field",
+        "part",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("--field takes NAME=VALUE"),
+        "{}",
+        stderr(&o)
+    );
+}

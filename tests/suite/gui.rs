@@ -1120,3 +1120,28 @@ fn a_unit_set_aside_in_the_window_is_left_out_recorded_and_put_back() {
     assert!(s.record.exclusions.is_empty());
     assert!((s.comparison.hotelling.t2 - before.hotelling.t2).abs() < 1e-12 * before.hotelling.t2);
 }
+
+#[test]
+fn the_description_typed_in_the_window_goes_into_the_record_and_survives_a_rerun() {
+    let mut h = harness();
+    h.get_by_label("About this comparison (for the record)");
+    h.state_mut().fields[0] = "HX40 hub".into();
+    h.state_mut().fields[3] = " CR-0193 ".into();
+    h.state_mut().sync_fields();
+    let fields =
+        |h: &Harness<'static, LotshiftApp>| h.state().result.shown().unwrap().record.fields.clone();
+    let f = fields(&h);
+    assert_eq!(f.len(), 2);
+    assert_eq!(
+        (f[0].name.as_str(), f[0].value.as_str()),
+        ("part", "HX40 hub")
+    );
+    assert_eq!(
+        (f[1].name.as_str(), f[1].value.as_str()),
+        ("change request", "CR-0193")
+    );
+    // A new run keeps what was typed.
+    h.state_mut().apply(lotshift::gui::action::Action::Rerun);
+    settle(&mut h);
+    assert_eq!(fields(&h), f);
+}

@@ -522,6 +522,7 @@ fn full_record() -> Record {
         "anderson_darling_modified": 0.3, "anderson_darling_p": 0.5, "z_skewness": 1.0,
         "z_kurtosis": 1.0, "k2": 2.0, "k2_p": 0.37}"#;
     record.normality[0].large[1] = Some(serde_json::from_str(json).unwrap());
+    record.fields = vec![lotshift::report::parse_field("part=HX40 hub").unwrap()];
     record
 }
 
@@ -758,6 +759,9 @@ const KEYS: &[&str] = &[
     "without_outliers.p_value",
     "without_outliers.differ",
     "without_outliers.same_decision",
+    "fields",
+    "fields[].name",
+    "fields[].value",
 ];
 
 #[test]

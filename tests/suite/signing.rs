@@ -374,6 +374,24 @@ fn the_html_report_renders_in_a_real_browser() {
     assert!(text.contains("The lots differ at alpha 0.05"), "{text}");
     assert!(text.contains("Dana Whitfield"), "{text}");
     assert!(text.contains("does not replace"), "{text}");
+    // The complete report: the description (blank entries printed as such), every check's
+    // reading, both misclassification rates, the condition number and the settings.
+    for want in [
+        "change request",
+        "(not given)",
+        "Shapiro–Wilk",
+        "misclassified by the discriminant rule",
+        "misclassified, each unit held out",
+        "condition number of the pooled correlation matrix",
+        "Settings",
+        "permutations",
+        "candidate minus reference",
+    ] {
+        assert!(
+            text.contains(want),
+            "the printed report lacks \"{want}\": {text}"
+        );
+    }
     std::fs::remove_dir_all(dir).unwrap();
 }
 
