@@ -500,9 +500,9 @@ fn settings_section(h: &mut String, r: &Record) {
             );
         }
     }
-    let _ = write!(
+    let _ = writeln!(
         h,
-        "<tr><th class=\"name\">record schema</th><td class=\"name\">{}</td></tr></table>\n",
+        "<tr><th class=\"name\">record schema</th><td class=\"name\">{}</td></tr></table>",
         esc(&r.schema)
     );
 }
@@ -553,9 +553,9 @@ fn test_section(h: &mut String, r: &Record) {
             100.0 * d.leave_one_out_rate.unwrap_or(f64::NAN)
         );
     }
-    let _ = write!(
+    let _ = writeln!(
         h,
-        "<tr><th class=\"name\">condition number of the pooled correlation matrix</th><td class=\"name\">{}</td></tr></table>\n",
+        "<tr><th class=\"name\">condition number of the pooled correlation matrix</th><td class=\"name\">{}</td></tr></table>",
         format_sig(r.condition_number, 3)
     );
 }
