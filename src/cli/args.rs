@@ -34,6 +34,9 @@ pub struct VerifyArgs {
     /// the file's limits and margins (without it, from the ones the record holds).
     #[arg(long, value_name = "FILE")]
     pub spec: Option<PathBuf>,
+    /// The comparison protocol the comparison was run under: checks its SHA-256.
+    #[arg(long, value_name = "FILE")]
+    pub protocol: Option<PathBuf>,
 }
 
 /// Arguments of `report`.
@@ -89,8 +92,9 @@ pub struct PlanArgs {
 /// Which lots to read and which characteristics to compare.
 #[derive(Debug, Args)]
 pub struct LotArgs {
-    /// The reference lot file and the candidate lot file (or one file with --split-by).
-    #[arg(value_name = "FILE", required = true, num_args = 1..=2)]
+    /// The reference lot file and the candidate lot file (or one file with --split-by); with
+    /// --protocol, the protocol's files when none are given.
+    #[arg(value_name = "FILE", required_unless_present = "protocol", num_args = 1..=2)]
     pub files: Vec<PathBuf>,
     /// Lot column: the column holding each unit's lot, to read both lots from one file.
     #[arg(long, value_name = "COLUMN", alias = "split-by")]
@@ -144,6 +148,14 @@ pub struct SpecArgs {
 }
 
 impl SpecArgs {
+    /// True when any specification option is given.
+    pub fn given(&self) -> bool {
+        self.spec.is_some()
+            || self.margin_fraction.is_some()
+            || self.margin_sd.is_some()
+            || self.equivalence_distance.is_some()
+    }
+
     /// Reads the specification file and collects the margin options.
     ///
     /// # Errors
@@ -177,9 +189,17 @@ pub struct CompareArgs {
     /// Specification limits and equivalence margins.
     #[command(flatten)]
     pub spec: SpecArgs,
-    /// Significance level of the test; intervals are at 1 - alpha confidence.
-    #[arg(long, default_value_t = 0.05)]
-    pub alpha: f64,
+    /// Significance level of the test; intervals are at 1 - alpha confidence [default: 0.05].
+    #[arg(long)]
+    pub alpha: Option<f64>,
+    /// Run the comparison protocol in FILE (lots, characteristics, settings, specification
+    /// fixed in advance); an option given besides that changes it is a deviation.
+    #[arg(long, value_name = "FILE")]
+    pub protocol: Option<PathBuf>,
+    /// With --protocol: run the options given that differ from the protocol, recording each
+    /// difference as a deviation with this reason.
+    #[arg(long, value_name = "REASON", requires = "protocol")]
+    pub deviation: Option<String>,
     /// Write the comparison record as JSON to FILE, or to standard output with "-".
     #[arg(long, value_name = "FILE")]
     pub json: Option<String>,
@@ -198,12 +218,13 @@ pub struct CompareArgs {
     /// Skip the assumption checks (Box's M, Mardia, Shapiro–Wilk, outliers, unequal covariance).
     #[arg(long)]
     pub no_checks: bool,
-    /// Relabellings for the permutation p-value (0 skips it).
-    #[arg(long, default_value_t = analysis::DEFAULT_PERMUTATIONS)]
-    pub permutations: usize,
-    /// Seed of the permutation draws (the same seed gives the same p-value).
-    #[arg(long, default_value_t = analysis::DEFAULT_SEED)]
-    pub seed: u64,
+    /// Relabellings for the permutation p-value (0 skips it) [default: 9999].
+    #[arg(long)]
+    pub permutations: Option<usize>,
+    /// Seed of the permutation draws (the same seed gives the same p-value) [default:
+    /// 20261202].
+    #[arg(long)]
+    pub seed: Option<u64>,
     /// Sign the summary with this private key (PEM); needs --meaning and --out.
     #[arg(long, value_name = "KEY", requires_all = ["meaning", "out"])]
     pub sign: Option<PathBuf>,

@@ -109,6 +109,9 @@ pub enum CliError {
     /// A key, a signature or a summary file.
     #[error(transparent)]
     Sign(#[from] crate::report::sign::SignError),
+    /// A comparison protocol that cannot be used.
+    #[error(transparent)]
+    Protocol(#[from] crate::protocol::ProtocolError),
     /// Options that do not fit together, an output that cannot be written, a file that is not
     /// what the subcommand reads: the reason in words.
     #[error("{0}")]

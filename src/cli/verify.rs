@@ -90,6 +90,29 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         ),
         None => data::load_two(&files, None, None, &options),
     }?;
+    if let Some(path) = &a.protocol {
+        let Some(recorded) = &typed.protocol else {
+            return fail(format!(
+                "--protocol {} was given, but the comparison was not run under a protocol",
+                path.display()
+            ));
+        };
+        let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
+        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+        if got != recorded.sha256 {
+            return fail(format!(
+                "protocol file {} is not the protocol run: its SHA-256 is {got}, the record has {}",
+                path.display(),
+                recorded.sha256
+            ));
+        }
+        outln!("protocol     {} matches (SHA-256 {got})", path.display());
+    }
+    if let Some(p) = &typed.protocol {
+        for d in &p.deviations {
+            outln!("deviation    {} — reason: {}", d.describe(), d.reason);
+        }
+    }
     let characteristics = typed.characteristics.clone();
     let settings = Settings::from(&typed.settings);
     let recorded_spec = typed
@@ -163,8 +186,10 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
     if v1 {
         again.schema = report::SCHEMA_V1.into();
     }
-    // What was entered about the comparison is not recomputed: the signature covers it.
+    // What was entered about the comparison and the protocol it ran under are not
+    // recomputed: the signature covers them (and --protocol checks the protocol file).
     again.fields = typed.fields.clone();
+    again.protocol = typed.protocol.clone();
     let recomputed = serde_json::to_value(again).map_err(|e| CliError::from(e.to_string()))?;
     if let Some(diff) = sign::first_difference(rec, &recomputed) {
         return fail(format!("a recomputed number differs: {diff}"));

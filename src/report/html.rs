@@ -448,6 +448,42 @@ fn lots_section(h: &mut String, r: &Record) {
 /// then any other; every standard field is printed, a blank one as "(not given)", so that a
 /// missing entry shows on paper.
 fn fields_section(h: &mut String, r: &Record) {
+    match &r.protocol {
+        Some(p) => {
+            let _ = writeln!(
+                h,
+                "<p id=\"protocol\"><b>Protocol:</b> {}{} (SHA-256 <code>{}</code>). {}</p>",
+                esc(&p.file),
+                p.title
+                    .as_ref()
+                    .map(|t| format!(", “{}”", esc(t)))
+                    .unwrap_or_default(),
+                esc(&p.sha256),
+                if p.deviations.is_empty() {
+                    "Run as the protocol fixes it: no deviation."
+                } else {
+                    "Deviations from it:"
+                }
+            );
+            if !p.deviations.is_empty() {
+                h.push_str("<table id=\"deviations\"><tr><th class=\"name\">what</th><th class=\"name\">protocol</th><th class=\"name\">as run</th><th class=\"name\">reason</th></tr>");
+                for d in &p.deviations {
+                    let _ = write!(
+                        h,
+                        "<tr><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td></tr>",
+                        esc(&d.what),
+                        esc(&d.protocol),
+                        esc(&d.used),
+                        esc(&d.reason)
+                    );
+                }
+                h.push_str("</table>\n");
+            }
+        }
+        None => h.push_str(
+            "<p class=\"muted\" id=\"protocol\">No comparison protocol: the characteristics, alpha and margins were not fixed in a file before the run.</p>\n",
+        ),
+    }
     h.push_str("<table id=\"fields\">");
     let value = |name: &str| {
         r.fields

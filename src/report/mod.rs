@@ -9,8 +9,8 @@ mod text;
 
 pub use canonical::{CanonicalError, canonical_bytes};
 pub use record::{
-    CAUTION, FieldRecord, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, SCHEMA_V1,
-    STANDARD_FIELDS, Software, parse_field,
+    CAUTION, Deviation, FieldRecord, LotRecord, OutlierRecord, OutlierSection, ProtocolRecord,
+    Record, SCHEMA, SCHEMA_V1, STANDARD_FIELDS, Software, parse_field,
 };
 pub use text::{box_m_line, mardia_line, permutation_line, render_text, unequal_line};
 

@@ -296,6 +296,43 @@ pub struct Record {
     /// purpose, notes): printed in the report, covered by the signature, not recomputed.
     #[serde(default)]
     pub fields: Vec<FieldRecord>,
+    /// The protocol the comparison was run under, with every deviation and its reason (null
+    /// without a protocol).
+    #[serde(default)]
+    pub protocol: Option<ProtocolRecord>,
+}
+
+/// One way a comparison differs from its protocol.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Deviation {
+    /// What differs ("alpha", "characteristics", "specification file", …).
+    pub what: String,
+    /// As the protocol fixes it.
+    pub protocol: String,
+    /// As run.
+    pub used: String,
+    /// Why, as the person who ran it gave it.
+    pub reason: String,
+}
+
+impl Deviation {
+    /// "alpha: 0.01 (protocol: 0.05)".
+    pub fn describe(&self) -> String {
+        format!("{}: {} (protocol: {})", self.what, self.used, self.protocol)
+    }
+}
+
+/// The record's `protocol` section: which protocol, and every deviation with its reason.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ProtocolRecord {
+    /// The protocol file's name.
+    pub file: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+    /// Its title.
+    pub title: Option<String>,
+    /// How the comparison differs from it, each with the reason given.
+    pub deviations: Vec<Deviation>,
 }
 
 /// `fields[]`: one entry of the comparison's description, as entered.
@@ -477,6 +514,7 @@ impl Record {
             detectable: c.detectable.as_ref().map(Into::into),
             without_outliers: c.without_outliers.as_ref().map(Into::into),
             fields: Vec::new(),
+            protocol: None,
         }
     }
 

@@ -437,8 +437,9 @@ pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> 
 
 fn walk(path: &str, a: &Value, b: &Value, prose: bool) -> Option<String> {
     {
-        // `fields` is what was typed about the comparison, not a result: never recomputed.
-        const SKIP: [&str; 4] = ["analysed_at", "software", "file", "fields"];
+        // `fields` (what was typed about the comparison) and `protocol` (what it ran under)
+        // are not results: never recomputed.
+        const SKIP: [&str; 5] = ["analysed_at", "software", "file", "fields", "protocol"];
         match (a, b) {
             (Value::Object(x), Value::Object(y)) => {
                 for (k, va) in x {

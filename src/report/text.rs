@@ -114,6 +114,29 @@ pub fn render_text(
             );
         }
     }
+    if let Some(p) = record.and_then(|r| r.protocol.as_ref()) {
+        let _ = writeln!(
+            s,
+            "  protocol: {}{} (SHA-256 {})",
+            p.file,
+            p.title
+                .as_ref()
+                .map(|t| format!(", \"{t}\""))
+                .unwrap_or_default(),
+            p.sha256
+        );
+        if p.deviations.is_empty() {
+            let _ = writeln!(s, "  run as the protocol fixes it: no deviation");
+        }
+        for d in &p.deviations {
+            let _ = writeln!(
+                s,
+                "  DEVIATION from the protocol: {} — reason: {}",
+                d.describe(),
+                d.reason
+            );
+        }
+    }
     if let Some(fields) = record.map(|r| &r.fields).filter(|f| !f.is_empty()) {
         for f in fields {
             let _ = writeln!(s, "  {}: {}", f.name, f.value);

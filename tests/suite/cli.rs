@@ -824,3 +824,90 @@ fn fields_describe_the_comparison_in_the_record_text_and_report() {
         stderr(&o)
     );
 }
+
+#[test]
+fn a_protocol_runs_as_fixed_and_a_change_is_a_recorded_deviation() {
+    let dir = tmpdir("protocol");
+    let protocol = sample("hub-protocol.json");
+    let p = protocol.to_str().unwrap();
+    // As fixed: its lots, characteristics, settings, specification and description.
+    let json = dir.join("as-fixed.json");
+    let o = run(&["compare", "--protocol", p, "--json", json.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stdout(&o).contains("run as the protocol fixes it: no deviation"));
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let bytes = std::fs::read(&protocol).unwrap();
+    let sha = lotshift::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+    assert_eq!(rec["protocol"]["sha256"], sha.as_str());
+    assert_eq!(rec["protocol"]["deviations"].as_array().unwrap().len(), 0);
+    assert_eq!(rec["settings"]["permutations"], 999);
+    assert_eq!(rec["settings"]["seed"], 20_261_105);
+    assert!(rec["specification"]["sha256"].is_string());
+    assert_eq!(rec["fields"][1]["name"], "change request");
+    // A change without a reason is refused, naming it, and nothing is written.
+    let refused = dir.join("refused.json");
+    let o = run(&[
+        "compare",
+        "--protocol",
+        p,
+        "--alpha",
+        "0.01",
+        "--json",
+        refused.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("alpha: 0.01 (protocol: 0.05)"),
+        "{}",
+        stderr(&o)
+    );
+    assert!(!refused.exists());
+    // With a reason it runs, and each difference is recorded with it.
+    let json = dir.join("deviation.json");
+    let html = dir.join("deviation.html");
+    let o = run(&[
+        "compare",
+        "--protocol",
+        p,
+        "--alpha",
+        "0.01",
+        "--no-holdout",
+        "--deviation",
+        "customer asked for 99% confidence",
+        "--json",
+        json.to_str().unwrap(),
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stdout(&o).contains("DEVIATION from the protocol: alpha: 0.01 (protocol: 0.05)"));
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let d = rec["protocol"]["deviations"].as_array().unwrap();
+    assert_eq!(d.len(), 2, "{d:?}");
+    assert_eq!(d[0]["what"], "alpha");
+    assert_eq!(d[1]["what"], "leave one out");
+    assert_eq!(d[1]["reason"], "customer asked for 99% confidence");
+    assert_eq!(rec["alpha"], 0.01);
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(
+        page.contains("id=\"deviations\"") && page.contains("customer asked for 99% confidence")
+    );
+    // A protocol with a key lotshift does not know is refused, naming the file and the place.
+    let bad = dir.join("bad-protocol.json");
+    std::fs::write(
+        &bad,
+        std::fs::read_to_string(&protocol)
+            .unwrap()
+            .replace("\"title\"", "\"titel\""),
+    )
+    .unwrap();
+    let o = run(&["compare", "--protocol", bad.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    let e = stderr(&o);
+    assert!(
+        e.contains("bad-protocol.json: line") && e.contains("titel"),
+        "{e}"
+    );
+}

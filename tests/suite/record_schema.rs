@@ -523,6 +523,17 @@ fn full_record() -> Record {
         "z_kurtosis": 1.0, "k2": 2.0, "k2_p": 0.37}"#;
     record.normality[0].large[1] = Some(serde_json::from_str(json).unwrap());
     record.fields = vec![lotshift::report::parse_field("part=HX40 hub").unwrap()];
+    record.protocol = Some(lotshift::report::ProtocolRecord {
+        file: "protocol.json".into(),
+        sha256: "0".repeat(64),
+        title: Some("a protocol".into()),
+        deviations: vec![lotshift::report::Deviation {
+            what: "alpha".into(),
+            protocol: "0.05".into(),
+            used: "0.01".into(),
+            reason: "asked for".into(),
+        }],
+    });
     record
 }
 
@@ -762,6 +773,15 @@ const KEYS: &[&str] = &[
     "fields",
     "fields[].name",
     "fields[].value",
+    "protocol",
+    "protocol.file",
+    "protocol.sha256",
+    "protocol.title",
+    "protocol.deviations",
+    "protocol.deviations[].what",
+    "protocol.deviations[].protocol",
+    "protocol.deviations[].used",
+    "protocol.deviations[].reason",
 ];
 
 #[test]
