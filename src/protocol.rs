@@ -299,7 +299,7 @@ fn rule_words(r: MarginRule) -> String {
 }
 
 /// How a comparison about to run differs from its protocol: the characteristics compared (by
-/// their match keys, in order), each setting, the specification file (by SHA-256), the margin
+/// their match keys, in any order), each setting, the specification file (by SHA-256), the margin
 /// rule and the distance margin, and the lot column and values of a file holding both lots.
 /// Empty when it is run as fixed.
 pub fn differences(
@@ -310,7 +310,12 @@ pub fn differences(
     lot_column: Option<(&str, [&str; 2])>,
 ) -> Vec<(String, String, String)> {
     let mut out = Vec::new();
-    let keys = |v: &[String]| v.iter().map(|s| match_key(s)).collect::<Vec<_>>();
+    // The set compared matters, not the order it is listed in.
+    let keys = |v: &[String]| {
+        v.iter()
+            .map(|s| match_key(s))
+            .collect::<std::collections::BTreeSet<_>>()
+    };
     if keys(&p.file.characteristics) != keys(compared) {
         out.push((
             "characteristics".to_string(),

@@ -61,6 +61,9 @@ pub struct Cli {
     /// Specification file (limits and margins) to open in the window's Specification tab.
     #[arg(long, value_name = "FILE")]
     pub spec: Option<PathBuf>,
+    /// Comparison protocol to run under in the window (its lots, unless lot files are given).
+    #[arg(long, value_name = "FILE")]
+    pub protocol: Option<PathBuf>,
     /// Lot files to open in the window (two files; default: the bundled sample lots).
     #[arg(value_name = "FILE")]
     pub files: Vec<PathBuf>,

@@ -21,6 +21,7 @@ use super::action::Action;
 use super::characteristics::{self, TableState};
 use super::lots::{self, ColumnPair, Lots};
 use super::pairs::{self, PairsState};
+use super::protocol_panel::{self, ProtocolState};
 use super::screenshot::{ScreenshotOutcome, ScreenshotPlan};
 use super::signing::{self, Note, SignForm};
 use super::spec_editor::{SpecEditor, fits};
@@ -46,6 +47,8 @@ pub struct LotshiftApp {
     screenshot: Option<ScreenshotPlan>,
     /// The signing form, while open.
     pub signing: Option<SignForm>,
+    /// The comparison protocol the window runs under, when one is loaded.
+    pub protocol: Option<ProtocolState>,
     /// What the comparison is about ([`crate::report::STANDARD_FIELDS`], in that order), as
     /// typed: copied into the record that is exported and signed.
     pub fields: [String; 6],
@@ -80,6 +83,7 @@ impl LotshiftApp {
             notice: None,
             screenshot: None,
             signing: None,
+            protocol: None,
             fields: Default::default(),
             spec: SpecRequest::default(),
             spec_editor: SpecEditor::default(),
@@ -163,6 +167,24 @@ impl LotshiftApp {
             Action::ShowPairGrid(on) => self.pairs.grid = on,
             Action::DifferenceShadow(on) => self.pairs.difference_shadow = on,
             Action::PickSpec => self.worker.choose(Purpose::Specification),
+            Action::PickProtocol => self.worker.choose(Purpose::Protocol),
+            Action::LoadProtocol(path) => self.load_protocol(&path),
+            Action::AcceptDeviations(reason) => {
+                if let Some(ps) = &mut self.protocol {
+                    ps.accept(&reason);
+                    ps.reason.clear();
+                }
+                self.rerun();
+            }
+            Action::CloseProtocol => {
+                self.protocol = None;
+                self.notice = Some(
+                    "Protocol closed: the settings stay as they are; runs are no longer checked \
+                     against it."
+                        .into(),
+                );
+                self.rerun();
+            }
             Action::SaveSpec(to) => self.save_spec_to(to),
             Action::ApplySpec => self.apply_spec(),
             Action::Export => self.export(),
@@ -312,6 +334,43 @@ impl LotshiftApp {
                 return;
             }
         };
+        if let Some(ps) = &mut self.protocol {
+            let compared: Vec<String> = self
+                .lots
+                .characteristic_list(true)
+                .into_iter()
+                .map(|(n, _)| n)
+                .collect();
+            let column = self.lots.combined.as_ref().map(|c| {
+                (
+                    c.column.as_str(),
+                    [c.values[0].as_str(), c.values[1].as_str()],
+                )
+            });
+            let found = crate::protocol::differences(
+                &ps.protocol,
+                &compared,
+                &self.saved.settings,
+                &spec,
+                column,
+            );
+            match ps.settle(found) {
+                Some(deviations) => ps.running = deviations,
+                None => {
+                    let list: Vec<String> = ps
+                        .pending
+                        .iter()
+                        .map(|(what, want, got)| format!("{what}: {got} (protocol: {want})"))
+                        .collect();
+                    self.result.hold(format!(
+                        "this comparison differs from the protocol ({}): give the reason above \
+                         to record it as a deviation, or change it back",
+                        list.join("; ")
+                    ));
+                    return;
+                }
+            }
+        }
         self.result.start();
         self.spec = spec.clone();
         let request = Request {
@@ -403,7 +462,11 @@ impl LotshiftApp {
             Ok(mut lots) if slot == Slot::Combined => {
                 if let Some(table) = lots.pop() {
                     match self.lots.set_combined(table) {
-                        Ok(()) => self.rerun(),
+                        Ok(()) => {
+                            self.protocol_split();
+                            self.protocol_ticks();
+                            self.rerun();
+                        }
                         Err(e) => self.messages.push(e),
                     }
                 }
@@ -413,6 +476,7 @@ impl LotshiftApp {
                 if slot == Slot::Both && std::mem::take(&mut self.order_given) {
                     self.lots.roles_to_confirm = false;
                 }
+                self.protocol_ticks();
                 self.rerun();
             }
         }
@@ -430,6 +494,7 @@ impl LotshiftApp {
             },
             Purpose::Summary => self.check_summary(&path),
             Purpose::Specification => self.load_spec_path(path),
+            Purpose::Protocol => self.load_protocol(&path),
         }
     }
 
@@ -585,15 +650,136 @@ impl LotshiftApp {
                 value: v.trim().to_string(),
             })
             .collect();
+        let protocol = self
+            .protocol
+            .as_ref()
+            .map(|ps| crate::protocol::record_section(&ps.protocol, ps.running.clone()));
         if let Some(s) = self.result.shown_mut() {
             s.record.fields = fields;
+            s.record.protocol = protocol;
         }
+    }
+
+    /// Runs under the protocol in `path`: its settings, description and specification, then
+    /// its lots (their characteristics ticked as it fixes them once they are read). A
+    /// protocol that cannot be used changes nothing.
+    pub fn load_protocol(&mut self, path: &Path) {
+        self.protocol_from(path, true);
+    }
+
+    /// As [`Self::load_protocol`], with the lots given on the command line instead of the
+    /// protocol's (as `compare --protocol P FILES` does).
+    pub fn load_protocol_keeping_lots(&mut self, path: &Path) {
+        self.protocol_from(path, false);
+    }
+
+    fn protocol_from(&mut self, path: &Path, its_lots: bool) {
+        let p = match crate::protocol::load(path) {
+            Ok(p) => p,
+            Err(e) => {
+                self.messages.push(format!(
+                    "{e} — the protocol was not loaded; nothing changed"
+                ));
+                return;
+            }
+        };
+        self.saved.settings = p.settings.clone();
+        for (value, name) in self.fields.iter_mut().zip(crate::report::STANDARD_FIELDS) {
+            *value = p
+                .file
+                .fields
+                .iter()
+                .find(|f| f.name.eq_ignore_ascii_case(name))
+                .map(|f| f.value.clone())
+                .unwrap_or_default();
+        }
+        use super::spec_editor::RuleChoice;
+        let e = &mut self.spec_editor;
+        e.clear();
+        match p.spec.rule {
+            crate::analysis::decision::MarginRule::FileOnly => e.rule = RuleChoice::FileOnly,
+            crate::analysis::decision::MarginRule::ToleranceFraction(f) => {
+                e.rule = RuleChoice::ToleranceFraction;
+                e.fraction = f.to_string();
+            }
+            crate::analysis::decision::MarginRule::ReferenceSd(k) => {
+                e.rule = RuleChoice::ReferenceSd;
+                e.sd = k.to_string();
+            }
+        }
+        e.distance = p
+            .spec
+            .distance_margin
+            .map(|d| d.to_string())
+            .unwrap_or_default();
+        self.pending_spec = p.spec.file.clone();
+        let files = p.lot_files.clone();
+        let combined = p.file.lots.lot_column.is_some();
+        self.notice = Some(format!(
+            "Running under the protocol {} (SHA-256 {}…): its lots, characteristics, settings \
+             and specification. A change is recorded as a deviation with its reason.",
+            path.display(),
+            &p.sha256[..12]
+        ));
+        self.protocol = Some(ProtocolState::new(p));
+        if !its_lots {
+            return;
+        }
+        if combined {
+            self.order_given = true;
+            self.load_paths(Slot::Combined, files);
+        } else {
+            self.load_in_order(files);
+        }
+    }
+
+    /// A file holding both lots, read for a protocol: split by the protocol's lot column and
+    /// values.
+    fn protocol_split(&mut self) {
+        let Some(ps) = &self.protocol else { return };
+        let l = &ps.protocol.file.lots;
+        if let (Some(column), Some(values)) = (&l.lot_column, &l.values)
+            && ps.ticks_pending
+            && self.lots.choose_split(column.clone(), values.clone())
+            && let Err(e) = self.lots.resplit()
+        {
+            self.messages.push(e);
+        }
+    }
+
+    /// Once the protocol's lots are in: tick exactly the characteristics it compares.
+    fn protocol_ticks(&mut self) {
+        let Some(ps) = &mut self.protocol else { return };
+        if !ps.ticks_pending {
+            return;
+        }
+        let all = self.lots.characteristic_list(false);
+        if all.is_empty() {
+            return;
+        }
+        let want: Vec<String> = ps
+            .protocol
+            .file
+            .characteristics
+            .iter()
+            .map(|c| crate::data::match_key(c))
+            .collect();
+        for (name, _) in all {
+            let key = crate::data::match_key(&name);
+            let on = want.contains(&key);
+            self.lots.set_compared(key, on);
+        }
+        ps.ticks_pending = false;
     }
 
     fn central_ui(&mut self, ui: &mut egui::Ui) {
         let mut actions = Vec::new();
         toolbar::messages_ui(ui, &self.messages, self.notice.as_deref(), &mut actions);
         self.apply_all(std::mem::take(&mut actions));
+        if let Some(ps) = &mut self.protocol {
+            protocol_panel::protocol_ui(ui, ps, &mut actions);
+            self.apply_all(std::mem::take(&mut actions));
+        }
         let busy = self.worker.busy();
         toolbar::tabs_ui(ui, self.saved.view, &self.result, busy, &mut actions);
         self.apply_all(std::mem::take(&mut actions));

@@ -118,6 +118,10 @@ impl Worker {
                     )
                     .add_filter("All files", &["*"])
                     .pick_file(),
+                Purpose::Protocol => rfd::FileDialog::new()
+                    .set_title("Open a comparison protocol")
+                    .add_filter("JSON", &["json"])
+                    .pick_file(),
             };
             out.send(Outcome::Chosen { purpose, path }, Ends::Nothing);
         });

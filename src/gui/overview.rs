@@ -140,19 +140,21 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                 if let Some(d) = &c.detectable {
                     ui.label(format!("shift detected with {:.0}% power", 100.0 * d.power));
                     ui.label(format!(
-                        "Mahalanobis distance {} (along the observed direction: {})",
-                        format_sig(d.distance, 3),
+                        "Mahalanobis distance {} (hover: along the observed direction, per \
+                         characteristic)",
+                        format_sig(d.distance, 3)
+                    ))
+                    .on_hover_text(format!(
+                        "The shift these lot sizes detect 8 times in 10 at this alpha; read \
+                         \"no difference detected\" against it. Along the observed direction: \
+                         {}",
                         c.characteristics
                             .iter()
                             .zip(&d.per_characteristic_sd)
                             .map(|(n, v)| format!("{n} {} SD", format_sig(*v, 2)))
                             .collect::<Vec<_>>()
                             .join(", ")
-                    ))
-                    .on_hover_text(
-                        "The shift these lot sizes detect 8 times in 10 at this alpha; read \
-                         \"no difference detected\" against it.",
-                    );
+                    ));
                     ui.end_row();
                 }
             });

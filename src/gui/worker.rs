@@ -42,6 +42,8 @@ pub enum Purpose {
     Summary,
     /// Choose a specification file (limits and margins) to load.
     Specification,
+    /// Choose a comparison protocol to run under.
+    Protocol,
 }
 
 /// What a file to load is.

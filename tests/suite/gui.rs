@@ -1145,3 +1145,56 @@ fn the_description_typed_in_the_window_goes_into_the_record_and_survives_a_rerun
     settle(&mut h);
     assert_eq!(fields(&h), f);
 }
+
+#[test]
+fn a_protocol_fixes_the_window_and_a_change_waits_for_its_reason() {
+    use lotshift::gui::action::Action;
+    let mut app = LotshiftApp::new(None, Saved::default());
+    app.load_protocol(&common::sample("hub-protocol.json"));
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    // Its lots, settings and specification are in; the run is as fixed.
+    h.get_by_label_contains("Protocol:");
+    h.get_by_label("— run as fixed");
+    {
+        let s = h.state().result.shown().expect("a result");
+        assert_eq!(s.comparison.settings.permutations, 999);
+        assert_eq!(s.comparison.settings.seed, 20_261_105);
+        assert!(
+            s.comparison.decision.is_some(),
+            "the protocol's specification is applied"
+        );
+        let p = s
+            .record
+            .protocol
+            .as_ref()
+            .expect("the record names the protocol");
+        assert!(p.deviations.is_empty());
+        assert_eq!(s.record.fields[0].name, "part");
+    }
+    // A change of a setting holds the run until a reason is given.
+    let mut settings = h.state().saved.settings.clone();
+    settings.alpha = 0.01;
+    h.state_mut().apply(Action::Settings(Box::new(settings)));
+    h.state_mut().apply(Action::Rerun);
+    settle(&mut h);
+    assert!(h.state().result.is_held());
+    h.get_by_label("This comparison differs from the protocol:");
+    h.get_by_label("  alpha: 0.01 (protocol: 0.05)");
+    h.state_mut().apply(Action::AcceptDeviations(
+        "customer asked for 99% confidence".into(),
+    ));
+    settle(&mut h);
+    let s = h.state().result.shown().unwrap();
+    assert!(h.state().result.is_current());
+    assert_eq!(s.comparison.alpha(), 0.01);
+    let d = &s.record.protocol.as_ref().unwrap().deviations;
+    assert_eq!(d.len(), 1);
+    assert_eq!(
+        (d[0].what.as_str(), d[0].used.as_str(), d[0].reason.as_str()),
+        ("alpha", "0.01", "customer asked for 99% confidence")
+    );
+    h.get_by_label("— 1 deviation recorded");
+}
