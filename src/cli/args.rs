@@ -37,6 +37,9 @@ pub struct VerifyArgs {
     /// The comparison protocol the comparison was run under: checks its SHA-256.
     #[arg(long, value_name = "FILE")]
     pub protocol: Option<PathBuf>,
+    /// The window's audit trail: checks its chain and that the record's runs are in it.
+    #[arg(long, value_name = "FILE")]
+    pub trail: Option<PathBuf>,
 }
 
 /// Arguments of `report`.

@@ -34,6 +34,60 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
             "signer key   not checked against an expected key (give --key PUB to check who signed)"
         );
     }
+    if let Some(path) = &a.trail {
+        let chain = match crate::report::trail::read_chain(path) {
+            Ok(c) => c,
+            Err(e) => return fail(format!("the audit trail does not hold: {e}")),
+        };
+        let runs = summary
+            .record
+            .get("audit_trail")
+            .filter(|v| !v.is_null())
+            .map(|v| serde_json::from_value::<report::AuditRecord>(v.clone()));
+        let audit = match runs {
+            None => {
+                return fail(format!(
+                    "--trail {} was given, but the record holds no audit trail (it was not made \
+                     in the window)",
+                    path.display()
+                ));
+            }
+            Some(Err(e)) => return fail(format!("the record's audit_trail cannot be read: {e}")),
+            Some(Ok(a)) => a,
+        };
+        for r in &audit.runs {
+            match chain.iter().find(|e| e.seq == r.seq) {
+                Some(e) if e.hash == r.hash && e.headline == r.headline && e.at == r.at => {}
+                Some(_) => {
+                    return fail(format!(
+                        "the record's run {} is not the trail's entry {} (it was changed in one \
+                         of them)",
+                        r.seq, r.seq
+                    ));
+                }
+                None => {
+                    return fail(format!(
+                        "the record's run {} is not in the audit trail {}",
+                        r.seq,
+                        path.display()
+                    ));
+                }
+            }
+        }
+        if !chain.iter().any(|e| e.hash == audit.final_hash) {
+            return fail(format!(
+                "the record's last run ({}) is not in the audit trail {}",
+                audit.final_hash,
+                path.display()
+            ));
+        }
+        outln!(
+            "audit trail  {}: {} entries, chain intact; the record's {} runs on these lots are in it",
+            path.display(),
+            chain.len(),
+            audit.runs.len()
+        );
+    }
     if a.files.is_empty() {
         outln!("lot files    not checked (give --files to check them and recompute every number)");
         outln!("VERIFIED (signature only)");
@@ -190,6 +244,7 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
     // recomputed: the signature covers them (and --protocol checks the protocol file).
     again.fields = typed.fields.clone();
     again.protocol = typed.protocol.clone();
+    again.audit_trail = typed.audit_trail.clone();
     let recomputed = serde_json::to_value(again).map_err(|e| CliError::from(e.to_string()))?;
     if let Some(diff) = sign::first_difference(rec, &recomputed) {
         return fail(format!("a recomputed number differs: {diff}"));

@@ -49,6 +49,11 @@ pub struct LotshiftApp {
     pub signing: Option<SignForm>,
     /// The comparison protocol the window runs under, when one is loaded.
     pub protocol: Option<ProtocolState>,
+    /// The audit trail every finished run is appended to (none: runs are not logged, as in
+    /// the tests that do not ask for it).
+    pub trail: Option<crate::report::trail::Trail>,
+    /// The entries this session appended, in order.
+    pub trail_log: Vec<crate::report::trail::TrailEntry>,
     /// What the comparison is about ([`crate::report::STANDARD_FIELDS`], in that order), as
     /// typed: copied into the record that is exported and signed.
     pub fields: [String; 6],
@@ -84,6 +89,8 @@ impl LotshiftApp {
             screenshot: None,
             signing: None,
             protocol: None,
+            trail: None,
+            trail_log: Vec::new(),
             fields: Default::default(),
             spec: SpecRequest::default(),
             spec_editor: SpecEditor::default(),
@@ -419,8 +426,12 @@ impl LotshiftApp {
                 // A run held for a specification problem stays held: a result still
                 // arriving is not current, and the problem stays the message. A failed run
                 // keeps the previous result on screen, marked as not current.
-                Outcome::Compared { result, .. } => {
+                Outcome::Compared { result, last, .. } => {
+                    let finished = last && result.is_ok();
                     self.result.arrive(result);
+                    if finished {
+                        self.log_run();
+                    }
                     self.sync_fields();
                 }
                 Outcome::SpecLoaded(Err(e)) => self.messages.push(format!(
@@ -639,6 +650,40 @@ impl LotshiftApp {
         }
     }
 
+    /// Appends the result on screen to the audit trail (a trail that cannot be written or
+    /// whose chain is broken is reported, and the run is not in it).
+    fn log_run(&mut self) {
+        let (Some(trail), Some(s)) = (&mut self.trail, self.result.shown()) else {
+            return;
+        };
+        let c = &s.comparison;
+        let h = &c.hotelling;
+        let headline = format!(
+            "{} (alpha {}): T² = {}, {}",
+            if h.differ {
+                "the lots differ"
+            } else {
+                "no difference detected"
+            },
+            c.alpha(),
+            crate::format::format_sig(h.t2, 6),
+            crate::format::p_text(h.p_value)
+        );
+        let lots = [0, 1].map(|g| s.lots[g].provenance.sha256.clone());
+        match trail.append(
+            crate::report::sign::now_rfc3339(),
+            lots,
+            c.characteristics.clone(),
+            serde_json::to_value(&s.record.settings).unwrap_or_default(),
+            headline,
+        ) {
+            Ok(e) => self.trail_log.push(e),
+            Err(e) => self
+                .messages
+                .push(format!("audit trail: {e} — this run is not in the trail")),
+        }
+    }
+
     /// Puts the typed description into the record on screen (the one exported and signed).
     pub fn sync_fields(&mut self) {
         let fields: Vec<crate::report::FieldRecord> = crate::report::STANDARD_FIELDS
@@ -654,9 +699,32 @@ impl LotshiftApp {
             .protocol
             .as_ref()
             .map(|ps| crate::protocol::record_section(&ps.protocol, ps.running.clone()));
+        let trail_file = self.trail.as_ref().map(|t| t.path.display().to_string());
+        let log = &self.trail_log;
         if let Some(s) = self.result.shown_mut() {
             s.record.fields = fields;
             s.record.protocol = protocol;
+            // The runs on these lot files this session, up to the one on screen.
+            let lots = [0, 1].map(|g| s.lots[g].provenance.sha256.clone());
+            s.record.audit_trail = match (trail_file, log.last()) {
+                (Some(file), Some(last)) if last.lots == lots => Some(crate::report::AuditRecord {
+                    file,
+                    final_hash: last.hash.clone(),
+                    runs: log
+                        .iter()
+                        .filter(|e| e.lots == lots)
+                        .map(|e| crate::report::AuditRun {
+                            seq: e.seq,
+                            at: e.at.clone(),
+                            characteristics: e.characteristics.clone(),
+                            settings: e.settings.clone(),
+                            headline: e.headline.clone(),
+                            hash: e.hash.clone(),
+                        })
+                        .collect(),
+                }),
+                _ => None,
+            };
         }
     }
 

@@ -96,6 +96,10 @@ pub fn run_with_spec(
                     .unwrap_or_default()
             };
             let mut app = LotshiftApp::new(Some(cc.egui_ctx.clone()), saved);
+            if !taking_screenshot {
+                app.trail = crate::report::trail::Trail::default_path()
+                    .map(crate::report::trail::Trail::at);
+            }
             if let Some(v) = start_view {
                 app.saved.view = v;
             }

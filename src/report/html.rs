@@ -126,6 +126,7 @@ pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> Strin
     h.push_str(&pair_chart(r));
     checks_section(&mut h, r);
     settings_section(&mut h, r);
+    trail_section(&mut h, r);
     let _ = writeln!(h, "<p class=\"caution\">{}</p>", esc(CAUTION));
     match signature {
         Some(s) => {
@@ -514,6 +515,38 @@ fn fields_section(h: &mut String, r: &Record) {
                 esc(&f.value)
             );
         }
+    }
+    h.push_str("</table>\n");
+}
+
+/// The runs the audit trail holds on these lots, the last one this record's; a record made on
+/// the command line says it has none.
+fn trail_section(h: &mut String, r: &Record) {
+    let Some(a) = &r.audit_trail else {
+        h.push_str("<p class=\"muted\" id=\"audit-trail\">No audit trail: the comparison was not made in the window.</p>\n");
+        return;
+    };
+    let _ = writeln!(
+        h,
+        "<h2>Runs on these lots (audit trail)</h2><div class=\"muted\">{} runs in {}, the last one this record's (entry hash <code>{}</code>); <code>lotshift verify SUMMARY --trail FILE</code> checks them against the trail.</div><table id=\"audit-trail\"><tr><th>run</th><th class=\"name\">time (UTC)</th><th class=\"name\">characteristics</th><th>alpha</th><th class=\"name\">result</th></tr>",
+        a.runs.len(),
+        esc(&a.file),
+        esc(&a.final_hash)
+    );
+    for run in &a.runs {
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td>{}</td><td class=\"name\">{}</td></tr>",
+            run.seq,
+            esc(&run.at),
+            esc(&run.characteristics.join(", ")),
+            esc(&run
+                .settings
+                .get("alpha")
+                .map(ToString::to_string)
+                .unwrap_or_default()),
+            esc(&run.headline)
+        );
     }
     h.push_str("</table>\n");
 }

@@ -6,11 +6,13 @@ mod record;
 pub mod sections;
 pub mod sign;
 mod text;
+pub mod trail;
 
 pub use canonical::{CanonicalError, canonical_bytes};
 pub use record::{
-    CAUTION, Deviation, FieldRecord, LotRecord, OutlierRecord, OutlierSection, ProtocolRecord,
-    Record, SCHEMA, SCHEMA_V1, STANDARD_FIELDS, Software, parse_field,
+    AuditRecord, AuditRun, CAUTION, Deviation, FieldRecord, LotRecord, OutlierRecord,
+    OutlierSection, ProtocolRecord, Record, SCHEMA, SCHEMA_V1, STANDARD_FIELDS, Software,
+    parse_field,
 };
 pub use text::{box_m_line, mardia_line, permutation_line, render_text, unequal_line};
 

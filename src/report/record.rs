@@ -300,6 +300,38 @@ pub struct Record {
     /// without a protocol).
     #[serde(default)]
     pub protocol: Option<ProtocolRecord>,
+    /// The window's audit trail: the runs made on these lot files up to this one, and the
+    /// hash of this one's entry (null for a record made on the command line).
+    #[serde(default)]
+    pub audit_trail: Option<AuditRecord>,
+}
+
+/// `audit_trail`: what the audit trail holds of this comparison.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AuditRecord {
+    /// The trail file.
+    pub file: String,
+    /// Hash of the entry of the run this record is of.
+    pub final_hash: String,
+    /// The runs on these lot files, in order, the last one this record's.
+    pub runs: Vec<AuditRun>,
+}
+
+/// `audit_trail.runs[]`: one run as the trail holds it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AuditRun {
+    /// Position in the trail.
+    pub seq: u64,
+    /// When (RFC 3339, UTC).
+    pub at: String,
+    /// The characteristics compared.
+    pub characteristics: Vec<String>,
+    /// The settings.
+    pub settings: serde_json::Value,
+    /// The result in a line.
+    pub headline: String,
+    /// The entry's hash.
+    pub hash: String,
 }
 
 /// One way a comparison differs from its protocol.
@@ -515,6 +547,7 @@ impl Record {
             without_outliers: c.without_outliers.as_ref().map(Into::into),
             fields: Vec::new(),
             protocol: None,
+            audit_trail: None,
         }
     }
 

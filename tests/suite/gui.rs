@@ -1198,3 +1198,83 @@ fn a_protocol_fixes_the_window_and_a_change_waits_for_its_reason() {
     );
     h.get_by_label("— 1 deviation recorded");
 }
+
+#[test]
+fn every_run_in_the_window_goes_into_the_audit_trail_and_verify_checks_it() {
+    use lotshift::gui::action::Action;
+    use lotshift::report::sign::{self, Meaning};
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-trail-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let trail = dir.join("audit-trail.jsonl");
+    let mut app = LotshiftApp::new(None, Saved::default());
+    app.trail = Some(lotshift::report::trail::Trail::at(trail.clone()));
+    app.load_samples();
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    // A second run with one characteristic unticked: both are in the trail and the record.
+    h.state_mut().apply(Action::SetCompared {
+        key: lotshift::data::match_key("mass"),
+        compared: false,
+    });
+    h.state_mut().apply(Action::Rerun);
+    settle(&mut h);
+    let chain = lotshift::report::trail::read_chain(&trail).unwrap();
+    assert_eq!(chain.len(), 2);
+    assert!(!chain[1].characteristics.iter().any(|c| c == "mass"));
+    let record = h.state().result.shown().unwrap().record.clone();
+    let audit = record
+        .audit_trail
+        .clone()
+        .expect("the record lists the runs");
+    assert_eq!(audit.runs.len(), 2);
+    assert_eq!(audit.final_hash, chain[1].hash);
+    assert!(
+        audit.runs[0].headline.contains("T² ="),
+        "{}",
+        audit.runs[0].headline
+    );
+    // Signed, the summary verifies against the trail; an edited trail does not.
+    let key = ed25519_key();
+    let summary = sign::sign(
+        &record,
+        &key,
+        "Dana Whitfield",
+        Meaning::Authorship,
+        "2026-12-02T10:00:00Z",
+    )
+    .unwrap();
+    let path = dir.join("summary.json");
+    std::fs::write(&path, summary.to_json()).unwrap();
+    let verify = |trail: &std::path::Path| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_lotshift"))
+            .args([
+                "verify",
+                path.to_str().unwrap(),
+                "--trail",
+                trail.to_str().unwrap(),
+            ])
+            .output()
+            .unwrap()
+    };
+    let o = verify(&trail);
+    let out = String::from_utf8_lossy(&o.stdout).into_owned();
+    assert!(out.contains("2 entries, chain intact"), "{out}");
+    let edited = dir.join("edited.jsonl");
+    let text = std::fs::read_to_string(&trail).unwrap();
+    std::fs::write(
+        &edited,
+        text.replacen("the lots differ", "no difference detected", 1),
+    )
+    .unwrap();
+    let o = verify(&edited);
+    let out = String::from_utf8_lossy(&o.stdout).into_owned();
+    assert_eq!(o.status.code(), Some(1), "{out}");
+    assert!(
+        out.contains("NOT VERIFIED") && out.contains("line 1") && out.contains("edited"),
+        "{out}"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}

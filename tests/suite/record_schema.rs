@@ -534,6 +534,18 @@ fn full_record() -> Record {
             reason: "asked for".into(),
         }],
     });
+    record.audit_trail = Some(lotshift::report::AuditRecord {
+        file: "audit-trail.jsonl".into(),
+        final_hash: "1".repeat(64),
+        runs: vec![lotshift::report::AuditRun {
+            seq: 1,
+            at: "2026-12-02T10:00:00Z".into(),
+            characteristics: vec!["hub length".into()],
+            settings: serde_json::json!({"alpha": 0.05}),
+            headline: "the lots differ".into(),
+            hash: "1".repeat(64),
+        }],
+    });
     record
 }
 
@@ -782,6 +794,17 @@ const KEYS: &[&str] = &[
     "protocol.deviations[].protocol",
     "protocol.deviations[].used",
     "protocol.deviations[].reason",
+    "audit_trail",
+    "audit_trail.file",
+    "audit_trail.final_hash",
+    "audit_trail.runs",
+    "audit_trail.runs[].seq",
+    "audit_trail.runs[].at",
+    "audit_trail.runs[].characteristics",
+    "audit_trail.runs[].settings",
+    "audit_trail.runs[].settings.alpha",
+    "audit_trail.runs[].headline",
+    "audit_trail.runs[].hash",
 ];
 
 #[test]
