@@ -336,7 +336,7 @@ fn unit_checks(
         .map(|k| NormalityRow {
             characteristic: out.characteristics[k].clone(),
             lots: [lots[0].shapiro[k], lots[1].shapiro[k]],
-            large: [lots[0].large[k].clone(), lots[1].large[k].clone()],
+            large: [lots[0].large[k], lots[1].large[k]],
         })
         .collect();
     let mut cutoff = [f64::NAN; 2];
