@@ -470,6 +470,19 @@ pub struct Detectable {
     pub per_characteristic_sd: Vec<f64>,
 }
 
+impl Detectable {
+    /// The detectable shift along the observed direction, per characteristic, in words:
+    /// "hub length 0.30 SD, mass −0.41 SD".
+    pub fn along_words(&self, characteristics: &[String]) -> String {
+        characteristics
+            .iter()
+            .zip(&self.per_characteristic_sd)
+            .map(|(n, v)| format!("{n} {} SD", crate::format::format_sig(*v, 2)))
+            .collect::<Vec<_>>()
+            .join(", ")
+    }
+}
+
 /// Mahalanobis distance the level-`alpha` T² test detects with power `target` (bisection on
 /// the noncentral F power, which grows with the distance).
 pub fn detectable_distance(p: usize, n1: usize, n2: usize, alpha: f64, target: f64) -> Option<f64> {

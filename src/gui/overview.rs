@@ -148,12 +148,7 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                         "The shift these lot sizes detect 8 times in 10 at this alpha; read \
                          \"no difference detected\" against it. Along the observed direction: \
                          {}",
-                        c.characteristics
-                            .iter()
-                            .zip(&d.per_characteristic_sd)
-                            .map(|(n, v)| format!("{n} {} SD", format_sig(*v, 2)))
-                            .collect::<Vec<_>>()
-                            .join(", ")
+                        d.along_words(&c.characteristics)
                     ));
                     ui.end_row();
                 }

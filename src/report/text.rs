@@ -167,12 +167,7 @@ pub fn render_text(
              these lot sizes (along the observed direction: {})",
             format_sig(d.distance, 3),
             d.power,
-            c.characteristics
-                .iter()
-                .zip(&d.per_characteristic_sd)
-                .map(|(n, v)| format!("{n} {} SD", format_sig(*v, 2)))
-                .collect::<Vec<_>>()
-                .join(", ")
+            d.along_words(&c.characteristics)
         );
     }
 
