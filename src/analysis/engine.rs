@@ -272,6 +272,8 @@ fn permute_centred(
         d,
         settings.permutations,
         settings.seed,
+        settings.sequential.as_ref(),
+        settings.alpha,
         &keep_going,
     );
     if progress.cancelled() {
@@ -279,6 +281,7 @@ fn permute_centred(
     }
     out.settings.permutations = settings.permutations;
     out.settings.seed = settings.seed;
+    out.settings.sequential = settings.sequential;
     Ok(())
 }
 

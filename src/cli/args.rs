@@ -199,6 +199,18 @@ pub struct CompareArgs {
     /// Seed of the permutation draws (the same seed gives the same p-value).
     #[arg(long, default_value_t = analysis::DEFAULT_SEED)]
     pub seed: u64,
+    /// Draw every relabelling asked for (turns sequential stopping off).
+    #[arg(long, conflicts_with_all = ["stop_hits", "decision_risk"])]
+    pub draw_all: bool,
+    /// Stop the relabellings at the N-th whose T² reaches the observed one, p = N/draws
+    /// (Besag & Clifford 1991; 0 turns this rule off).
+    #[arg(long, value_name = "N", default_value_t = analysis::DEFAULT_HITS)]
+    pub stop_hits: usize,
+    /// Stop the relabellings once the decision at alpha is settled, with at most this chance
+    /// that all possible relabellings would decide otherwise (Gandy 2009; 0 turns this rule
+    /// off).
+    #[arg(long, value_name = "RISK", default_value_t = analysis::DEFAULT_RISK)]
+    pub decision_risk: f64,
     /// Sign the summary with this private key (PEM); needs --meaning and --out.
     #[arg(long, value_name = "KEY", requires_all = ["meaning", "out"])]
     pub sign: Option<PathBuf>,
@@ -263,4 +275,26 @@ pub(crate) struct StatsFile {
     #[serde(default)]
     pub(crate) alpha: Option<f64>,
     pub(crate) lots: Vec<SummaryLot>,
+}
+
+impl CompareArgs {
+    /// Sequential stopping as the options ask (`None` with `--draw-all`).
+    ///
+    /// # Errors
+    /// A risk outside 0 to 1.
+    pub fn sequential(&self) -> Result<Option<analysis::Sequential>, CliError> {
+        if self.draw_all {
+            return Ok(None);
+        }
+        if !(0.0..1.0).contains(&self.decision_risk) {
+            return Err(CliError::from(format!(
+                "--decision-risk must be at least 0 and below 1 (got {})",
+                self.decision_risk
+            )));
+        }
+        Ok(Some(analysis::Sequential {
+            hits: self.stop_hits,
+            risk: self.decision_risk,
+        }))
+    }
 }

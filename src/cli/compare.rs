@@ -22,6 +22,7 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
             checks: !a.no_checks,
             permutations: a.permutations,
             seed: a.seed,
+            sequential: a.sequential()?,
         },
         spec,
         strict_columns: a.lots.strict_columns,
@@ -117,6 +118,7 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
         checks: true,
         permutations: 0,
         seed: analysis::DEFAULT_SEED,
+        sequential: None,
     };
     let mut c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
         .map_err(|e| format!("{}: {e}", a.file.display()))?;
