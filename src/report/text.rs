@@ -501,11 +501,9 @@ pub fn permutation_line(p: &PermutationResult) -> String {
     use crate::stats::permutation::StoppedBy;
     let drawn = p.draws();
     let value = match (p.stopped_by, p.p_interval) {
-        (StoppedBy::LowerBoundary | StoppedBy::UpperBoundary, Some([lo, hi])) => format!(
-            "between {} and {}",
-            format_p(lo),
-            format_p(hi)
-        ),
+        (StoppedBy::LowerBoundary | StoppedBy::UpperBoundary, Some([lo, hi])) => {
+            format!("between {} and {}", format_p(lo), format_p(hi))
+        }
         (StoppedBy::Hits, _) => format_p(p.p_value),
         _ => {
             // Monte Carlo standard error of the estimated p-value over the draws made.

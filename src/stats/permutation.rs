@@ -85,17 +85,24 @@ pub enum StoppedBy {
 /// 1. Besag & Clifford (1991, Biometrika 78:301), when `hits > 0`: at `g = hits`, stop with
 ///    `p = hits / l`.
 /// 2. Gandy (2009, J. Am. Stat. Assoc. 104:1504), when `0 < risk < 1`: at `g ≤ L_l` stop with
-///    "p below alpha", at `g ≥ U_l` stop with "p above alpha" (see [`Boundaries`]); the
-///    p-value is reported as the Clopper–Pearson interval of `g` in `l` with `risk` in each
-///    tail.
+///    "p below alpha"; at `g ≥ U_l` stop with "p above alpha" only when rule 1 is off (see
+///    [`Boundaries`]). The p-value is then reported as the Clopper–Pearson interval of `g` in
+///    `l` with `risk` in each tail.
 /// 3. At `l = B − 1` stop with Besag & Clifford's `p = (g + 1) / B`, which is the ordinary
 ///    `(1 + g) / (1 + draws)` for the `B − 1` draws made.
 ///
-/// The first rule met stops the draws. Gandy's bound on the resampling risk (the chance that
-/// the decision differs from the one all possible relabellings would give) holds for the
-/// decisions his boundaries make; a Besag–Clifford stop is a p-value of `hits` hits'
-/// precision (its relative Monte Carlo error is about `1/√hits`), exact as a test at any
-/// level, not a decision with a bounded resampling risk.
+/// The first rule met stops the draws. The two published rules share the work: Gandy's lower
+/// boundary settles clear shifts (a pair with no hits stops after about 175 draws at alpha
+/// 0.05, ε = 0.001), Besag & Clifford's rule gives large p-values as a point after about `h/p`
+/// draws. Gandy's upper boundary would cross a few draws before the `h`-th hit for large p and
+/// report only an interval above alpha, so with rule 1 on it does not stop the draws (the
+/// boundaries are still computed as in the paper). Gandy's bound on the resampling risk (the
+/// chance that the decision differs from the one all possible relabellings would give) holds
+/// for the decisions his boundaries make (a path that passes the unused upper boundary ends at
+/// its `h`-th hit long before it could come back down to the lower one; the simulation in the
+/// tests checks the combined rule); a Besag–Clifford stop is a p-value of `h` hits'
+/// precision (relative Monte Carlo error about `1/√h`), exact as a test at any level, not a
+/// decision with a bounded resampling risk: near alpha, raise `h` for a firmer decision.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
 pub struct Sequential {
     /// Besag & Clifford's `h`: stop at the `h`-th relabelling whose T² reaches the observed
@@ -235,6 +242,8 @@ pub struct Sequencer {
     limit: usize,
     hits_needed: usize,
     boundaries: Option<Boundaries>,
+    /// `(L_n, U_n)` for `n = 1, 2, …` as far as computed (they do not depend on the draws).
+    table: Vec<(i64, i64)>,
     risk: f64,
     alpha: f64,
     drawn: usize,
@@ -258,6 +267,7 @@ impl Sequencer {
             },
             hits_needed: on.map_or(0, |s| s.hits),
             boundaries: decides.then(|| Boundaries::new(alpha, risk)),
+            table: Vec::new(),
             risk,
             alpha,
             drawn: 0,
@@ -285,6 +295,34 @@ impl Sequencer {
         self.stopped
     }
 
+    /// Gandy's `(L_n, U_n)` (computed once, then read from the table).
+    fn bounds(&mut self, n: usize) -> Option<(i64, i64)> {
+        let b = self.boundaries.as_mut()?;
+        while self.table.len() < n {
+            self.table.push(b.step());
+        }
+        Some(self.table[n - 1])
+    }
+
+    /// Computes Gandy's boundaries for the first `n` draws ahead (they do not depend on the
+    /// draws; [`restart`](Self::restart) keeps them).
+    pub fn precompute(&mut self, n: usize) {
+        if n > 0 {
+            let _ = self.bounds(n);
+        }
+    }
+
+    /// Starts again with no draws, keeping the boundaries computed so far (for simulations).
+    pub fn restart(&mut self) {
+        self.drawn = 0;
+        self.hits = 0;
+        self.stopped = if self.permutations == 0 {
+            Some(StoppedBy::All)
+        } else {
+            None
+        };
+    }
+
     /// Takes the next draw (whether its statistic reached the observed one); true when the
     /// draws stop here. Draws after a stop are ignored.
     pub fn push(&mut self, hit: bool) -> bool {
@@ -296,11 +334,12 @@ impl Sequencer {
         let g = self.hits as i64;
         if self.hits_needed > 0 && self.hits == self.hits_needed {
             self.stopped = Some(StoppedBy::Hits);
-        } else if let Some(b) = &mut self.boundaries {
-            let (lower, upper) = b.step();
+        } else if let Some((lower, upper)) = self.bounds(self.drawn) {
             if g <= lower {
                 self.stopped = Some(StoppedBy::LowerBoundary);
-            } else if g >= upper {
+            } else if g >= upper && self.hits_needed == 0 {
+                // With Besag & Clifford's rule on, large p-values are theirs to stop (see
+                // [`Sequential`]): the upper boundary stops the draws only without it.
                 self.stopped = Some(StoppedBy::UpperBoundary);
             }
         }
@@ -599,7 +638,9 @@ fn drive<S>(
     let cancelled = AtomicBool::new(false);
     let scan = Mutex::new((0usize, &mut *rules));
     let feed = |scan: &Mutex<(usize, &mut Sequencer)>| {
-        let mut guard = scan.lock().unwrap_or_else(std::sync::PoisonError::into_inner);
+        let mut guard = scan
+            .lock()
+            .unwrap_or_else(std::sync::PoisonError::into_inner);
         let (done, rules) = &mut *guard;
         while *done < limit {
             let r = results[*done].load(Ordering::Acquire);
@@ -800,7 +841,7 @@ mod tests {
         // and nothing is spent at the lower boundary before it first admits 0: L_n ≥ 0 first at
         // the smallest n with (1 − α)^n ≤ ε_n. Likewise the all-hit path (probability α^n)
         // gives the first n with U_n ≤ n.
-        for (alpha, risk) in [(0.05, 1e-3), (0.01, 1e-3), (0.1, 1e-2)] {
+        for (alpha, risk) in [(0.05f64, 1e-3f64), (0.01, 1e-3), (0.1, 1e-2)] {
             let spend = |n: usize| risk * n as f64 / (n as f64 + SPENDING_K);
             let first_lower = (1..).find(|&n| (1.0 - alpha).powi(n as i32) <= spend(n));
             let first_upper = (1..).find(|&n| alpha.powi(n as i32) <= spend(n));
@@ -854,10 +895,7 @@ mod tests {
 
     #[test]
     fn besag_clifford_stops_at_the_h_th_hit_or_at_b_minus_one_draws() {
-        let rule = Sequential {
-            hits: 3,
-            risk: 0.0,
-        };
+        let rule = Sequential { hits: 3, risk: 0.0 };
         // Hits at draws 4, 9 and 17 (1-based): p = 3/17 (Besag & Clifford's h/l).
         let mut s = Sequencer::new(99, Some(&rule), 0.05);
         let mut stopped_at = 0;
@@ -888,7 +926,10 @@ mod tests {
             l += 1;
         }
         let r = s.result(1);
-        assert_eq!((r.drawn, r.at_least_observed, r.stopped_by), (99, 10, StoppedBy::All));
+        assert_eq!(
+            (r.drawn, r.at_least_observed, r.stopped_by),
+            (99, 10, StoppedBy::All)
+        );
         assert_eq!(r.p_value, 11.0 / 100.0);
     }
 

@@ -12,7 +12,7 @@ use lotshift::data::{self, LoadOptions};
 use lotshift::pipeline::{self, Request};
 use lotshift::report::Record;
 use lotshift::stats::permutation::{
-    Boundaries, SPENDING_K, Sequential, SplitMix64, StoppedBy, permutation_hits_refit,
+    Boundaries, SPENDING_K, Sequencer, Sequential, SplitMix64, StoppedBy, permutation_hits_refit,
     permutation_test_data, permutation_test_data_sequential,
 };
 use nalgebra::DMatrix;
@@ -55,7 +55,10 @@ fn besag_clifford(hits: &[bool], h: usize, b: usize) -> (usize, f64) {
 #[test]
 fn sequential_runs_agree_with_full_runs_of_the_same_seed() {
     let b = 999;
-    let bc_only = Sequential { hits: 10, risk: 0.0 };
+    let bc_only = Sequential {
+        hits: 10,
+        risk: 0.0,
+    };
     let both = Sequential::default();
     let mut rng = Rng(SplitMix64(31));
     // Three shifted pairs (2 SD in each characteristic) and four unshifted ones.
@@ -83,7 +86,10 @@ fn sequential_runs_agree_with_full_runs_of_the_same_seed() {
             "case {case}: full p {}, sequential {seq:?}",
             full.p_value
         );
-        assert!(seq.drawn <= l, "case {case}: no later than Besag & Clifford alone");
+        assert!(
+            seq.drawn <= l,
+            "case {case}: no later than Besag & Clifford alone"
+        );
         let g = hits[..seq.drawn].iter().filter(|&&h| h).count();
         assert_eq!(seq.at_least_observed, g, "case {case}");
         match seq.stopped_by {
@@ -101,86 +107,92 @@ fn sequential_runs_agree_with_full_runs_of_the_same_seed() {
                 assert!((hi - (1.0 - both.risk.powf(1.0 / n as f64))).abs() < 1e-10);
                 assert!(hi < ALPHA);
             }
-            StoppedBy::LowerBoundary | StoppedBy::UpperBoundary => {
-                assert!(seq.p_interval.is_some(), "case {case}");
-            }
+            StoppedBy::LowerBoundary => assert!(seq.p_interval.is_some(), "case {case}"),
+            StoppedBy::UpperBoundary => panic!("case {case}: Besag & Clifford's rule was on"),
             StoppedBy::Limit => assert_eq!(seq.drawn, b - 1),
             StoppedBy::All => panic!("case {case}: sequential stopping was on"),
         }
         if shift > 0.0 {
             assert_eq!(seq.stopped_by, StoppedBy::LowerBoundary, "case {case}");
             assert!(seq.drawn < 300, "case {case}: {} draws", seq.drawn);
+        } else if full.p_value > 0.1 {
+            // A large p-value: Besag & Clifford's point, after h/p̂ draws give or take.
+            assert_eq!(seq.stopped_by, StoppedBy::Hits, "case {case}");
         }
     }
 }
 
+/// Runs the stopping rules on a Bernoulli(p) stream `runs` times (at most 2,000 draws each)
+/// and counts the stops by each rule.
+fn simulate(rule: &Sequential, p: f64, runs: usize, seed: u64) -> [usize; 3] {
+    let mut rules = Sequencer::new(2_001, Some(rule), ALPHA);
+    rules.precompute(2_000);
+    let mut rng = SplitMix64(seed);
+    let threshold = (p * 2f64.powi(64)) as u64;
+    let mut counts = [0; 3];
+    for _ in 0..runs {
+        rules.restart();
+        while !rules.push(rng.next_u64() < threshold) {}
+        match rules.stopped() {
+            Some(StoppedBy::LowerBoundary) => counts[0] += 1,
+            Some(StoppedBy::UpperBoundary) => counts[1] += 1,
+            _ => counts[2] += 1,
+        }
+    }
+    counts
+}
+
 #[test]
 fn gandys_resampling_risk_holds_in_simulation() {
-    // Each draw hits with a known probability p (a Bernoulli stream in place of T²s); a run
-    // follows Gandy's boundaries for alpha 0.05 and ε = 0.001 until a boundary or 2,000
-    // draws. The wrong decision is "above alpha" for p ≤ alpha and "below alpha" for p >
+    // Each draw hits with a known probability p (a Bernoulli stream in place of T²s), the
+    // stopping rules for alpha 0.05 and ε = 0.001 run until they stop or 2,000 draws. The
+    // wrong decision of a boundary is "above alpha" for p ≤ alpha and "below alpha" for p >
     // alpha; its chance is at most ε by the paper's theorem. With N runs the count of wrong
-    // decisions is at most Binomial(N, ε); the check allows its mean plus 4 SD (a false
+    // decisions is then at most Binomial(N, ε); the check allows its mean plus 4 SD (a false
     // alarm of under 1e-4 when the bound holds).
-    let (risk, n_max, runs) = (1e-3, 2_000, 20_000);
-    let mut bounds = Boundaries::new(ALPHA, risk);
-    let table: Vec<(i64, i64)> = (0..n_max).map(|_| bounds.step()).collect();
+    let runs = 20_000;
+    let gandy = Sequential {
+        hits: 0,
+        risk: 1e-3,
+    };
     let allowed = {
-        let mean = runs as f64 * risk;
+        let mean = runs as f64 * gandy.risk;
         (mean + 4.0 * mean.sqrt()).floor() as usize
     };
     for (k, p) in [ALPHA, 0.04, 0.06].into_iter().enumerate() {
-        let mut rng = SplitMix64(900 + k as u64);
-        let threshold = (p * 2f64.powi(64)) as u64;
-        let (mut upper, mut lower) = (0, 0);
-        for _ in 0..runs {
-            let mut g = 0i64;
-            for &(l, u) in &table {
-                g += i64::from(rng.next_u64() < threshold);
-                if g <= l {
-                    lower += 1;
-                    break;
-                }
-                if g >= u {
-                    upper += 1;
-                    break;
-                }
-            }
-        }
+        let [lower, upper, _] = simulate(&gandy, p, runs, 900 + k as u64);
         let wrong = if p <= ALPHA { upper } else { lower };
         assert!(
             wrong <= allowed,
-            "p {p}: {wrong} wrong decisions of {runs} (allowed {allowed}); upper {upper}, \
-             lower {lower}"
+            "p {p}: {wrong} wrong decisions of {runs} (allowed {allowed})"
         );
         if p == ALPHA {
             // At p = alpha both boundaries spend at most ε.
             assert!(lower <= allowed, "p = alpha: {lower} lower stops");
         }
     }
-    // The simulated share at p = alpha against the probability the recursion spent: the
-    // same quantity two ways (within 4 SD of a binomial count).
-    let mut rng = SplitMix64(950);
-    let threshold = (ALPHA * 2f64.powi(64)) as u64;
-    let mut upper = 0;
-    for _ in 0..runs {
-        let mut g = 0i64;
-        for &(l, u) in &table {
-            g += i64::from(rng.next_u64() < threshold);
-            if g <= l {
-                break;
-            }
-            if g >= u {
-                upper += 1;
-                break;
-            }
-        }
+    // The simulated share of upper stops at p = alpha against the probability the recursion
+    // spent there by 2,000 draws: the same quantity two ways (within 4 SD of a binomial count).
+    let mut bounds = Boundaries::new(ALPHA, gandy.risk);
+    for _ in 0..2_000 {
+        bounds.step();
     }
+    let [_, upper, _] = simulate(&gandy, ALPHA, runs, 950);
     let want = runs as f64 * bounds.spent()[0];
     assert!(
         (upper as f64 - want).abs() <= 4.0 * want.sqrt() + 1.0,
         "simulated {upper}, spent {want}"
     );
+    // The default rules (Besag & Clifford's h = 10 beside the boundaries): a "below alpha"
+    // decision by the lower boundary is still wrong for p above alpha at most ε of the time.
+    for (k, p) in [0.055, 0.07].into_iter().enumerate() {
+        let [lower, upper, _] = simulate(&Sequential::default(), p, runs, 960 + k as u64);
+        assert_eq!(
+            upper, 0,
+            "the upper boundary does not stop beside Besag & Clifford"
+        );
+        assert!(lower <= allowed, "p {p}: {lower} wrong lower stops");
+    }
 }
 
 #[test]
@@ -190,7 +202,10 @@ fn besag_clifford_stops_after_about_h_over_p_draws_on_unshifted_pairs() {
     // lies within ±0.2 of 1 (more than 4 SD). p is estimated by a full run of 9,999
     // relabellings of the same seed.
     let mut rng = Rng(SplitMix64(41));
-    let rule = Sequential { hits: 10, risk: 0.0 };
+    let rule = Sequential {
+        hits: 10,
+        risk: 0.0,
+    };
     let mut ratios = Vec::new();
     let mut seed = 0;
     while ratios.len() < 40 {
@@ -201,8 +216,8 @@ fn besag_clifford_stops_after_about_h_over_p_draws_on_unshifted_pairs() {
         if full.p_value < 0.02 {
             continue;
         }
-        let seq = permutation_test_data_sequential(&x, &y, 9_999, seed, Some(&rule), ALPHA)
-            .unwrap();
+        let seq =
+            permutation_test_data_sequential(&x, &y, 9_999, seed, Some(&rule), ALPHA).unwrap();
         assert_eq!(seq.stopped_by, StoppedBy::Hits);
         assert_eq!(seq.p_value, 10.0 / seq.drawn as f64);
         ratios.push(seq.drawn as f64 * full.p_value / 10.0);
@@ -222,8 +237,8 @@ fn old_settings_without_the_new_fields_read_as_all_relabellings_drawn() {
     assert_eq!(Settings::from(&r).sequential, None);
     // A new run stops early by default.
     assert_eq!(Settings::default().sequential, Some(Sequential::default()));
-    let back: Settings = serde_json::from_str(&serde_json::to_string(&Settings::default()).unwrap())
-        .unwrap();
+    let back: Settings =
+        serde_json::from_str(&serde_json::to_string(&Settings::default()).unwrap()).unwrap();
     assert_eq!(back, Settings::default());
 }
 
@@ -250,7 +265,10 @@ fn a_record_made_before_sequential_stopping_recomputes_as_it_was_made() {
         sequential: None,
         ..Settings::default()
     });
-    old["settings"].as_object_mut().unwrap().remove("sequential");
+    old["settings"]
+        .as_object_mut()
+        .unwrap()
+        .remove("sequential");
     let perm = old["permutation"].as_object_mut().unwrap();
     for key in ["drawn", "stopped_by", "p_interval", "why"] {
         assert!(perm.remove(key).is_some(), "{key}");
@@ -273,8 +291,14 @@ fn a_shifted_pair_is_decided_early_and_the_text_says_why() {
         &names(3),
         &[None, None, None],
         [
-            LotData { name: "a", data: &x },
-            LotData { name: "b", data: &y },
+            LotData {
+                name: "a",
+                data: &x,
+            },
+            LotData {
+                name: "b",
+                data: &y,
+            },
         ],
         &Settings::default(),
         &Silent,
@@ -286,6 +310,9 @@ fn a_shifted_pair_is_decided_early_and_the_text_says_why() {
     let [lo, hi] = p.p_interval.unwrap();
     assert!(lo <= hi && hi < ALPHA && p.p_value == hi);
     let line = lotshift::report::permutation_line(p);
-    assert!(line.contains(&format!("Stopped after {} of at most 9999", p.drawn)), "{line}");
+    assert!(
+        line.contains(&format!("Stopped after {} of at most 9999", p.drawn)),
+        "{line}"
+    );
     assert!(line.contains("lower boundary"), "{line}");
 }
