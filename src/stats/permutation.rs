@@ -937,7 +937,11 @@ mod tests {
     fn the_draws_seen_do_not_depend_on_the_thread_count() {
         // A hit sequence that is a pure function of the draw number, fed through the threads
         // in chunks: the rules must see it in order whatever the number of threads.
-        let hit = |k: usize, _: &mut ()| SplitMix64::for_permutation(3, k).next_u64() % 7 == 0;
+        let hit = |k: usize, _: &mut ()| {
+            SplitMix64::for_permutation(3, k)
+                .next_u64()
+                .is_multiple_of(7)
+        };
         let rule = Sequential {
             hits: 40,
             risk: 1e-3,
