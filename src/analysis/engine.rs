@@ -276,6 +276,8 @@ fn permute_centred(
         d,
         settings.permutations,
         settings.seed,
+        settings.sequential.as_ref(),
+        settings.alpha,
         &keep_going,
     );
     if progress.cancelled() {
@@ -283,6 +285,7 @@ fn permute_centred(
     }
     out.settings.permutations = settings.permutations;
     out.settings.seed = settings.seed;
+    out.settings.sequential = settings.sequential;
     Ok(())
 }
 

@@ -18,6 +18,11 @@ pub struct Settings {
     pub permutations: usize,
     /// Seed of the permutation draws.
     pub seed: u64,
+    /// Sequential stopping of the permutation draws (`None`: all are drawn). On by default
+    /// for a new run; a missing field (settings written before sequential stopping, as in an
+    /// old record) reads as `None`, so such a run recomputes exactly as it was made.
+    #[serde(default)]
+    pub sequential: Option<Sequential>,
 }
 
 /// Default number of relabellings of the permutation test.
@@ -33,6 +38,7 @@ impl Default for Settings {
             checks: true,
             permutations: DEFAULT_PERMUTATIONS,
             seed: DEFAULT_SEED,
+            sequential: Some(Sequential::default()),
         }
     }
 }

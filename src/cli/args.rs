@@ -228,6 +228,18 @@ pub struct CompareArgs {
     /// 20261202].
     #[arg(long)]
     pub seed: Option<u64>,
+    /// Draw every relabelling asked for (turns sequential stopping off).
+    #[arg(long, conflicts_with_all = ["stop_hits", "decision_risk"])]
+    pub draw_all: bool,
+    /// Stop the relabellings at the N-th whose T² reaches the observed one, p = N/draws
+    /// (Besag & Clifford 1991; 0 turns this rule off) [default: 10].
+    #[arg(long, value_name = "N")]
+    pub stop_hits: Option<usize>,
+    /// Stop the relabellings once the decision at alpha is settled, with at most this chance
+    /// that all possible relabellings would decide otherwise (Gandy 2009; 0 turns this rule
+    /// off) [default: 0.001].
+    #[arg(long, value_name = "RISK")]
+    pub decision_risk: Option<f64>,
     /// Sign the summary with this private key (PEM); needs --meaning and --out.
     #[arg(long, value_name = "KEY", requires_all = ["meaning", "out"])]
     pub sign: Option<PathBuf>,
@@ -292,4 +304,35 @@ pub(crate) struct StatsFile {
     #[serde(default)]
     pub(crate) alpha: Option<f64>,
     pub(crate) lots: Vec<SummaryLot>,
+}
+
+impl CompareArgs {
+    /// Sequential stopping as the options ask (`None` with `--draw-all`).
+    ///
+    /// # Errors
+    /// A risk outside 0 to 1.
+    /// `base` is what the run starts from (the defaults, or a protocol's settings): an
+    /// option given replaces its part.
+    pub fn sequential(
+        &self,
+        base: Option<analysis::Sequential>,
+    ) -> Result<Option<analysis::Sequential>, CliError> {
+        if self.draw_all {
+            return Ok(None);
+        }
+        if self.stop_hits.is_none() && self.decision_risk.is_none() {
+            return Ok(base);
+        }
+        let start = base.unwrap_or_default();
+        let risk = self.decision_risk.unwrap_or(start.risk);
+        if !(0.0..1.0).contains(&risk) {
+            return Err(CliError::from(format!(
+                "--decision-risk must be at least 0 and below 1 (got {risk})"
+            )));
+        }
+        Ok(Some(analysis::Sequential {
+            hits: self.stop_hits.unwrap_or(start.hits),
+            risk,
+        }))
+    }
 }

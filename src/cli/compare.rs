@@ -53,6 +53,7 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
         checks: base.checks && !a.no_checks,
         permutations: a.permutations.unwrap_or(base.permutations),
         seed: a.seed.unwrap_or(base.seed),
+        sequential: a.sequential(base.sequential)?,
     };
     let only = a
         .lots
@@ -229,6 +230,7 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
         checks: true,
         permutations: 0,
         seed: analysis::DEFAULT_SEED,
+        sequential: None,
     };
     let mut c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
         .map_err(|e| format!("{}: {e}", a.file.display()))?;

@@ -322,6 +322,19 @@ pub fn settings_ui(
             .on_hover_text("Relabellings for the permutation p-value; 0 skips it");
         changed |= settled(&r);
     });
+    let mut early = s.sequential.is_some();
+    if ui
+        .checkbox(&mut early, "stop relabelling when settled")
+        .on_hover_text(
+            "Stop at the 10th relabelling that reaches the observed T² (Besag & Clifford), or \
+             as soon as the decision at alpha is settled with at most a 0.001 chance of \
+             differing from all relabellings (Gandy)",
+        )
+        .changed()
+    {
+        s.sequential = early.then(crate::analysis::Sequential::default);
+        changed = true;
+    }
     if s != *settings {
         actions.push(Action::Settings(Box::new(s)));
     }

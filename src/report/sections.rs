@@ -24,7 +24,7 @@ use crate::stats::bignormal::LargeLotNormality;
 use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
 use crate::stats::moments::ColumnSummary;
 use crate::stats::normality::ShapiroWilk;
-use crate::stats::permutation::PermutationResult;
+use crate::stats::permutation::{PermutationResult, Sequential, StoppedBy};
 
 /// Reading numbers that may be `null` (written for NaN and infinities) as NaN.
 pub(crate) mod nan {
@@ -102,6 +102,35 @@ pub struct SettingsRecord {
     pub permutations: usize,
     /// Seed of the relabellings.
     pub seed: u64,
+    /// Sequential stopping of the relabellings (`null`: all drawn). Absent in a record made
+    /// before sequential stopping, which reads as `null` and so recomputes as it was made.
+    #[serde(default)]
+    pub sequential: Option<SequentialRecord>,
+}
+
+/// `settings.sequential`: when the relabellings stop early.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct SequentialRecord {
+    /// Besag & Clifford's h: stop at the h-th relabelling reaching the observed T² (0: off).
+    pub hits: usize,
+    /// Gandy's resampling risk of the decision at alpha (0: his boundaries are off).
+    pub risk: f64,
+}
+
+impl From<&Sequential> for SequentialRecord {
+    fn from(s: &Sequential) -> Self {
+        let Sequential { hits, risk } = *s;
+        SequentialRecord { hits, risk }
+    }
+}
+
+impl From<&SequentialRecord> for Sequential {
+    fn from(s: &SequentialRecord) -> Self {
+        Sequential {
+            hits: s.hits,
+            risk: s.risk,
+        }
+    }
 }
 
 impl Default for SettingsRecord {
@@ -118,6 +147,7 @@ impl From<&Settings> for SettingsRecord {
             checks,
             permutations,
             seed,
+            sequential,
         } = *s;
         SettingsRecord {
             alpha,
@@ -125,6 +155,7 @@ impl From<&Settings> for SettingsRecord {
             checks,
             permutations,
             seed,
+            sequential: sequential.as_ref().map(Into::into),
         }
     }
 }
@@ -137,6 +168,7 @@ impl From<&SettingsRecord> for Settings {
             checks: s.checks,
             permutations: s.permutations,
             seed: s.seed,
+            sequential: s.sequential.as_ref().map(Into::into),
         }
     }
 }
@@ -975,15 +1007,69 @@ impl From<&UnequalCovarianceRecord> for UnequalCovariance {
 /// `permutation`: the permutation p-value of T².
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PermutationRecord {
-    /// Relabellings drawn.
+    /// Relabellings asked for (the most drawn).
     pub permutations: usize,
     /// Seed of the draws.
     pub seed: u64,
-    /// Relabellings whose T² reached the observed one.
+    /// Relabellings drawn whose T² reached the observed one.
     pub at_least_observed: usize,
-    /// The p-value.
+    /// The p-value (with `p_interval`, the interval's end nearer alpha).
     #[serde(deserialize_with = "nan::de")]
     pub p_value: f64,
+    /// Relabellings drawn (absent in a record made before sequential stopping: all were).
+    #[serde(default)]
+    pub drawn: usize,
+    /// What ended the draws.
+    #[serde(default)]
+    pub stopped_by: StoppedByRecord,
+    /// The p-value as an interval `[lo, hi]` when one of Gandy's boundaries stopped the draws
+    /// (null otherwise).
+    #[serde(default, deserialize_with = "nan::de")]
+    pub p_interval: Option<[f64; 2]>,
+    /// Why the draws stopped, in words.
+    #[serde(default)]
+    pub why: String,
+}
+
+/// `permutation.stopped_by`: what ended the relabellings, written as a word.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum StoppedByRecord {
+    /// `"all_drawn"`: sequential stopping was off.
+    #[default]
+    AllDrawn,
+    /// `"hits"`: Besag & Clifford's h-th relabelling reaching the observed T².
+    Hits,
+    /// `"lower_boundary"`: Gandy's lower boundary, p below alpha.
+    LowerBoundary,
+    /// `"upper_boundary"`: Gandy's upper boundary, p above alpha.
+    UpperBoundary,
+    /// `"limit"`: no rule stopped the draws within one fewer than asked for.
+    Limit,
+}
+
+impl From<StoppedBy> for StoppedByRecord {
+    fn from(s: StoppedBy) -> Self {
+        match s {
+            StoppedBy::All => StoppedByRecord::AllDrawn,
+            StoppedBy::Hits => StoppedByRecord::Hits,
+            StoppedBy::LowerBoundary => StoppedByRecord::LowerBoundary,
+            StoppedBy::UpperBoundary => StoppedByRecord::UpperBoundary,
+            StoppedBy::Limit => StoppedByRecord::Limit,
+        }
+    }
+}
+
+impl From<StoppedByRecord> for StoppedBy {
+    fn from(s: StoppedByRecord) -> Self {
+        match s {
+            StoppedByRecord::AllDrawn => StoppedBy::All,
+            StoppedByRecord::Hits => StoppedBy::Hits,
+            StoppedByRecord::LowerBoundary => StoppedBy::LowerBoundary,
+            StoppedByRecord::UpperBoundary => StoppedBy::UpperBoundary,
+            StoppedByRecord::Limit => StoppedBy::Limit,
+        }
+    }
 }
 
 impl From<&PermutationResult> for PermutationRecord {
@@ -993,12 +1079,20 @@ impl From<&PermutationResult> for PermutationRecord {
             seed,
             at_least_observed,
             p_value,
+            drawn,
+            stopped_by,
+            p_interval,
+            ref why,
         } = *p;
         PermutationRecord {
             permutations,
             seed,
             at_least_observed,
             p_value,
+            drawn,
+            stopped_by: stopped_by.into(),
+            p_interval,
+            why: why.clone(),
         }
     }
 }
@@ -1010,6 +1104,10 @@ impl From<&PermutationRecord> for PermutationResult {
             seed: p.seed,
             at_least_observed: p.at_least_observed,
             p_value: p.p_value,
+            drawn: p.drawn,
+            stopped_by: p.stopped_by.into(),
+            p_interval: p.p_interval,
+            why: p.why.clone(),
         }
     }
 }

@@ -554,18 +554,43 @@ pub fn unequal_line(u: &UnequalCovariance) -> String {
     )
 }
 
-/// The permutation p-value in one line.
+/// The permutation p-value in one line, with one plain sentence on how many relabellings
+/// were drawn and why the drawing stopped.
 pub fn permutation_line(p: &PermutationResult) -> String {
-    // Monte Carlo standard error of the estimated p-value over B relabellings.
-    let se = (p.p_value * (1.0 - p.p_value) / p.permutations.max(1) as f64).sqrt();
+    use crate::stats::permutation::StoppedBy;
+    let drawn = p.draws();
+    let value = match (p.stopped_by, p.p_interval) {
+        (StoppedBy::LowerBoundary | StoppedBy::UpperBoundary, Some([lo, hi])) => {
+            format!("between {} and {}", format_p(lo), format_p(hi))
+        }
+        (StoppedBy::Hits, _) => format_p(p.p_value),
+        _ => {
+            // Monte Carlo standard error of the estimated p-value over the draws made.
+            let se = (p.p_value * (1.0 - p.p_value) / drawn.max(1) as f64).sqrt();
+            format!(
+                "{} ± {} (Monte Carlo standard error)",
+                format_p(p.p_value),
+                format_sig(se, 2)
+            )
+        }
+    };
+    if p.why.is_empty() {
+        // A result from before sequential stopping.
+        return format!(
+            "{value}; {} of {} relabellings reached the observed T², seed {}",
+            p.at_least_observed, p.permutations, p.seed
+        );
+    }
+    if p.stopped_by == StoppedBy::All {
+        let mut why = p.why.clone();
+        if let Some(first) = why.get_mut(0..1) {
+            first.make_ascii_uppercase();
+        }
+        return format!("{value}; seed {}. {why}.", p.seed);
+    }
     format!(
-        "{} ± {} (Monte Carlo standard error; {} of {} relabellings reached the observed T², \
-         seed {})",
-        format_p(p.p_value),
-        format_sig(se, 2),
-        p.at_least_observed,
-        p.permutations,
-        p.seed
+        "{value}; seed {}. Stopped after {drawn} of at most {} relabellings: {}.",
+        p.seed, p.permutations, p.why
     )
 }
 

@@ -57,6 +57,7 @@ fn every_fixture_case_matches_numpy_and_scipy() {
             checks: true,
             permutations: 0,
             seed: 1,
+            sequential: None,
         };
         let c = analysis::compare(
             &names,
