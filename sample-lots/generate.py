@@ -268,6 +268,33 @@ def write_protocol():
     write("hub-protocol.json", json.dumps(protocol, indent=2, ensure_ascii=False) + "\n")
 
 
+def write_sqlite(name, la, a, lb, b, missing_a):
+    """Both routes in one SQLite table, as a plant database would hold them (NULL missing)."""
+    import sqlite3
+
+    path = os.path.join(HERE, name)
+    if os.path.exists(path):
+        os.remove(path)
+    con = sqlite3.connect(path)
+    cols = ["route", "serial", "measured at", "operator"] + [f"{n} ({u})" for n, u, *_ in CHARS]
+    kinds = ["TEXT"] * 4 + ["REAL"] * len(CHARS)
+    q = lambda c: '"' + c.replace('"', '""') + '"'
+    con.execute(
+        "CREATE TABLE hub_measurements (" + ", ".join(f"{q(c)} {t}" for c, t in zip(cols, kinds)) + ")"
+    )
+    rows = []
+    for lot, lab, data, miss in (("A", la, a, missing_a), ("B", lb, b, set())):
+        for i, (l, r) in enumerate(zip(lab, data)):
+            vals = [None if (i, k) in miss else float(fmt(v, CHARS[k][4])) for k, v in enumerate(r)]
+            rows.append([lot] + list(l) + vals)
+    con.executemany(
+        "INSERT INTO hub_measurements VALUES (" + ", ".join("?" * len(cols)) + ")", rows
+    )
+    con.commit()
+    con.execute("VACUUM")
+    con.close()
+
+
 def main():
     write_certificate()
     write_spec()
@@ -304,6 +331,7 @@ def main():
     for l, r in zip(lb, b):
         table.append(list(l) + list(r))
     write_xlsx("candidate-route-b.xlsx", "hubs", table)
+    write_sqlite("hub-lots.sqlite", la, a, lb, b, missing_a)
     print(f"seed {seed}")
     for k in (2, 3):
         print(f"  univariate t for {CHARS[k][0]}: {t_stat([r[k] for r in a], [r[k] for r in b]):.3f}")

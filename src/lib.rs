@@ -15,4 +15,5 @@ pub mod palette;
 pub mod pipeline;
 pub mod protocol;
 pub mod report;
+pub mod source;
 pub mod stats;

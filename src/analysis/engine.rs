@@ -455,6 +455,39 @@ fn without(
     })
 }
 
+/// Compares two lots from their moments as computed elsewhere (inside a database): the core
+/// test, the intervals, the discriminant direction, Box's M and the unequal-covariance test;
+/// `summaries` carry each characteristic's min and max (medians are not known). The unit
+/// checks are the caller's to add ([`crate::analysis::conclude_again`]).
+///
+/// # Errors
+/// As [`compare`].
+pub fn compare_moments(
+    characteristics: &[String],
+    units: &[Option<String>],
+    names: [&str; 2],
+    moments: [&LotMoments; 2],
+    summaries: Vec<[ColumnSummary; 2]>,
+    settings: &Settings,
+) -> Result<Comparison, EngineError> {
+    let p = moments[0].dim();
+    check_common(characteristics, p, moments[1].dim(), settings.alpha)?;
+    for (m, name) in moments.iter().zip(names) {
+        if m.n == 0 {
+            return Err(EngineError::EmptyLot(name.to_string()));
+        }
+    }
+    finish(
+        characteristics,
+        units,
+        names,
+        moments[0],
+        moments[1],
+        Some(summaries),
+        settings,
+    )
+}
+
 /// Compares two lots from published summary statistics only (n, mean vector, covariance).
 ///
 /// # Errors
@@ -656,6 +689,7 @@ fn finish(
         not_compared: Vec::new(),
         input_alerts: Vec::new(),
         without_outliers: None,
+        in_database: None,
         detectable: detectable_distance(p, m1.n, m2.n, alpha, DETECTABLE_POWER).map(|d| {
             Detectable {
                 power: DETECTABLE_POWER,

@@ -386,6 +386,34 @@ pub struct Comparison {
     /// The T² test without the units flagged as outliers (absent when none is flagged).
     #[serde(default)]
     pub without_outliers: Option<WithoutOutliers>,
+    /// Computed inside a database from aggregate statements: what could not be computed that
+    /// way, and the units beyond the outlier cutoff with their labels.
+    #[serde(default)]
+    pub in_database: Option<InDatabase>,
+}
+
+/// What the in-database comparison computed and what it could not.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct InDatabase {
+    /// Results that need every unit in memory, reported as not computed.
+    pub not_computed: Vec<String>,
+    /// Units beyond each lot's outlier cutoff, largest distance first, with their labels.
+    pub outliers: Vec<LabelledOutlier>,
+    /// Whether the outlier list was cut at its limit.
+    pub outliers_truncated: bool,
+}
+
+/// A unit far from its lot's mean, found inside the database.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LabelledOutlier {
+    /// Lot index (0 reference, 1 candidate).
+    pub lot: usize,
+    /// Squared Mahalanobis distance from the lot mean (divisor n − 1 covariance).
+    pub d2: f64,
+    /// Its upper-tail probability.
+    pub p_value: f64,
+    /// The unit's label columns, as (column, value).
+    pub labels: Vec<(String, String)>,
 }
 
 /// The T² test rerun without the units the outlier screen flags: does the decision hold?

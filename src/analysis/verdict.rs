@@ -6,6 +6,12 @@ use super::*;
 /// Sets the favoured test and the verdict from everything computed so far. With a
 /// specification, the four-way outcome comes first; without one the verdict is the T² result
 /// alone (so records written before specifications existed still verify word for word).
+/// Recomputes the favoured test and the verdict after checks were added from outside the
+/// engine (the in-database comparison's Mardia and outlier statements).
+pub fn conclude_again(c: &mut Comparison) {
+    conclude(c);
+}
+
 pub(crate) fn conclude(c: &mut Comparison) {
     c.favoured = favour(c);
     let t2 = verdict_text(c);

@@ -97,8 +97,16 @@ pub struct PlanArgs {
 pub struct LotArgs {
     /// The reference lot file and the candidate lot file (or one file with --split-by); with
     /// --protocol, the protocol's files when none are given.
-    #[arg(value_name = "FILE", required_unless_present = "protocol", num_args = 1..=2)]
+    #[arg(value_name = "FILE", required_unless_present_any = ["protocol", "database"], num_args = 1..=2)]
     pub files: Vec<PathBuf>,
+    /// Read both lots from a database instead of files: sqlite:PATH or
+    /// postgresql://user@host:port/dbname (the password from LOTSHIFT_DB_PASSWORD). Needs
+    /// --query and --lot-column.
+    #[arg(long, value_name = "URL", conflicts_with = "files", requires_all = ["query", "lot_column"])]
+    pub database: Option<String>,
+    /// The SELECT whose rows are the units of both lots (with --database); it runs read-only.
+    #[arg(long, value_name = "SQL", requires = "database")]
+    pub query: Option<String>,
     /// Lot column: the column holding each unit's lot, to read both lots from one file.
     #[arg(long, value_name = "COLUMN", alias = "split-by")]
     pub lot_column: Option<String>,
@@ -203,6 +211,10 @@ pub struct CompareArgs {
     /// difference as a deviation with this reason.
     #[arg(long, value_name = "REASON", requires = "protocol")]
     pub deviation: Option<String>,
+    /// With --database: compute the comparison inside the database from aggregate
+    /// statements (no unit leaves it); what needs every unit is reported as not computed.
+    #[arg(long, requires = "database")]
+    pub in_database: bool,
     /// Write the comparison record as JSON to FILE, or to standard output with "-".
     #[arg(long, value_name = "FILE")]
     pub json: Option<String>,

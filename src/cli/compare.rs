@@ -121,25 +121,32 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
             }
         }
     };
-    let mut lots = load_lots(&a.lots)?;
-    let exclusions = match &a.lots.exclude_units {
-        Some(path) => data::exclusions::load_exclusions(path, [&lots[0], &lots[1]])?,
-        None => Vec::new(),
+    let selection = Selection {
+        only,
+        exclude: a.lots.exclude.clone(),
     };
-    let request = Request {
-        selection: Selection {
-            only,
-            exclude: a.lots.exclude.clone(),
-        },
-        settings,
-        spec,
-        strict_columns: a.lots.strict_columns,
-        exclusions,
+    let (c, mut record, inputs) = if a.in_database {
+        let (c, record) = in_database(&a, &selection, settings, &spec)?;
+        (c, record, None)
+    } else {
+        let mut lots = load_lots(&a.lots)?;
+        let exclusions = match &a.lots.exclude_units {
+            Some(path) => data::exclusions::load_exclusions(path, [&lots[0], &lots[1]])?,
+            None => Vec::new(),
+        };
+        let request = Request {
+            selection,
+            settings,
+            spec,
+            strict_columns: a.lots.strict_columns,
+            exclusions,
+        };
+        // The unit matrices take the numbers over, and the engine centres them in place:
+        // memory holds one copy of the units.
+        let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
+        let record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
+        (c, record, Some((prepared, lots)))
     };
-    // The unit matrices take the numbers over, and the engine centres them in place: memory
-    // holds one copy of the units.
-    let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
-    let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     record.analysed_at = Some(sign::now_rfc3339());
     record.fields = fields;
     record.protocol = protocol
@@ -171,14 +178,21 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
         None => None,
     };
     if a.json.as_deref() != Some("-") {
-        let files = [
-            lots[0].provenance.file_name.as_str(),
-            lots[1].provenance.file_name.as_str(),
-        ];
+        let names: [String; 2] = match &inputs {
+            Some((_, lots)) => [0, 1].map(|g| lots[g].provenance.file_name.clone()),
+            None => [0, 1].map(|g| {
+                format!(
+                    "{} = {} in {}",
+                    a.lots.lot_column.as_deref().unwrap_or_default(),
+                    c.lots[g].name,
+                    a.lots.database.as_deref().unwrap_or_default()
+                )
+            }),
+        };
         out(&report::render_text(
             &c,
-            Some(&prepared),
-            files,
+            inputs.as_ref().map(|(p, _)| p),
+            [&names[0], &names[1]],
             Some(&record),
         ));
     }
@@ -250,4 +264,43 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
     } else {
         ExitCode::SUCCESS
     })
+}
+
+/// `compare --database … --in-database`: the comparison from aggregate statements.
+fn in_database(
+    a: &CompareArgs,
+    selection: &Selection,
+    settings: Settings,
+    spec: &SpecRequest,
+) -> Result<(analysis::Comparison, Record), CliError> {
+    let source = query_source(&a.lots)?.ok_or("--in-database needs --database")?;
+    if a.lots.exclude_units.is_some() {
+        return Err(
+            "--exclude-units sets units aside by row or label, which needs the units: run              without --in-database"
+                .into(),
+        );
+    }
+    let options = LoadOptions {
+        sheet: None,
+        labels: a.lots.labels.clone(),
+    };
+    let choice = crate::source::aggregate::Choice {
+        only: selection.only.clone(),
+        exclude: selection.exclude.clone(),
+    };
+    let settings = Settings {
+        leave_one_out: false,
+        permutations: 0,
+        sequential: None,
+        ..settings
+    };
+    let outcome =
+        crate::source::aggregate::compare_in_database(&source, None, &options, &choice, &settings)?;
+    let mut c = outcome.comparison;
+    if !spec.is_empty() {
+        let given = spec.specification(&c.characteristics, &c.units)?;
+        analysis::apply_specification(&mut c, &given, None)?;
+    }
+    let record = crate::source::aggregate::record(&c, &outcome.lots, &source);
+    Ok((c, record))
 }

@@ -112,6 +112,12 @@ pub enum CliError {
     /// A key, a signature or a summary file.
     #[error(transparent)]
     Sign(#[from] crate::report::sign::SignError),
+    /// A database that cannot be read.
+    #[error(transparent)]
+    Source(#[from] crate::source::SourceError),
+    /// The comparison inside a database stopped.
+    #[error(transparent)]
+    Aggregate(#[from] crate::source::aggregate::AggregateError),
     /// A comparison protocol that cannot be used.
     #[error(transparent)]
     Protocol(#[from] crate::protocol::ProtocolError),
@@ -169,6 +175,9 @@ pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], CliError> {
     if values.is_some() && args.lot_column.is_none() {
         return Err("--lot-values needs --lot-column: the column the two values are in".into());
     }
+    if let Some(source) = query_source(args)? {
+        return Ok(crate::source::load_lots(&source, None, &options)?);
+    }
     let wanted = values.as_ref().map(|v| [v[0].as_str(), v[1].as_str()]);
     Ok(data::load_two(
         &args.files,
@@ -176,6 +185,36 @@ pub fn load_lots(args: &LotArgs) -> Result<[Lot; 2], CliError> {
         wanted,
         &options,
     )?)
+}
+
+/// The database source named by `--database`, `--query`, `--lot-column` and `--lot-values`
+/// (`None` for files).
+///
+/// # Errors
+/// A URL lotshift does not read, a missing query or lot column, bad lot values.
+pub fn query_source(args: &LotArgs) -> Result<Option<crate::source::QuerySource>, CliError> {
+    let Some(url) = &args.database else {
+        return Ok(None);
+    };
+    let database = crate::source::Database::parse(url)?;
+    let query = args
+        .query
+        .clone()
+        .ok_or("--database needs --query: the SELECT whose rows are the units")?;
+    let lot_column = args
+        .lot_column
+        .clone()
+        .ok_or("--database needs --lot-column: the result's column holding each unit's lot")?;
+    let lot_values = match &args.lot_values {
+        Some(text) => Some(parse_lot_values(text)?),
+        None => None,
+    };
+    Ok(Some(crate::source::QuerySource {
+        database,
+        query,
+        lot_column,
+        lot_values,
+    }))
 }
 
 /// Splits `--lot-values REFERENCE,CANDIDATE` into its two values.

@@ -87,6 +87,10 @@ pub struct LoadError {
     pub position: Option<usize>,
     /// What went wrong.
     pub kind: LoadErrorKind,
+    /// What a row number counts: `row` as a spreadsheet shows it (header is row 1), or a
+    /// position from 1 in a query's result (`result row`) or a Parquet file (`data row`),
+    /// where columns are named without spreadsheet letters.
+    pub row_label: &'static str,
 }
 
 impl LoadError {
@@ -98,6 +102,7 @@ impl LoadError {
             column: None,
             position: None,
             kind,
+            row_label: "row",
         }
     }
 
@@ -128,10 +133,14 @@ impl LoadError {
     fn describe(&self) -> String {
         let mut place = self.file.clone();
         if let Some(r) = self.row {
-            place.push_str(&format!(", row {r}"));
+            place.push_str(&format!(", {} {r}", self.row_label));
         }
-        if let (Some(c), Some(p)) = (&self.column, self.position) {
-            place.push_str(&format!(", column {} \"{c}\"", column_letter(p)));
+        match (&self.column, self.position) {
+            (Some(c), Some(p)) if self.row_label == "row" => {
+                place.push_str(&format!(", column {} \"{c}\"", column_letter(p)))
+            }
+            (Some(c), _) if self.row_label != "row" => place.push_str(&format!(", column \"{c}\"")),
+            _ => {}
         }
         let what = match &self.kind {
             LoadErrorKind::Io(e) => format!("cannot read the file: {e}"),

@@ -8,17 +8,21 @@ mod error;
 pub mod exclusions;
 mod header;
 mod pair;
+mod parquet;
 pub mod screen;
 mod sheet;
 pub mod spec;
 mod split;
+mod table;
 
+pub use error::shorten as error_shorten;
 pub use error::{LoadError, LoadErrorKind, PrepareError};
 pub use pair::{
     LeftOut, Pairing, Prepared, PreparedLot, Selection, Unmatched, counterpart, label_text,
     prepare, prepare_releasing,
 };
 pub use split::{lot_column_candidates, lot_values, split_lot};
+pub use table::{RawCell, from_cells};
 
 use std::path::Path;
 
@@ -66,6 +70,10 @@ pub struct Provenance {
     /// Columns the user asked to read as labels.
     #[serde(default)]
     pub forced_labels: Vec<String>,
+    /// The query the rows came from (database sources; `path` is then the URL and `sha256`
+    /// the hash of the rows' canonical stream).
+    #[serde(default)]
+    pub query: Option<String>,
 }
 
 /// Compact storage for a text column: one buffer and the end offset of each cell.
@@ -388,6 +396,16 @@ pub fn load(path: &Path, options: &LoadOptions) -> Result<Lot, LoadError> {
     let got = std::fs::File::open(path)
         .and_then(|mut f| f.read(&mut magic))
         .map_err(io)?;
+    if parquet::is_parquet(&display, &magic[..got]) {
+        let bytes = std::fs::metadata(path).map(|m| m.len()).unwrap_or(0);
+        let digest = {
+            let data = std::fs::read(path).map_err(io)?;
+            hex(&Sha256::digest(&data))
+        };
+        let provenance = new_provenance(&display, digest, bytes, options);
+        let lot = parquet::read(&display, options, provenance)?;
+        return Ok(finish_lot(&display, lot));
+    }
     if is_spreadsheet(&display, &magic[..got]) {
         let bytes = std::fs::read(path).map_err(io)?;
         return load_bytes(&display, &bytes, options);
@@ -439,6 +457,7 @@ fn new_provenance(
         rows_read: 0,
         notes: Vec::new(),
         forced_labels: options.labels.clone(),
+        query: None,
     }
 }
 

@@ -12,7 +12,7 @@ pub use canonical::{CanonicalError, canonical_bytes};
 pub use record::{
     AuditRecord, AuditRun, CAUTION, Deviation, FieldRecord, LotRecord, OutlierRecord,
     OutlierSection, ProtocolRecord, Record, SCHEMA, SCHEMA_V1, STANDARD_FIELDS, Software,
-    parse_field,
+    SourceRecord, parse_field,
 };
 pub use text::{box_m_line, mardia_line, permutation_line, render_text, unequal_line};
 

@@ -72,6 +72,31 @@ pub struct LotRecord {
     /// missing.
     #[serde(default)]
     pub left_out: Vec<LeftOutRecord>,
+    /// The database the lot was read from (null for a file).
+    #[serde(default)]
+    pub source: Option<SourceRecord>,
+}
+
+/// `lots[].source`: a lot read from a database query.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct SourceRecord {
+    /// `sqlite` or `postgresql`.
+    pub kind: String,
+    /// The database URL (never with a password).
+    pub url: String,
+    /// The query, as given.
+    pub query: String,
+    /// The lot column.
+    pub lot_column: String,
+    /// This lot's value in it.
+    pub lot_value: String,
+    /// Rows of the result with this lot value.
+    pub rows_read: usize,
+    /// SHA-256 of those rows' canonical stream ([`crate::source::rows_sha256`]); null when
+    /// the comparison was computed inside the database, where no row leaves it.
+    pub rows_sha256: Option<String>,
+    /// The comparison was computed inside the database from aggregate statements.
+    pub in_database: bool,
 }
 
 /// A unit left out for a missing cell (record key `lots[].left_out`).
@@ -304,6 +329,10 @@ pub struct Record {
     /// hash of this one's entry (null for a record made on the command line).
     #[serde(default)]
     pub audit_trail: Option<AuditRecord>,
+    /// Computed inside a database: what was not computed that way, and the units beyond the
+    /// outlier cutoff with their labels (null otherwise).
+    #[serde(default)]
+    pub in_database: Option<crate::analysis::InDatabase>,
 }
 
 /// `audit_trail`: what the audit trail holds of this comparison.
@@ -446,6 +475,20 @@ impl Record {
                                 .collect()
                         })
                         .unwrap_or_default(),
+                    source: src.and_then(|s| {
+                        let query = s.query.clone()?;
+                        let (lot_column, lot_value) = s.split.clone().unwrap_or_default();
+                        Some(SourceRecord {
+                            kind: s.format.clone(),
+                            url: s.path.clone(),
+                            query,
+                            lot_column,
+                            lot_value,
+                            rows_read: s.rows_read,
+                            rows_sha256: Some(s.sha256.clone()),
+                            in_database: false,
+                        })
+                    }),
                 }
             })
             .collect();
@@ -548,6 +591,7 @@ impl Record {
             fields: Vec::new(),
             protocol: None,
             audit_trail: None,
+            in_database: c.in_database.clone(),
         }
     }
 
@@ -603,6 +647,7 @@ impl Record {
             input_alerts: Vec::new(),
             detectable: self.detectable.as_ref().map(Into::into),
             without_outliers: self.without_outliers.as_ref().map(Into::into),
+            in_database: self.in_database.clone(),
         })
     }
 

@@ -275,13 +275,20 @@ pub fn mardia(lot: &str, z: &DMatrix<f64>) -> Mardia {
         .map(|&(a, b)| if a == b { 1.0 } else { 2.0 })
         .collect();
     let nf = n as f64;
-    let pf = p as f64;
     let b1: f64 = tensor
         .column_iter()
         .zip(&weights)
         .map(|(col, w)| w * col.iter().map(|t| (t / nf) * (t / nf)).sum::<f64>())
         .sum();
     let b2 = b2_sum / nf;
+    mardia_from(lot, n, p, b1, b2)
+}
+
+/// Mardia's tests from `b1,p` and `b2,p` of a lot of `n` units and `p` characteristics (as
+/// computed inside a database from the whitened units' moments).
+pub fn mardia_from(lot: &str, n: usize, p: usize, b1: f64, b2: f64) -> Mardia {
+    let nf = n as f64;
+    let pf = p as f64;
     let skewness_stat = nf * b1 / 6.0;
     let skewness_df = pf * (pf + 1.0) * (pf + 2.0) / 6.0;
     let kurtosis_z = (b2 - pf * (pf + 2.0)) / (8.0 * pf * (pf + 2.0) / nf).sqrt();
@@ -318,13 +325,10 @@ pub struct Outlier {
 pub fn outliers(lot: usize, z: &DMatrix<f64>, alpha: f64) -> (f64, Vec<Outlier>) {
     let (n, p) = z.shape();
     let nf = n as f64;
-    let (a, b) = (p as f64 / 2.0, (nf - p as f64 - 1.0) / 2.0);
-    if b <= 0.0 {
+    let cutoff = outlier_cutoff(n, p, alpha);
+    if cutoff.is_nan() {
         return (f64::NAN, Vec::new());
     }
-    let scale = (nf - 1.0) * (nf - 1.0) / nf;
-    let q = dist::beta_isf(alpha / nf, a, b);
-    let cutoff = q * scale;
     // ‖zᵢ‖², accumulated a column at a time.
     let mut norms = vec![0.0; n];
     for col in z.column_iter() {
@@ -338,19 +342,34 @@ pub fn outliers(lot: usize, z: &DMatrix<f64>, alpha: f64) -> (f64, Vec<Outlier>)
         .filter_map(|(i, &r2)| {
             // ‖z‖² is on the divisor-n scale; d² on the divisor-(n−1) scale is (n−1)/n of it.
             let d2 = r2 * (nf - 1.0) / nf;
-            (d2 > cutoff).then(|| {
-                let u = (d2 / scale).min(1.0);
-                Outlier {
-                    lot,
-                    unit: i,
-                    d2,
-                    p_value: dist::inc_beta(a, b, u, 1.0 - u).1,
-                }
+            (d2 > cutoff).then(|| Outlier {
+                lot,
+                unit: i,
+                d2,
+                p_value: outlier_p(n, p, d2),
             })
         })
         .collect();
     out.sort_by(|x, y| y.d2.total_cmp(&x.d2));
     (cutoff, out)
+}
+
+/// The cutoff on d² (divisor n − 1) of [`outliers`]: NaN when the lot is too small.
+pub fn outlier_cutoff(n: usize, p: usize, alpha: f64) -> f64 {
+    let nf = n as f64;
+    let (a, b) = (p as f64 / 2.0, (nf - p as f64 - 1.0) / 2.0);
+    if b <= 0.0 {
+        return f64::NAN;
+    }
+    dist::beta_isf(alpha / nf, a, b) * (nf - 1.0) * (nf - 1.0) / nf
+}
+
+/// The upper-tail probability of a unit at squared distance `d2` (divisor n − 1).
+pub fn outlier_p(n: usize, p: usize, d2: f64) -> f64 {
+    let nf = n as f64;
+    let (a, b) = (p as f64 / 2.0, (nf - p as f64 - 1.0) / 2.0);
+    let u = (d2 / ((nf - 1.0) * (nf - 1.0) / nf)).min(1.0);
+    dist::inc_beta(a, b, u, 1.0 - u).1
 }
 
 /// The approximate-df test for unequal covariance matrices (record key `unequal_covariance`).

@@ -1,0 +1,558 @@
+//! The comparison computed inside the database: lotshift generates the aggregate statements
+//! ([`super::statements`]), runs them read-only and compares from the lots' moments. Nothing
+//! but the moments, Mardia's sums and the units beyond the outlier cutoff leaves the
+//! database. What needs every unit in memory is reported as not computed.
+
+use nalgebra::{DMatrix, DVector};
+
+use super::statements::{Plan, Whiten};
+use super::{QuerySource, ResultTable, Session, SourceError};
+use crate::analysis::{self, Comparison, InDatabase, LabelledOutlier, OutlierReport, Settings};
+use crate::data::{self, ColumnData, LoadErrorKind, LoadOptions, RawCell, match_key};
+use crate::stats::checks::{self, Outlier};
+use crate::stats::moments::{ColumnSummary, LotMoments};
+
+/// Mardia's moments are computed inside the database up to this many characteristics (the
+/// statement has one sum per triple a ≤ b ≤ c: 220 for 10).
+pub const MARDIA_MAX_P: usize = 10;
+
+/// At most this many units beyond the outlier cutoff are returned per lot.
+pub const OUTLIER_LIMIT: usize = 1000;
+
+/// Which characteristics to compare (by name, as for files).
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Choice {
+    /// Only these, in this order.
+    pub only: Option<Vec<String>>,
+    /// Leave these out.
+    pub exclude: Vec<String>,
+}
+
+/// One lot as counted inside the database.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CountedLot {
+    /// The lot value.
+    pub value: String,
+    /// Rows with this lot value.
+    pub rows_read: usize,
+    /// Units compared (every characteristic present).
+    pub n: usize,
+    /// Missing cells per characteristic.
+    pub missing: Vec<usize>,
+}
+
+/// The outcome: the comparison, the lots as counted and every statement that ran.
+#[derive(Debug, Clone)]
+pub struct Outcome {
+    /// The comparison.
+    pub comparison: Comparison,
+    /// Reference and candidate.
+    pub lots: [CountedLot; 2],
+    /// The characteristics' column names in the result.
+    pub columns: Vec<String>,
+    /// The statements, in the order they ran.
+    pub statements: Vec<String>,
+    /// The database and query.
+    pub source: QuerySource,
+}
+
+/// Why the in-database comparison stopped.
+#[derive(Debug, thiserror::Error)]
+pub enum AggregateError {
+    /// The database or the query.
+    #[error(transparent)]
+    Source(#[from] SourceError),
+    /// The engine.
+    #[error(transparent)]
+    Engine(#[from] crate::stats::EngineError),
+}
+
+fn load_error(source: &QuerySource, why: String) -> SourceError {
+    SourceError::Load(data::LoadError::new(
+        &format!("query result ({})", source.database.url()),
+        LoadErrorKind::Invalid(why),
+    ))
+}
+
+fn number(table: &ResultTable, row: usize, column: &str) -> Option<f64> {
+    let k = table
+        .columns
+        .iter()
+        .position(|c| c.eq_ignore_ascii_case(column))?;
+    match table.rows.get(row)?.get(k)? {
+        RawCell::Number(v) => Some(*v),
+        RawCell::Text(t) => t.trim().parse().ok(),
+        RawCell::Null => None,
+    }
+}
+
+/// The plan of a source: the characteristics (numeric columns, by the file rules on the
+/// first 1,000 rows), the label columns and the two lot values.
+///
+/// # Errors
+/// The query fails, the lot column is not in the result, the lots cannot be chosen.
+pub fn plan(
+    session: &mut Session,
+    source: &QuerySource,
+    options: &LoadOptions,
+    choice: &Choice,
+) -> Result<(Plan, Vec<Option<String>>, Vec<String>), SourceError> {
+    let body = source.query.trim().trim_end_matches(';');
+    let probe = session.query(&format!("SELECT * FROM (\n{body}\n) AS probe LIMIT 1000"))?;
+    let mut opts = options.clone();
+    opts.labels.push(source.lot_column.clone());
+    let name = format!("query result ({})", source.database.url());
+    let empty = data::Provenance {
+        path: name.clone(),
+        file_name: name.clone(),
+        sha256: String::new(),
+        size_bytes: 0,
+        format: source.database.kind().into(),
+        delimiter: None,
+        decimal_comma: false,
+        decimal_mark: String::new(),
+        encoding: None,
+        sheet: None,
+        split: None,
+        rows_read: 0,
+        notes: Vec::new(),
+        forced_labels: Vec::new(),
+        query: None,
+    };
+    let table = data::from_cells(
+        &name,
+        &probe.columns,
+        &probe.rows,
+        "result row",
+        &opts,
+        empty,
+    )?;
+    let lot_col = table
+        .column(&source.lot_column)
+        .ok_or_else(|| {
+            SourceError::Load(data::LoadError {
+                column: Some(source.lot_column.clone()),
+                ..data::LoadError::new(
+                    &name,
+                    LoadErrorKind::NoLotColumn {
+                        available: probe.columns.clone(),
+                    },
+                )
+            })
+        })?
+        .header
+        .clone();
+    let numeric: Vec<&data::Column> = table
+        .columns
+        .iter()
+        .filter(|c| c.is_numeric() && c.header != lot_col)
+        .collect();
+    let mut chosen: Vec<&data::Column> = match &choice.only {
+        Some(names) => {
+            let mut out = Vec::new();
+            for n in names {
+                let Some(c) = numeric.iter().find(|c| {
+                    match_key(&c.name) == match_key(n) || match_key(&c.header) == match_key(n)
+                }) else {
+                    return Err(load_error(
+                        source,
+                        format!("no numeric column \"{n}\" in the query's result"),
+                    ));
+                };
+                out.push(*c);
+            }
+            out
+        }
+        None => numeric.clone(),
+    };
+    chosen.retain(|c| {
+        !choice
+            .exclude
+            .iter()
+            .any(|e| match_key(e) == match_key(&c.name) || match_key(e) == match_key(&c.header))
+    });
+    if chosen.is_empty() {
+        return Err(load_error(
+            source,
+            "the query's result has no numeric column to compare".into(),
+        ));
+    }
+    let labels: Vec<String> = table
+        .columns
+        .iter()
+        .filter(|c| matches!(c.data, ColumnData::Text(_)) && c.header != lot_col)
+        .map(|c| c.header.clone())
+        .collect();
+    let lots = match &source.lot_values {
+        Some(v) => v.clone(),
+        None => {
+            let distinct = session.statement(
+                &format!(
+                    "SELECT DISTINCT CAST(q.{c} AS VARCHAR) AS lot FROM (\n{body}\n) AS q WHERE q.{c} IS NOT NULL LIMIT 51",
+                    c = super::statements::quote_ident(&lot_col)
+                ),
+                &[],
+            )?;
+            let mut values: Vec<String> = distinct
+                .rows
+                .iter()
+                .filter_map(|r| r.first().map(RawCell::text))
+                .collect();
+            // The order rows first show them in, where the first rows show both.
+            let seen = data::lot_values(&table, &lot_col).unwrap_or_default();
+            values.sort_by_key(|v| seen.iter().position(|s| s == v).unwrap_or(usize::MAX));
+            match values.as_slice() {
+                [a, b] => [a.clone(), b.clone()],
+                _ => {
+                    return Err(SourceError::Load(data::LoadError {
+                        column: Some(lot_col.clone()),
+                        ..data::LoadError::new(
+                            &name,
+                            LoadErrorKind::LotValues {
+                                why: match values.len() {
+                                    0 => "the lot column is empty".into(),
+                                    1 => "the lot column holds only one lot".into(),
+                                    _ => "the lot column holds more than two lots; choose two (--lot-values A,B)".into(),
+                                },
+                                values,
+                            },
+                        )
+                    }));
+                }
+            }
+        }
+    };
+    let plan = Plan {
+        query: body.to_string(),
+        lot_column: lot_col,
+        lots,
+        columns: chosen.iter().map(|c| c.header.clone()).collect(),
+        labels,
+    };
+    let names = chosen.iter().map(|c| c.name.clone()).collect();
+    let units = chosen.iter().map(|c| c.unit.clone()).collect();
+    Ok((plan, units, names))
+}
+
+/// Runs the comparison inside the database.
+///
+/// # Errors
+/// The database's refusal, a lot without units, text in a characteristic, the engine's error.
+pub fn compare_in_database(
+    source: &QuerySource,
+    password: Option<&str>,
+    options: &LoadOptions,
+    choice: &Choice,
+    settings: &Settings,
+) -> Result<Outcome, AggregateError> {
+    let mut session = source.database.connect(password)?;
+    let dialect = source.database.dialect();
+    let (plan, units, names) = plan(&mut session, source, options, choice)?;
+    let p = plan.columns.len();
+    let params = [plan.lots[0].as_str(), plan.lots[1].as_str()];
+    let mut statements = Vec::new();
+    let mut counted = Vec::with_capacity(2);
+    for g in 0..2 {
+        let sql = plan.counts(dialect, g);
+        let t = session.statement(&sql, &params[g..=g])?;
+        statements.push(sql);
+        let rows_read = number(&t, 0, "rows_read").unwrap_or(0.0) as usize;
+        if rows_read == 0 {
+            return Err(load_error(
+                source,
+                format!(
+                    "no row of the query's result has the lot value \"{}\" in \"{}\"",
+                    plan.lots[g], plan.lot_column
+                ),
+            )
+            .into());
+        }
+        let mut missing = Vec::with_capacity(p);
+        for k in 1..=p {
+            missing.push(number(&t, 0, &format!("missing_{k}")).unwrap_or(0.0) as usize);
+            if let Some(bad) = number(&t, 0, &format!("not_number_{k}"))
+                && bad > 0.0
+            {
+                return Err(load_error(
+                    source,
+                    format!(
+                        "column \"{}\" holds {} value{} in lot \"{}\" that {} not a number; \
+                         run without --in-database to see where",
+                        plan.columns[k - 1],
+                        bad as usize,
+                        if bad == 1.0 { "" } else { "s" },
+                        plan.lots[g],
+                        if bad == 1.0 { "is" } else { "are" }
+                    ),
+                )
+                .into());
+            }
+        }
+        counted.push(CountedLot {
+            value: plan.lots[g].clone(),
+            rows_read,
+            n: 0,
+            missing,
+        });
+    }
+    let sql = plan.moments(dialect);
+    let t = session.statement(&sql, &params)?;
+    statements.push(sql);
+    // Per lot: n, the pass-one mean (hi) and its correction (lo), SSP, min and max.
+    let mut parts = Vec::with_capacity(2);
+    for g in 0..2 {
+        let row = t
+            .rows
+            .iter()
+            .position(|r| r.first().map(RawCell::text).as_deref() == Some(plan.lots[g].as_str()));
+        let Some(row) = row else {
+            return Err(load_error(
+                source,
+                format!(
+                    "lot \"{}\" has no unit with every characteristic present",
+                    plan.lots[g]
+                ),
+            )
+            .into());
+        };
+        let get = |c: String| number(&t, row, &c).unwrap_or(f64::NAN);
+        let n = get("n".into()) as usize;
+        let hi: Vec<f64> = (1..=p).map(|k| get(format!("mean_{k}"))).collect();
+        let resid: Vec<f64> = (1..=p).map(|k| get(format!("resid_{k}"))).collect();
+        let lo: Vec<f64> = resid.iter().map(|r| r / n as f64).collect();
+        let min: Vec<f64> = (1..=p).map(|k| get(format!("min_{k}"))).collect();
+        let max: Vec<f64> = (1..=p).map(|k| get(format!("max_{k}"))).collect();
+        let mut ssp = DMatrix::<f64>::zeros(p, p);
+        for i in 0..p {
+            for j in i..p {
+                let s = get(format!("ssp_{}_{}", i + 1, j + 1)) - resid[i] * resid[j] / n as f64;
+                ssp[(i, j)] = s;
+                ssp[(j, i)] = s;
+            }
+        }
+        let finite = hi
+            .iter()
+            .chain(&resid)
+            .chain(&min)
+            .chain(&max)
+            .all(|v| v.is_finite())
+            && ssp.iter().all(|v| v.is_finite());
+        if !finite {
+            return Err(load_error(
+                source,
+                format!(
+                    "the sums of lot \"{}\" are not finite: a characteristic holds NaN or an \
+                     infinite value (in-database mode reads only NULL as a missing value)",
+                    plan.lots[g]
+                ),
+            )
+            .into());
+        }
+        counted[g].n = n;
+        parts.push((n, hi, lo, ssp, min, max));
+    }
+    let origin = DVector::from_vec(parts[0].1.clone());
+    let moments: Vec<LotMoments> = parts
+        .iter()
+        .map(|(n, hi, lo, ssp, min, max)| LotMoments {
+            n: *n,
+            origin: origin.clone(),
+            // (hi − origin) is exact for nearby doubles; the correction carries the rest.
+            offset: DVector::from_fn(p, |k, _| (hi[k] - origin[k]) + lo[k]),
+            ssp: ssp.clone(),
+            spread_scale: DVector::from_fn(p, |k, _| {
+                (min[k] - origin[k]).abs().max((max[k] - origin[k]).abs())
+            }),
+        })
+        .collect();
+    let summaries: Vec<[ColumnSummary; 2]> = (0..p)
+        .map(|k| {
+            [0, 1].map(|g| {
+                let (n, hi, lo, ssp, min, max) = &parts[g];
+                ColumnSummary {
+                    n: *n,
+                    mean: hi[k] + lo[k],
+                    sd: if *n > 1 {
+                        (ssp[(k, k)] / (*n - 1) as f64).sqrt()
+                    } else {
+                        f64::NAN
+                    },
+                    min: min[k],
+                    median: f64::NAN,
+                    max: max[k],
+                    decimals: None,
+                }
+            })
+        })
+        .collect();
+    let lot_names = [plan.lots[0].as_str(), plan.lots[1].as_str()];
+    let mut c = analysis::compare_moments(
+        &names,
+        &units,
+        lot_names,
+        [&moments[0], &moments[1]],
+        summaries,
+        settings,
+    )?;
+    let mut not_computed = vec![
+        "the leave-one-out misclassification rate".to_string(),
+        "the permutation p-value".to_string(),
+        "medians".to_string(),
+        "Shapiro–Wilk and the large-lot normality tests per characteristic".to_string(),
+        "the T² without the units flagged as outliers".to_string(),
+    ];
+    let mut db = InDatabase {
+        not_computed: Vec::new(),
+        outliers: Vec::new(),
+        outliers_truncated: false,
+    };
+    if settings.checks {
+        let mut report = OutlierReport {
+            cutoff: [f64::NAN; 2],
+            units: Vec::new(),
+        };
+        for g in 0..2 {
+            let (n, hi, lo, ssp, _, _) = &parts[g];
+            let Some(w) = whitening(*n, hi, lo, ssp) else {
+                continue;
+            };
+            if p <= MARDIA_MAX_P {
+                let sql = plan.mardia(dialect, g, &w);
+                let t = session.statement(&sql, &params[g..=g])?;
+                statements.push(sql);
+                let nf = *n as f64;
+                let mut b1 = 0.0;
+                for a in 1..=p {
+                    for b in a..=p {
+                        for cc in b..=p {
+                            let v =
+                                number(&t, 0, &format!("t_{a}_{b}_{cc}")).unwrap_or(f64::NAN) / nf;
+                            b1 += multiplicity(a, b, cc) * v * v;
+                        }
+                    }
+                }
+                let b2 = number(&t, 0, "r4").unwrap_or(f64::NAN) / nf;
+                c.mardia
+                    .push(checks::mardia_from(&plan.lots[g], *n, p, b1, b2));
+            }
+            let cutoff = checks::outlier_cutoff(*n, p, settings.alpha);
+            if cutoff.is_nan() {
+                continue;
+            }
+            report.cutoff[g] = cutoff;
+            let nf = *n as f64;
+            let sql = plan.outliers(dialect, g, &w, cutoff * nf / (nf - 1.0), OUTLIER_LIMIT);
+            let t = session.statement(&sql, &params[g..=g])?;
+            statements.push(sql);
+            if t.rows.len() >= OUTLIER_LIMIT {
+                db.outliers_truncated = true;
+            }
+            for (i, r) in t.rows.iter().enumerate() {
+                let r2 = number(&t, i, "r2").unwrap_or(f64::NAN);
+                let d2 = r2 * (nf - 1.0) / nf;
+                let p_value = checks::outlier_p(*n, p, d2);
+                report.units.push(Outlier {
+                    lot: g,
+                    unit: report.units.iter().filter(|u| u.lot == g).count(),
+                    d2,
+                    p_value,
+                });
+                db.outliers.push(LabelledOutlier {
+                    lot: g,
+                    d2,
+                    p_value,
+                    labels: plan
+                        .labels
+                        .iter()
+                        .zip(r)
+                        .map(|(l, v)| (l.clone(), v.text()))
+                        .collect(),
+                });
+            }
+        }
+        c.outliers = Some(report);
+        if p > MARDIA_MAX_P {
+            not_computed.push(format!(
+                "Mardia's tests (computed inside the database up to {MARDIA_MAX_P} characteristics)"
+            ));
+        }
+    }
+    db.not_computed = not_computed;
+    c.in_database = Some(db);
+    analysis::conclude_again(&mut c);
+    let [a, b] = <[CountedLot; 2]>::try_from(counted).expect("two lots");
+    Ok(Outcome {
+        comparison: c,
+        lots: [a, b],
+        columns: plan.columns.clone(),
+        statements,
+        source: source.clone(),
+    })
+}
+
+/// How many ordered triples the sorted triple a ≤ b ≤ c stands for.
+fn multiplicity(a: usize, b: usize, c: usize) -> f64 {
+    if a == b && b == c {
+        1.0
+    } else if a == b || b == c {
+        3.0
+    } else {
+        6.0
+    }
+}
+
+/// The whitening constants of a lot from its moments: the divisor-n covariance on the
+/// correlation scale, its Cholesky factor `L`, and `W = L⁻¹ D⁻¹`. The statement needs the
+/// coefficients themselves (a solve cannot be written into SQL), so `L⁻¹` is formed here,
+/// by forward substitution on the identity. `None` when the covariance is singular.
+fn whitening(n: usize, hi: &[f64], lo: &[f64], ssp: &DMatrix<f64>) -> Option<Whiten> {
+    let p = hi.len();
+    let cov = ssp / n as f64;
+    let sd: Vec<f64> = (0..p).map(|k| cov[(k, k)].sqrt()).collect();
+    if sd.iter().any(|s| !(s.is_finite() && *s > 0.0)) {
+        return None;
+    }
+    let corr = DMatrix::from_fn(p, p, |i, j| cov[(i, j)] / (sd[i] * sd[j]));
+    let l = nalgebra::Cholesky::new(corr)?.l();
+    let linv = l.solve_lower_triangular(&DMatrix::identity(p, p))?;
+    let w = (0..p)
+        .map(|a| {
+            (0..p)
+                .map(|b| if b <= a { linv[(a, b)] / sd[b] } else { 0.0 })
+                .collect()
+        })
+        .collect();
+    Some(Whiten {
+        w,
+        mean_hi: hi.to_vec(),
+        mean_lo: lo.to_vec(),
+    })
+}
+
+/// The record of an in-database comparison: each lot's source (no row hash: no row left the
+/// database), rows read, units compared and missing cells as counted there.
+pub fn record(
+    c: &Comparison,
+    lots: &[CountedLot; 2],
+    source: &QuerySource,
+) -> crate::report::Record {
+    let mut r = crate::report::Record::new(c, None);
+    for (rec, lot) in r.lots.iter_mut().zip(lots) {
+        rec.file = Some(source.database.url().to_string());
+        rec.split = Some((source.lot_column.clone(), lot.value.clone()));
+        rec.n_read = lot.rows_read;
+        rec.n_excluded = lot.rows_read.saturating_sub(lot.n);
+        rec.missing = lot.missing.clone();
+        rec.source = Some(crate::report::SourceRecord {
+            kind: source.database.kind().to_string(),
+            url: source.database.url().to_string(),
+            query: source.query.clone(),
+            lot_column: source.lot_column.clone(),
+            lot_value: lot.value.clone(),
+            rows_read: lot.rows_read,
+            rows_sha256: None,
+            in_database: true,
+        });
+    }
+    r
+}
