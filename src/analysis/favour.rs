@@ -32,7 +32,16 @@ pub fn checks_not_computed(c: &Comparison) -> Vec<String> {
             c.lots[0].n, c.lots[1].n
         ));
     }
-    let unit_data = c.discriminant.scores.is_some();
+    if let Some(db) = &c.in_database {
+        out.push(format!(
+            "computed inside the database, where these need every unit: {}",
+            db.not_computed.join("; ")
+        ));
+        if c.mardia.is_empty() {
+            return out;
+        }
+    }
+    let unit_data = c.discriminant.scores.is_some() || c.in_database.is_some();
     if !unit_data {
         out.push("Mardia's tests, Shapiro–Wilk and the outlier screen need unit data".into());
         return out;

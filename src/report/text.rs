@@ -684,7 +684,27 @@ fn checks_text(s: &mut String, c: &Comparison, record: Option<&super::Record>) {
             count(1),
             format_sig(o.cutoff[1], 4)
         );
-        if let Some(located) = record.and_then(|r| r.outliers.as_ref()) {
+        if let Some(db) = &c.in_database {
+            for u in &db.outliers {
+                let labels: Vec<String> =
+                    u.labels.iter().map(|(k, v)| format!("{k} {v}")).collect();
+                let _ = writeln!(
+                    s,
+                    "    lot {}: {}: d² = {}, {}",
+                    u.lot + 1,
+                    if labels.is_empty() {
+                        "a unit without labels".to_string()
+                    } else {
+                        labels.join(", ")
+                    },
+                    format_sig(u.d2, 4),
+                    p_text(u.p_value)
+                );
+            }
+            if db.outliers_truncated {
+                let _ = writeln!(s, "    (the list stops at the first 1,000 per lot)");
+            }
+        } else if let Some(located) = record.and_then(|r| r.outliers.as_ref()) {
             for u in &located.units {
                 let labels = crate::data::label_text(&u.labels);
                 let _ = writeln!(
@@ -723,4 +743,11 @@ fn checks_text(s: &mut String, c: &Comparison, record: Option<&super::Record>) {
         let _ = writeln!(s, "  Permutation p-value: {}", permutation_line(p));
     }
     let _ = writeln!(s, "  Favoured: {} — {}", c.favoured.test, c.favoured.why);
+    if let Some(db) = &c.in_database {
+        let _ = writeln!(
+            s,
+            "  Computed inside the database from aggregate statements; not computed this way              (they need every unit): {}",
+            db.not_computed.join("; ")
+        );
+    }
 }
