@@ -3,11 +3,19 @@
 #[allow(unused_imports)]
 use super::*;
 
+use crate::report::trust;
+
 pub(super) fn verify(a: VerifyArgs) -> CliResult {
     let text =
         std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
-    let expected = match &a.key {
-        Some(k) => Some(sign::read_verifying_key(k)?),
+    let expected = a
+        .key
+        .iter()
+        .map(|k| sign::read_verifying_key(k))
+        .collect::<Result<Vec<_>, _>>()?;
+    // A list that cannot be read is bad input (exit 2), found before anything is judged.
+    let trusted = match &a.trusted {
+        Some(path) => Some(trust::read_trusted(path)?),
         None => None,
     };
     let fail = |why: String| -> CliResult {
@@ -15,29 +23,126 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         eprintln!("lotshift: {}: not verified: {why}", a.file.display());
         Ok(ExitCode::from(EXIT_NOT_VERIFIED))
     };
-    let summary = match sign::verify_signature(&text, expected.as_ref()) {
+    let summary = match sign::verify_sequence(&text) {
         Ok(s) => s,
         Err(e) => return fail(e.to_string()),
     };
-    let sig = &summary.signature;
-    outln!(
-        "signature    valid: signed by {} on {} (UTC), meaning {}, key {}",
-        sig.signer,
-        sig.signed_at,
-        sig.meaning,
-        sig.key_fingerprint
-    );
-    if expected.is_some() {
-        outln!("signer key   matches the expected public key");
+    for exp in &expected {
+        let want = sign::fingerprint(exp);
+        if !summary.signatures.iter().any(|s| s.key_fingerprint == want) {
+            return fail(
+                sign::VerifyError::WrongKey {
+                    found: summary
+                        .signatures
+                        .iter()
+                        .map(|s| s.key_fingerprint.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                    expected: want,
+                }
+                .to_string(),
+            );
+        }
+    }
+    // What keeps the summary from being verified without being wrong: each in words.
+    let mut short: Vec<String> = Vec::new();
+    let n = summary.signatures.len();
+    if summary.schema == sign::SIGNED_SCHEMA_V1 {
+        outln!("summary      schema {} (one signature)", summary.schema);
     } else {
         outln!(
-            "signer key   not checked against an expected key (give --key PUB to check who signed)"
+            "summary      schema {}: {n} signature{} in sequence, each covering the record and every earlier signature",
+            summary.schema,
+            if n == 1 { "" } else { "s" }
         );
     }
+    for (k, sig) in summary.signatures.iter().enumerate() {
+        let comment = match sig.comment.as_deref().map(str::trim) {
+            Some(c) if !c.is_empty() => format!(", comment \"{c}\""),
+            _ => String::new(),
+        };
+        outln!(
+            "signature {}  valid: signed by {} on {} (UTC), meaning {}, key {}{comment}",
+            k + 1,
+            sig.signer,
+            sig.signed_at,
+            sig.meaning,
+            sig.key_fingerprint
+        );
+    }
+    for note in sign::order_notes(&summary.signatures) {
+        outln!("note         {note}");
+    }
+    if !expected.is_empty() {
+        outln!(
+            "signer key   the expected public key{} made a signature",
+            if expected.len() == 1 { "" } else { "s each" }
+        );
+    }
+    match &trusted {
+        None => short.push(
+            "no trusted-signers list was given (--trusted FILE): who signed is not established"
+                .into(),
+        ),
+        Some(list) => {
+            let path = a
+                .trusted
+                .as_ref()
+                .map(|p| p.display().to_string())
+                .unwrap_or_default();
+            outln!(
+                "trusted list {path} ({} signers, SHA-256 {})",
+                list.list.signers.len(),
+                list.sha256
+            );
+            for (k, sig) in summary.signatures.iter().enumerate() {
+                let at = format!("signature {} ({} by {})", k + 1, sig.meaning, sig.signer);
+                match list.list.standing(sig) {
+                    trust::Standing::Trusted => outln!(
+                        "signer       {at}: in the trusted list under that name, as {}",
+                        trust::Role::for_meaning(sig.meaning).as_str()
+                    ),
+                    trust::Standing::UnknownKey => short.push(format!(
+                        "{at}: the key {} is not in the trusted list {path}",
+                        sig.key_fingerprint
+                    )),
+                    trust::Standing::NameDiffers { listed } => short.push(format!(
+                        "{at}: the trusted list has this key under the printed name \"{listed}\", not \"{}\"",
+                        sig.signer
+                    )),
+                    trust::Standing::RoleMissing { listed } => short.push(format!(
+                        "{at}: the trusted list does not let this signer sign as {} (roles: {})",
+                        trust::Role::for_meaning(sig.meaning).as_str(),
+                        listed.iter().map(|r| r.as_str()).collect::<Vec<_>>().join(", ")
+                    )),
+                }
+            }
+        }
+    }
+    let partial = |short: &[String]| -> CliResult {
+        outln!(
+            "PARTIALLY VERIFIED: every signature is valid, but the summary is short of verified in {} way{}:",
+            short.len(),
+            if short.len() == 1 { "" } else { "s" }
+        );
+        for s in short {
+            outln!("  - {s}");
+        }
+        eprintln!(
+            "lotshift: {}: partially verified (exit status {EXIT_PARTIALLY_VERIFIED}, not verified): {}",
+            a.file.display(),
+            short.join("; ")
+        );
+        Ok(ExitCode::from(EXIT_PARTIALLY_VERIFIED))
+    };
     if a.files.is_empty() {
         outln!("lot files    not checked (give --files to check them and recompute every number)");
-        outln!("VERIFIED (signature only)");
-        return Ok(ExitCode::SUCCESS);
+        short.push(
+            "the lot files were not given (--files): their SHA-256 were not checked and no \
+             number was recomputed"
+                .into(),
+        );
+        return partial(&short);
     }
     let rec = &summary.record;
     // The record, typed: a record that does not parse is reported, never read with defaults.
@@ -161,6 +266,9 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         return fail(format!("a recomputed number differs: {diff}"));
     }
     outln!("recomputed   every number in the record matches the lot files");
+    if !short.is_empty() {
+        return partial(&short);
+    }
     outln!("VERIFIED");
     Ok(ExitCode::SUCCESS)
 }
@@ -173,26 +281,32 @@ pub(super) fn report_html(a: ReportArgs) -> CliResult {
         serde_json::from_str(&text).map_err(|e| format!("{}: not JSON: {e}", a.file.display()))?;
     // Typed: a file that does not parse as a record is refused with the reason, never drawn
     // with the missing parts left out.
-    let html = if doc.get("signature").is_some() && doc.get("record").is_some() {
+    let html = if (doc.get("signature").is_some() || doc.get("signatures").is_some())
+        && doc.get("record").is_some()
+    {
         let record = Record::deserialize(&doc["record"]).map_err(|e| {
             format!(
                 "{}: the signed summary does not hold a comparison record lotshift can read: {e}",
                 a.file.display()
             )
         })?;
-        let signature = sign::SignatureBlock::deserialize(&doc["signature"]).map_err(|e| {
+        let blocks = match doc.get("signatures") {
+            Some(list) => Vec::<sign::SignatureBlock>::deserialize(list),
+            None => sign::SignatureBlock::deserialize(&doc["signature"]).map(|b| vec![b]),
+        }
+        .map_err(|e| {
             format!(
-                "{}: the signed summary's signature block cannot be read: {e}",
+                "{}: the signed summary's signature blocks cannot be read: {e}",
                 a.file.display()
             )
         })?;
-        match sign::verify_signature(&text, None) {
+        match sign::verify_sequence(&text) {
             Ok(_) => eprintln!(
-                "lotshift: the signature verifies (use lotshift verify to check the lot files too)"
+                "lotshift: the signatures verify (use lotshift verify --trusted to check who signed and the lot files)"
             ),
             Err(e) => eprintln!("lotshift: warning: {e}"),
         }
-        html::render_html(&record, Some(&signature))
+        html::render_html_signed(&record, &blocks)
     } else if doc.get("schema").and_then(|s| s.as_str()) == Some(report::SCHEMA) {
         let record = Record::deserialize(&doc).map_err(|e| {
             format!(

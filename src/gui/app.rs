@@ -148,6 +148,8 @@ impl LotshiftApp {
             Action::PickSigningKey => self.worker.choose(Purpose::SigningKey),
             Action::PickKeyFolder => self.worker.choose(Purpose::KeyFolder),
             Action::Sign(to) => self.sign(to),
+            Action::AddSignature(Some(path)) => self.add_signature(path),
+            Action::AddSignature(None) => self.worker.choose(Purpose::SummaryToSign),
             Action::PickSummary => self.worker.choose(Purpose::Summary),
             Action::CheckSummary(path) => self.check_summary(&path),
             Action::Dismiss(k) => {
@@ -397,11 +399,12 @@ impl LotshiftApp {
     fn chosen(&mut self, purpose: Purpose, path: PathBuf) {
         match purpose {
             Purpose::SigningKey => self.worker.read_key(path),
-            Purpose::KeyFolder => match signing::key_folder_signer(self.signing.as_ref()) {
-                Ok(name) => self.worker.create_key(path, name),
+            Purpose::KeyFolder => match signing::key_folder_signer(self.signing.as_mut()) {
+                Ok((name, passphrase)) => self.worker.create_key(path, name, passphrase),
                 Err(why) => self.form_problem(why),
             },
             Purpose::Summary => self.check_summary(&path),
+            Purpose::SummaryToSign => self.add_signature(path),
             Purpose::Specification => self.load_spec_path(path),
         }
     }
@@ -436,6 +439,18 @@ impl LotshiftApp {
         };
         match signing::sign_job(form, &self.saved, shown, to) {
             Ok(job) => self.worker.sign(job),
+            Err(why) => self.form_problem(why),
+        }
+    }
+
+    /// Adds a signature with the form's name, meaning, comment and key to the signed summary
+    /// at `path` (in the background; the file is rewritten atomically, or left as it was).
+    fn add_signature(&mut self, path: PathBuf) {
+        let Some(form) = &mut self.signing else {
+            return;
+        };
+        match signing::add_job(form, &self.saved, path) {
+            Ok(job) => self.worker.add_signature(job),
             Err(why) => self.form_problem(why),
         }
     }

@@ -69,8 +69,14 @@ fn page_footer() -> String {
     )
 }
 
-/// Renders a record (`signature` absent) or a signed summary as one HTML page.
+/// Renders a record (`signature` absent) or a summary with one signature as one HTML page.
 pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> String {
+    render_html_signed(record, signature.map_or(&[][..], std::slice::from_ref))
+}
+
+/// Renders a record (no `signatures`) or a signed summary (its signatures, in order) as one
+/// HTML page.
+pub fn render_html_signed(record: &Record, signatures: &[SignatureBlock]) -> String {
     let r = record;
     let mut h = String::new();
     let lot_name = |i: usize| lot_name(r, i);
@@ -117,25 +123,39 @@ pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> Strin
     h.push_str(&pair_chart(r));
     checks_section(&mut h, r);
     let _ = writeln!(h, "<p class=\"caution\">{}</p>", esc(CAUTION));
-    match signature {
-        Some(s) => {
-            let _ = writeln!(
-                h,
-                "<div class=\"signature\" id=\"signature\"><b>Electronically signed</b><br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b><br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of the record and this signature manifestation. Check it with <code>lotshift verify SUMMARY.json --files REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
-                esc(&s.signer),
-                esc(&s.signed_at),
-                esc(s.meaning.as_str()),
-                esc(&s.key_fingerprint),
-                esc(&s.algorithm),
-                esc(&s.canonicalization)
-            );
-        }
-        None => {
-            let _ = writeln!(
-                h,
-                "<div class=\"signature\" id=\"signature\">Not signed.</div>"
-            );
-        }
+    if signatures.is_empty() {
+        let _ = writeln!(
+            h,
+            "<div class=\"signature\" id=\"signature\">Not signed.</div>"
+        );
+    }
+    let n = signatures.len();
+    for (k, s) in signatures.iter().enumerate() {
+        let id = if k == 0 {
+            "signature".to_string()
+        } else {
+            format!("signature-{}", k + 1)
+        };
+        let comment = match s.comment.as_deref().map(str::trim) {
+            Some(c) if !c.is_empty() => format!("<br>Comment: {}", esc(c)),
+            _ => String::new(),
+        };
+        let covers = if k == 0 {
+            "the record and this signature manifestation"
+        } else {
+            "the record, every earlier signature and this signature manifestation"
+        };
+        let _ = writeln!(
+            h,
+            "<div class=\"signature\" id=\"{id}\"><b>Electronically signed</b> (signature {} of {n})<br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b>{comment}<br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of {covers}. Check it with <code>lotshift verify SUMMARY.json --trusted SIGNERS.json --files REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
+            k + 1,
+            esc(&s.signer),
+            esc(&s.signed_at),
+            esc(s.meaning.as_str()),
+            esc(&s.key_fingerprint),
+            esc(&s.algorithm),
+            esc(&s.canonicalization)
+        );
     }
     h.push_str("</body></html>\n");
     h
@@ -1007,10 +1027,10 @@ mod tests {
             "2026-12-02T03:30:00Z",
         )
         .unwrap();
-        let html = render_html(&r, Some(&s.signature));
+        let html = render_html_signed(&r, &s.signatures);
         assert!(html.contains("Signed by: <b>A. &lt;Engineer&gt;</b>"));
         assert!(html.contains("Meaning of the signature: <b>approval</b>"));
-        assert!(html.contains(&s.signature.key_fingerprint));
+        assert!(html.contains(&s.signatures[0].key_fingerprint));
         assert!(render_html(&r, None).contains("Not signed."));
     }
 }

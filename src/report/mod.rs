@@ -6,6 +6,7 @@ mod record;
 pub mod sections;
 pub mod sign;
 mod text;
+pub mod trust;
 
 pub use canonical::{CanonicalError, canonical_bytes};
 pub use record::{CAUTION, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, Software};

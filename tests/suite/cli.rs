@@ -440,15 +440,26 @@ fn every_command_line_in_the_readme_runs() {
     let home = dir.join("home");
     std::fs::create_dir_all(&home).unwrap();
     let bin = env!("CARGO_BIN_EXE_lotshift");
+    // Standard input holds a passphrase, as a script gives it to `--passphrase-file -` (the
+    // README's key lines read it there; the other commands leave it unread).
     let sh = |line: &str| {
-        Command::new("sh")
+        let mut child = Command::new("sh")
             .arg("-c")
             .arg(line)
             .current_dir(&dir)
             .env("L", bin)
             .env("HOME", &home)
-            .output()
-            .unwrap()
+            .stdin(std::process::Stdio::piped())
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        if let Some(mut stdin) = child.stdin.take() {
+            use std::io::Write as _;
+            // A command that never reads closes the pipe: not an error here.
+            let _ = stdin.write_all(b"readme example passphrase\n");
+        }
+        child.wait_with_output().unwrap()
     };
     for line in &commands {
         let o = sh(line);

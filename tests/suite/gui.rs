@@ -311,7 +311,9 @@ fn a_summary_signed_in_the_window_from_a_split_file_verifies_on_the_command_line
         .output()
         .unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(out.status.success(), "{text}");
+    // Every number matches; without a trusted-signers list the summary is only partially
+    // verified (exit status 3).
+    assert_eq!(out.status.code(), Some(3), "{text}");
     assert!(
         text.contains("every number in the record matches"),
         "{text}"
@@ -581,7 +583,9 @@ fn a_specification_saved_from_the_window_is_what_the_record_names() {
         .output()
         .unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(out.status.success(), "{text}");
+    // Every number matches; without a trusted-signers list the summary is only partially
+    // verified (exit status 3).
+    assert_eq!(out.status.code(), Some(3), "{text}");
     assert!(
         text.contains("every number in the record matches"),
         "{text}"
@@ -636,7 +640,7 @@ fn signing_runs_in_the_background_and_delivers_its_outcome() {
     let dir = std::env::temp_dir().join(format!("lotshift-gui-worker-sign-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
-    let key = sign::keygen(&dir, "signing-key", "Dana Whitfield").unwrap();
+    let key = sign::keygen(&dir, "signing-key", "Dana Whitfield", "a long passphrase").unwrap();
     h.state_mut().saved.signing_key = Some(key.display().to_string());
     // Opening the form does not touch the disk: the key is looked at in the background.
     h.state_mut().apply(Action::OpenSigning);
@@ -650,12 +654,16 @@ fn signing_runs_in_the_background_and_delivers_its_outcome() {
     {
         let form = h.state().signing.as_ref().unwrap();
         assert_eq!(form.key, KeyStatus::Ready(key.display().to_string()));
+        assert_eq!(form.protected, Some(true));
         assert_eq!(
             form.signer, "Dana Whitfield",
             "the name stored beside the key"
         );
     }
     h.get_by_label_contains("signing key: ");
+    // The key is protected: the form asks for its passphrase (a password field).
+    h.get_by_label("passphrase of the key");
+    h.state_mut().signing.as_mut().unwrap().passphrase = "a long passphrase".into();
     // Signing: the action returns at once, with the signature still to be made.
     let out = dir.join("signed.json");
     h.state_mut().apply(Action::Sign(Some(out.clone())));
@@ -672,14 +680,55 @@ fn signing_runs_in_the_background_and_delivers_its_outcome() {
     let notice = state.notice.clone().unwrap_or_default();
     assert!(notice.contains("Record written to"), "{notice}");
     let summary = sign::verify_signature(&std::fs::read_to_string(&out).unwrap(), None).unwrap();
-    assert_eq!(summary.signature.signer, "Dana Whitfield");
-    assert_eq!(summary.signature.meaning.as_str(), "review");
+    assert_eq!(summary.signatures[0].signer, "Dana Whitfield");
+    assert_eq!(summary.signatures[0].meaning.as_str(), "review");
     // Checked in the window (also in the background): the numbers are the current result's.
     h.state_mut().apply(Action::CheckSummary(out.clone()));
     assert!(!h.state().worker.idle());
     settle(&mut h);
     h.get_by_label_contains("signature valid — signed by Dana Whitfield");
     h.get_by_label_contains("every number matches the current result");
+    // A second signature added to the opened summary, in the background: first with a wrong
+    // passphrase (the file stays as it was), then with the right one.
+    let before = std::fs::read(&out).unwrap();
+    for (pass, added) in [("not the passphrase", false), ("a long passphrase", true)] {
+        h.state_mut().apply(Action::OpenSigning);
+        settle(&mut h);
+        {
+            let form = h.state_mut().signing.as_mut().unwrap();
+            form.meaning = lotshift::report::sign::Meaning::Approval;
+            form.comment = "approved for the trial".into();
+            form.passphrase = pass.into();
+        }
+        h.state_mut().apply(Action::AddSignature(Some(out.clone())));
+        assert!(!h.state().worker.idle());
+        settle(&mut h);
+        let state = h.state();
+        if added {
+            assert!(state.signing.is_none(), "the form closes once signed");
+            let notice = state.notice.clone().unwrap_or_default();
+            assert!(
+                notice.contains("Signature 2 (approval by Dana Whitfield) added"),
+                "{notice}"
+            );
+        } else {
+            let problem = state
+                .signing
+                .as_ref()
+                .unwrap()
+                .problem
+                .clone()
+                .unwrap_or_default();
+            assert!(problem.contains("the passphrase is wrong"), "{problem}");
+            assert_eq!(std::fs::read(&out).unwrap(), before);
+        }
+    }
+    let summary = sign::verify_signature(&std::fs::read_to_string(&out).unwrap(), None).unwrap();
+    assert_eq!(summary.signatures.len(), 2);
+    assert_eq!(
+        summary.signatures[1].comment.as_deref(),
+        Some("approved for the trial")
+    );
     let _ = std::fs::remove_dir_all(dir);
 }
 
@@ -737,6 +786,11 @@ fn a_key_is_created_in_the_background_for_the_name_typed() {
     h.run_steps(2);
     h.get_by_label_contains("Type your printed name first");
     h.state_mut().signing.as_mut().unwrap().signer = "Dana Whitfield".into();
+    // Then a passphrase, which protects the new key.
+    h.state_mut().absorb(vec![chosen()]);
+    h.run_steps(2);
+    h.get_by_label_contains("Type a passphrase of at least 8 characters first");
+    h.state_mut().signing.as_mut().unwrap().passphrase = "a long passphrase".into();
     h.state_mut().absorb(vec![chosen()]);
     assert!(
         !h.state().worker.idle(),
