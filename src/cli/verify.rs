@@ -51,9 +51,15 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         outln!("summary      schema {} (one signature)", summary.schema);
     } else {
         outln!(
-            "summary      schema {}: {n} signature{} in sequence, each covering the record and every earlier signature",
+            "summary      schema {}: {}",
             summary.schema,
-            if n == 1 { "" } else { "s" }
+            if n == 1 {
+                "1 signature, covering the record".to_string()
+            } else {
+                format!(
+                    "{n} signatures in sequence, each covering the record and every earlier signature"
+                )
+            }
         );
     }
     for (k, sig) in summary.signatures.iter().enumerate() {
@@ -129,7 +135,7 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
             outln!("  - {s}");
         }
         eprintln!(
-            "lotshift: {}: partially verified (exit status {EXIT_PARTIALLY_VERIFIED}, not verified): {}",
+            "lotshift: {}: only partially verified (exit status {EXIT_PARTIALLY_VERIFIED}): {}",
             a.file.display(),
             short.join("; ")
         );
