@@ -2,14 +2,19 @@
 //! Mardia's skewness through the third-moment tensor (O(n·p³)) against the pair-sum
 //! definition (O(n²·p), run on a subsample and extrapolated by (n/m)², stated in the table),
 //! and the permutation test by group sums against refitting T² for every relabelling (run on
-//! the first relabellings and extrapolated linearly; both give identical counts on them).
+//! the first relabellings and extrapolated linearly; both give identical counts on them), and
+//! on a shifted 2 x 200,000 x 30 pair the sequential decision (default stopping rules) against
+//! 9,999 full relabellings (timed at 1,000 and 2,000 and extrapolated linearly to 9,999).
 //!
 //! Run: `cargo bench --bench checks_speed`.
 
 use std::time::Instant;
 
 use lotshift::stats::checks::{mardia, whiten_in_place};
-use lotshift::stats::permutation::{SplitMix64, permutation_test_data, permutation_test_refit};
+use lotshift::stats::permutation::{
+    Sequential, SplitMix64, StoppedBy, permutation_test_data, permutation_test_data_sequential,
+    permutation_test_refit,
+};
 use nalgebra::DMatrix;
 
 fn normal_matrix(n: usize, p: usize, seed: u64) -> DMatrix<f64> {
@@ -108,5 +113,36 @@ fn main() {
         slow_s,
         ratio,
         if ratio >= 20.0 { ">=20 ok" } else { "MISSED" }
+    );
+    // Sequential decision on a shifted pair of big lots against 9,999 full relabellings.
+    let (n, p) = (200_000, 30);
+    let a = normal_matrix(n, p, 4);
+    let b = normal_matrix(n, p, 5).add_scalar(0.02);
+    let rule = Sequential::default();
+    let t = Instant::now();
+    let seq =
+        permutation_test_data_sequential(&a, &b, 9_999, 12, Some(&rule), 0.05).expect("sequential");
+    let seq_s = t.elapsed().as_secs_f64();
+    assert_eq!(seq.stopped_by, StoppedBy::LowerBoundary, "{seq:?}");
+    let time_full = |k: usize| {
+        let t = Instant::now();
+        let r = permutation_test_data(&a, &b, k, 12).expect("full");
+        (t.elapsed().as_secs_f64(), r)
+    };
+    let (t1, _) = time_full(1_000);
+    let (t2, full) = time_full(2_000);
+    let full_s = t2 + (t2 - t1) * (9_999.0 - 2_000.0) / 1_000.0;
+    assert!(full.p_value < 0.05, "the full draws decide the same way");
+    let ratio = full_s / seq_s;
+    println!(
+        "{:<58} {:>12.3} {:>14.1} {:>9.0} {:>8}",
+        format!(
+            "sequential permutation decision, 2 x 200000 x 30 ({} draws)",
+            seq.drawn
+        ),
+        seq_s,
+        full_s,
+        ratio,
+        if ratio >= 10.0 { ">=10 ok" } else { "MISSED" }
     );
 }

@@ -248,9 +248,30 @@ def write_spec():
     write("hub-spec.csv", "\n".join(lines) + "\n")
 
 
+def write_protocol():
+    # The comparison fixed before the route B lot was measured: the lots, the characteristics,
+    # the settings and the specification, and what the comparison is for.
+    import json
+    protocol = {
+        "schema": "lotshift.protocol/1",
+        "title": "HX40 hub: route B against route A before release of route B",
+        "lots": {"reference": "reference-route-a.csv", "candidate": "candidate-route-b.csv"},
+        "characteristics": [row[0] for row in SPEC],
+        "settings": {"alpha": 0.05, "permutations": 999, "seed": 20261105},
+        "specification": {"file": "hub-spec.csv"},
+        "fields": [
+            {"name": "part", "value": "HX40 hub (invented demo part)"},
+            {"name": "change request", "value": "CR-0193 (demo)"},
+            {"name": "purpose", "value": "Qualify machining route B before it replaces route A"},
+        ],
+    }
+    write("hub-protocol.json", json.dumps(protocol, indent=2, ensure_ascii=False) + "\n")
+
+
 def main():
     write_certificate()
     write_spec()
+    write_protocol()
     seed = pick_seed()
     rng = random.Random(seed)
     a = draw_lot(rng, 40, [0.0] * 5)

@@ -13,5 +13,6 @@ pub mod format;
 pub mod gui;
 pub mod palette;
 pub mod pipeline;
+pub mod protocol;
 pub mod report;
 pub mod stats;

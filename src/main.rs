@@ -9,10 +9,16 @@ fn main() -> ExitCode {
     match cli.command {
         Some(command) => lotshift::cli::run(command),
         #[cfg(feature = "gui")]
-        None => lotshift::gui::run_with_spec(cli.files, cli.screenshot, cli.view, cli.spec),
+        None => lotshift::gui::run_with_spec(
+            cli.files,
+            cli.screenshot,
+            cli.view,
+            cli.spec,
+            cli.protocol,
+        ),
         #[cfg(not(feature = "gui"))]
         None => {
-            let _ = (cli.files, cli.screenshot, cli.view, cli.spec);
+            let _ = (cli.files, cli.screenshot, cli.view, cli.spec, cli.protocol);
             eprintln!(
                 "lotshift: this build has no window (built without the \"gui\" feature); see lotshift --help"
             );

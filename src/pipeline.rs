@@ -184,15 +184,29 @@ pub fn run_owned(
 /// loaded for the next run).
 ///
 /// # Errors
-/// Unmatched columns, or units set aside (the window sets none aside yet: refused rather
-/// than ignored).
+/// Unmatched columns, or a unit set aside that is not in its lot.
 pub fn prepare_shared(lots: &[Arc<Lot>; 2], request: &Request) -> Result<Prepared, PipelineError> {
-    if !request.exclusions.is_empty() {
-        return Err(PipelineError::Exclusion(
-            "setting units aside is not available in the window yet".into(),
-        ));
-    }
-    let prepared = data::prepare(&lots[0], &lots[1], &request.selection)?;
+    let prepared = if request.exclusions.is_empty() {
+        data::prepare(&lots[0], &lots[1], &request.selection)?
+    } else {
+        // Prepare the units kept, then point each kept unit back at its place in the lot as
+        // read (the lots stay whole for the next run; labels and rows come from them).
+        let both = [lots[0].as_ref(), lots[1].as_ref()];
+        let keep =
+            exclusions::kept_units(both, &request.exclusions).map_err(PipelineError::Exclusion)?;
+        let kept = [
+            lots[0].select_units(&keep[0]),
+            lots[1].select_units(&keep[1]),
+        ];
+        let mut prepared = data::prepare(&kept[0], &kept[1], &request.selection)?;
+        for (pl, keep) in prepared.lots.iter_mut().zip(&keep) {
+            for k in &mut pl.kept {
+                *k = keep[*k];
+            }
+        }
+        prepared.exclusions = request.exclusions.clone();
+        prepared
+    };
     check_strict(request, &prepared)?;
     Ok(prepared)
 }

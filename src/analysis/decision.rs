@@ -6,8 +6,7 @@
 //! outside the limits, taken by [`observe`] from the units as measured.
 //!
 //! Sign convention: equivalence is about the candidate lot relative to the reference lot, so
-//! every difference and margin here is **candidate − reference** (the opposite of the T²
-//! section, whose difference is reference − candidate).
+//! every difference and margin here is **candidate − reference**, as in the T² section.
 //!
 //! One job, kept in one file: every step from a specification to the four-way outcome, in the order it runs.
 
@@ -508,8 +507,8 @@ pub fn assess(
     let mut rows = Vec::new();
     for (k, e) in spec.characteristics.iter().enumerate() {
         let Some(margin) = e.margin else { continue };
-        // Candidate − reference, from the cancellation-free difference of the T² section.
-        let d = -c.per_characteristic[k].difference;
+        // Candidate − reference, the cancellation-free difference of the T² section.
+        let d = c.per_characteristic[k].difference;
         let reference = SampleStats {
             n: n1,
             mean: 0.0,

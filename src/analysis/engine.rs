@@ -210,14 +210,18 @@ fn compare_centred(
     )?;
     // Unit-level results: scores, apparent and holdout errors.
     let pooled = Pooled::new(&m1, &m2, characteristics)?;
+    // `a = Sp⁻¹ (x̄2 − x̄1)`: a score grows toward the candidate; a unit goes to the candidate
+    // when its score is above zero, to the reference otherwise.
     let a = DVector::from_vec(out.discriminant.coefficients.clone());
+    // Reference − candidate: the direction the holdout count (`discriminant`) is written in,
+    // and twice the reference mean's offset from the midpoint.
     let d = &m1.offset - &m2.offset;
     let half = &d * 0.5;
     let s1 = discriminant::scores(&c1, &a, &half);
     let s2 = discriminant::scores(&c2, &a, &(-&half));
     let apparent = [
-        s1.iter().filter(|&&s| s < 0.0).count(),
-        s2.iter().filter(|&&s| s >= 0.0).count(),
+        s1.iter().filter(|&&s| s > 0.0).count(),
+        s2.iter().filter(|&&s| s <= 0.0).count(),
     ];
     out.discriminant.apparent_misclassified = Some(apparent);
     let scores = [s1, s2];
@@ -272,6 +276,8 @@ fn permute_centred(
         d,
         settings.permutations,
         settings.seed,
+        settings.sequential.as_ref(),
+        settings.alpha,
         &keep_going,
     );
     if progress.cancelled() {
@@ -279,6 +285,7 @@ fn permute_centred(
     }
     out.settings.permutations = settings.permutations;
     out.settings.seed = settings.seed;
+    out.settings.sequential = settings.sequential;
     Ok(())
 }
 
@@ -315,45 +322,91 @@ fn unit_checks(
     alpha: f64,
     moments: [&LotMoments; 2],
 ) {
-    let p = out.characteristics.len();
-    let mut cutoff = [f64::NAN; 2];
-    let mut flagged = Vec::new();
-    // Shapiro–Wilk is location-invariant: the centred columns serve (and it runs first,
-    // before the whitening below changes them).
-    out.normality = (0..p)
+    // The two lots' checks are independent: one on each core.
+    let [c0, c1] = centred;
+    let names = [out.lots[0].name.clone(), out.lots[1].name.clone()];
+    let (first, second) = std::thread::scope(|s| {
+        let other = s.spawn(|| lot_checks(1, &names[1], c1, alpha));
+        let first = lot_checks(0, &names[0], c0, alpha);
+        (first, other.join())
+    });
+    let second = match second {
+        Ok(r) => r,
+        Err(panic) => std::panic::resume_unwind(panic),
+    };
+    let lots = [first, second];
+    out.normality = (0..out.characteristics.len())
         .map(|k| NormalityRow {
             characteristic: out.characteristics[k].clone(),
-            lots: [
-                shapiro_wilk(centred[0].column(k).as_slice()),
-                shapiro_wilk(centred[1].column(k).as_slice()),
-            ],
-            large: [0, 1].map(|g| {
-                let col = centred[g].column(k);
-                (col.len() > MAX_UNITS)
-                    .then(|| large_lot_normality(col.as_slice()))
-                    .flatten()
-            }),
+            lots: [lots[0].shapiro[k], lots[1].shapiro[k]],
+            large: [lots[0].large[k], lots[1].large[k]],
         })
         .collect();
-    // The flagged units' centred values, turned back from their whitened rows.
+    let mut cutoff = [f64::NAN; 2];
+    let mut flagged = Vec::new();
     let mut removed: [Vec<DVector<f64>>; 2] = [Vec::new(), Vec::new()];
-    for (g, mut c) in centred.into_iter().enumerate() {
-        if let Some(w) = checks::whiten_keeping(&mut c) {
-            out.mardia.push(checks::mardia(&out.lots[g].name, &c));
-            let (cut, units) = checks::outliers(g, &c, alpha);
-            cutoff[g] = cut;
-            for u in &units {
-                let z: Vec<f64> = c.row(u.unit).iter().copied().collect();
-                removed[g].push(w.unwhiten(&z));
-            }
-            flagged.extend(units);
+    for (g, lot) in lots.into_iter().enumerate() {
+        if let Some(m) = lot.mardia {
+            out.mardia.push(m);
         }
+        cutoff[g] = lot.cutoff;
+        flagged.extend(lot.outliers);
+        removed[g] = lot.removed;
     }
     out.outliers = Some(OutlierReport {
         cutoff,
         units: flagged,
     });
     out.without_outliers = without(out, moments, &removed, alpha);
+}
+
+/// One lot's unit-level checks.
+struct LotChecks {
+    shapiro: Vec<Option<ShapiroWilk>>,
+    large: Vec<Option<LargeLotNormality>>,
+    mardia: Option<Mardia>,
+    cutoff: f64,
+    outliers: Vec<Outlier>,
+    /// The flagged units' centred values, turned back from their whitened rows.
+    removed: Vec<DVector<f64>>,
+}
+
+/// Shapiro–Wilk (or, above its range, Anderson–Darling and K²) per characteristic, then
+/// Mardia's tests and the outlier screen on the whitened units of lot `g`.
+fn lot_checks(g: usize, name: &str, mut c: DMatrix<f64>, alpha: f64) -> LotChecks {
+    let p = c.ncols();
+    // Shapiro–Wilk is location-invariant: the centred columns serve (and it runs first,
+    // before the whitening below changes them).
+    let shapiro = (0..p)
+        .map(|k| shapiro_wilk(c.column(k).as_slice()))
+        .collect();
+    let large = (0..p)
+        .map(|k| {
+            let col = c.column(k);
+            (col.len() > MAX_UNITS)
+                .then(|| large_lot_normality(col.as_slice()))
+                .flatten()
+        })
+        .collect();
+    let mut out = LotChecks {
+        shapiro,
+        large,
+        mardia: None,
+        cutoff: f64::NAN,
+        outliers: Vec::new(),
+        removed: Vec::new(),
+    };
+    if let Some(w) = checks::whiten_keeping(&mut c) {
+        out.mardia = Some(checks::mardia(name, &c));
+        let (cut, units) = checks::outliers(g, &c, alpha);
+        out.cutoff = cut;
+        for u in &units {
+            let z: Vec<f64> = c.row(u.unit).iter().copied().collect();
+            out.removed.push(w.unwhiten(&z));
+        }
+        out.outliers = units;
+    }
+    out
 }
 
 /// The T² test once more without the flagged units, from the lots' moments with those units
@@ -438,6 +491,7 @@ pub fn compare_summaries(
                 min: f64::NAN,
                 median: f64::NAN,
                 max: f64::NAN,
+                decimals: None,
             };
             [one(&moments[0], lots[0]), one(&moments[1], lots[1])]
         })

@@ -16,7 +16,7 @@ pub struct PairGeometry {
     pub difference_pair: Option<Vec<[f64; 2]>>,
     /// The two lot means.
     pub means: [[f64; 2]; 2],
-    /// The mean difference (first minus second).
+    /// The mean difference (candidate − reference).
     pub difference: [f64; 2],
 }
 

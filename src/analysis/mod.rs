@@ -26,6 +26,7 @@ pub use types::*;
 pub use verdict::*;
 
 pub use crate::format::{format_confidence, format_p, format_sig, p_text};
+pub use crate::stats::permutation::{DEFAULT_HITS, DEFAULT_RISK, Sequential, StoppedBy};
 
 use decision::{Decision, DecisionError, Observed, Specification};
 

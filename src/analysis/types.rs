@@ -18,6 +18,11 @@ pub struct Settings {
     pub permutations: usize,
     /// Seed of the permutation draws.
     pub seed: u64,
+    /// Sequential stopping of the permutation draws (`None`: all are drawn). On by default
+    /// for a new run; a missing field (settings written before sequential stopping, as in an
+    /// old record) reads as `None`, so such a run recomputes exactly as it was made.
+    #[serde(default)]
+    pub sequential: Option<Sequential>,
 }
 
 /// Default number of relabellings of the permutation test.
@@ -33,6 +38,7 @@ impl Default for Settings {
             checks: true,
             permutations: DEFAULT_PERMUTATIONS,
             seed: DEFAULT_SEED,
+            sequential: Some(Sequential::default()),
         }
     }
 }
@@ -170,7 +176,7 @@ pub struct HotellingResult {
 pub struct Interval {
     /// Characteristic name.
     pub characteristic: String,
-    /// Mean difference, first lot minus second.
+    /// Mean difference, candidate − reference.
     pub difference: f64,
     /// Standard error of the difference on the pooled variance.
     pub standard_error: f64,
@@ -284,7 +290,7 @@ pub struct CharacteristicResult {
     pub unit: Option<String>,
     /// Summary in each lot (absent for summary-only input except n, mean and sd).
     pub lots: [ColumnSummary; 2],
-    /// Mean difference, first lot minus second.
+    /// Mean difference, candidate − reference.
     pub difference: f64,
     /// Pooled standard deviation.
     pub pooled_sd: f64,
@@ -326,7 +332,8 @@ pub struct Comparison {
     pub characteristics: Vec<String>,
     /// Units of measure.
     pub units: Vec<Option<String>>,
-    /// The two lots: first is the reference, the difference is first minus second.
+    /// The two lots: first is the reference, second the candidate; every difference is
+    /// candidate − reference (second minus first).
     pub lots: [LotResult; 2],
     /// Pooled covariance matrix, row by row.
     pub pooled_covariance: Vec<Vec<f64>>,
@@ -401,6 +408,55 @@ impl Comparison {
     pub fn alpha(&self) -> f64 {
         self.settings.alpha
     }
+
+    /// The same comparison with every direction-dependent number written the other way round,
+    /// reference − candidate, as records of schema `lotshift.comparison/1` held them: the mean
+    /// differences and their intervals, the t statistics, the discriminant direction, its
+    /// scores and cut-off, and the detectable shift per characteristic. `verify` recomputes a
+    /// `/1` summary through this. Negation is exact in floating point, so every number equals
+    /// what the earlier release computed; the equivalence section was already candidate −
+    /// reference and is unchanged.
+    pub fn reference_minus_candidate(&self) -> Comparison {
+        let mut c = self.clone();
+        let mirror = |iv: [f64; 2]| [-iv[1], -iv[0]];
+        for iv in &mut c.intervals {
+            iv.difference = -iv.difference;
+            iv.simultaneous = mirror(iv.simultaneous);
+            iv.bonferroni = mirror(iv.bonferroni);
+            iv.one_at_a_time = mirror(iv.one_at_a_time);
+        }
+        for r in &mut c.per_characteristic {
+            r.difference = -r.difference;
+            r.standardized_difference = -r.standardized_difference;
+            r.pooled_t = -r.pooled_t;
+            r.welch_t = -r.welch_t;
+        }
+        let d = &mut c.discriminant;
+        for v in d
+            .coefficients
+            .iter_mut()
+            .chain(d.standardized.iter_mut())
+            .chain(d.structure.iter_mut())
+        {
+            *v = -*v;
+        }
+        d.cutoff = -d.cutoff;
+        if let Some(scores) = &mut d.scores {
+            for v in scores.iter_mut().flatten() {
+                *v = -*v;
+            }
+            d.score_histogram = ScoreHistogram::new(scores);
+        }
+        for r in &mut c.ranking {
+            r.standardized_coefficient = -r.standardized_coefficient;
+        }
+        if let Some(det) = &mut c.detectable {
+            for v in &mut det.per_characteristic_sd {
+                *v = -*v;
+            }
+        }
+        c
+    }
 }
 
 /// Power at which the detectable shift is stated (common practice for planning).
@@ -418,6 +474,19 @@ pub struct Detectable {
     /// The same shift along the observed direction of the difference, in each
     /// characteristic's pooled SD (the distance times the structure correlation).
     pub per_characteristic_sd: Vec<f64>,
+}
+
+impl Detectable {
+    /// The detectable shift along the observed direction, per characteristic, in words:
+    /// "hub length 0.30 SD, mass −0.41 SD".
+    pub fn along_words(&self, characteristics: &[String]) -> String {
+        characteristics
+            .iter()
+            .zip(&self.per_characteristic_sd)
+            .map(|(n, v)| format!("{n} {} SD", crate::format::format_sig(*v, 2)))
+            .collect::<Vec<_>>()
+            .join(", ")
+    }
 }
 
 /// Mahalanobis distance the level-`alpha` T² test detects with power `target` (bisection on

@@ -99,6 +99,7 @@ pub(crate) fn verdict_text(c: &Comparison) -> String {
     let f = &c.favoured;
     if f.test != FavouredTest::PooledT2 && f.p_value.is_finite() {
         let differ = f.p_value < alpha;
+        let interval = c.permutation.as_ref().and_then(|p| p.p_interval);
         let detail = match (f.test, &c.unequal_covariance) {
             (FavouredTest::UnequalCovariance, Some(u)) => format!(
                 "F({}, {}) = {}, {}",
@@ -107,6 +108,11 @@ pub(crate) fn verdict_text(c: &Comparison) -> String {
                 format_sig(u.f, 4),
                 p_text(u.p_value)
             ),
+            // A sequential stop at one of Gandy's boundaries: p is known as an interval.
+            (FavouredTest::Permutation, _) if interval.is_some() => {
+                let [lo, hi] = interval.unwrap_or_default();
+                format!("p between {} and {}", format_p(lo), format_p(hi))
+            }
             _ => p_text(f.p_value),
         };
         s.push_str(&format!(

@@ -87,6 +87,12 @@ pub struct VerifyArgs {
     /// the file's limits and margins (without it, from the ones the record holds).
     #[arg(long, value_name = "FILE")]
     pub spec: Option<PathBuf>,
+    /// The comparison protocol the comparison was run under: checks its SHA-256.
+    #[arg(long, value_name = "FILE")]
+    pub protocol: Option<PathBuf>,
+    /// The window's audit trail: checks its chain and that the record's runs are in it.
+    #[arg(long, value_name = "FILE")]
+    pub trail: Option<PathBuf>,
 }
 
 /// Arguments of `report`.
@@ -142,8 +148,9 @@ pub struct PlanArgs {
 /// Which lots to read and which characteristics to compare.
 #[derive(Debug, Args)]
 pub struct LotArgs {
-    /// The reference lot file and the candidate lot file (or one file with --split-by).
-    #[arg(value_name = "FILE", required = true, num_args = 1..=2)]
+    /// The reference lot file and the candidate lot file (or one file with --split-by); with
+    /// --protocol, the protocol's files when none are given.
+    #[arg(value_name = "FILE", required_unless_present = "protocol", num_args = 1..=2)]
     pub files: Vec<PathBuf>,
     /// Lot column: the column holding each unit's lot, to read both lots from one file.
     #[arg(long, value_name = "COLUMN", alias = "split-by")]
@@ -197,6 +204,14 @@ pub struct SpecArgs {
 }
 
 impl SpecArgs {
+    /// True when any specification option is given.
+    pub fn given(&self) -> bool {
+        self.spec.is_some()
+            || self.margin_fraction.is_some()
+            || self.margin_sd.is_some()
+            || self.equivalence_distance.is_some()
+    }
+
     /// Reads the specification file and collects the margin options.
     ///
     /// # Errors
@@ -230,9 +245,17 @@ pub struct CompareArgs {
     /// Specification limits and equivalence margins.
     #[command(flatten)]
     pub spec: SpecArgs,
-    /// Significance level of the test; intervals are at 1 - alpha confidence.
-    #[arg(long, default_value_t = 0.05)]
-    pub alpha: f64,
+    /// Significance level of the test; intervals are at 1 - alpha confidence [default: 0.05].
+    #[arg(long)]
+    pub alpha: Option<f64>,
+    /// Run the comparison protocol in FILE (lots, characteristics, settings, specification
+    /// fixed in advance); an option given besides that changes it is a deviation.
+    #[arg(long, value_name = "FILE")]
+    pub protocol: Option<PathBuf>,
+    /// With --protocol: run the options given that differ from the protocol, recording each
+    /// difference as a deviation with this reason.
+    #[arg(long, value_name = "REASON", requires = "protocol")]
+    pub deviation: Option<String>,
     /// Write the comparison record as JSON to FILE, or to standard output with "-".
     #[arg(long, value_name = "FILE")]
     pub json: Option<String>,
@@ -240,18 +263,36 @@ pub struct CompareArgs {
     /// difference detected": not "equivalent", and never an automatic release of a lot.
     #[arg(long)]
     pub fail_on_shift: bool,
+    /// Describe the comparison in the record and the report, as NAME=VALUE (repeat it):
+    /// part, reference lot, candidate lot, change request, purpose, notes, or a name of your
+    /// own.
+    #[arg(long = "field", value_name = "NAME=VALUE")]
+    pub fields: Vec<String>,
     /// Skip the leave-one-out misclassification rate.
     #[arg(long)]
     pub no_holdout: bool,
     /// Skip the assumption checks (Box's M, Mardia, Shapiro–Wilk, outliers, unequal covariance).
     #[arg(long)]
     pub no_checks: bool,
-    /// Relabellings for the permutation p-value (0 skips it).
-    #[arg(long, default_value_t = analysis::DEFAULT_PERMUTATIONS)]
-    pub permutations: usize,
-    /// Seed of the permutation draws (the same seed gives the same p-value).
-    #[arg(long, default_value_t = analysis::DEFAULT_SEED)]
-    pub seed: u64,
+    /// Relabellings for the permutation p-value (0 skips it) [default: 9999].
+    #[arg(long)]
+    pub permutations: Option<usize>,
+    /// Seed of the permutation draws (the same seed gives the same p-value) [default:
+    /// 20261202].
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Draw every relabelling asked for (turns sequential stopping off).
+    #[arg(long, conflicts_with_all = ["stop_hits", "decision_risk"])]
+    pub draw_all: bool,
+    /// Stop the relabellings at the N-th whose T² reaches the observed one, p = N/draws
+    /// (Besag & Clifford 1991; 0 turns this rule off) [default: 10].
+    #[arg(long, value_name = "N")]
+    pub stop_hits: Option<usize>,
+    /// Stop the relabellings once the decision at alpha is settled, with at most this chance
+    /// that all possible relabellings would decide otherwise (Gandy 2009; 0 turns this rule
+    /// off) [default: 0.001].
+    #[arg(long, value_name = "RISK")]
+    pub decision_risk: Option<f64>,
     /// Sign the summary with this private key (PEM); needs --meaning and --out.
     #[arg(long, value_name = "KEY", requires_all = ["meaning", "out"])]
     pub sign: Option<PathBuf>,
@@ -323,4 +364,35 @@ pub(crate) struct StatsFile {
     #[serde(default)]
     pub(crate) alpha: Option<f64>,
     pub(crate) lots: Vec<SummaryLot>,
+}
+
+impl CompareArgs {
+    /// Sequential stopping as the options ask (`None` with `--draw-all`).
+    ///
+    /// # Errors
+    /// A risk outside 0 to 1.
+    /// `base` is what the run starts from (the defaults, or a protocol's settings): an
+    /// option given replaces its part.
+    pub fn sequential(
+        &self,
+        base: Option<analysis::Sequential>,
+    ) -> Result<Option<analysis::Sequential>, CliError> {
+        if self.draw_all {
+            return Ok(None);
+        }
+        if self.stop_hits.is_none() && self.decision_risk.is_none() {
+            return Ok(base);
+        }
+        let start = base.unwrap_or_default();
+        let risk = self.decision_risk.unwrap_or(start.risk);
+        if !(0.0..1.0).contains(&risk) {
+            return Err(CliError::from(format!(
+                "--decision-risk must be at least 0 and below 1 (got {risk})"
+            )));
+        }
+        Ok(Some(analysis::Sequential {
+            hits: self.stop_hits.unwrap_or(start.hits),
+            risk,
+        }))
+    }
 }

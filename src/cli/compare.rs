@@ -3,9 +3,124 @@
 #[allow(unused_imports)]
 use super::*;
 
-pub(super) fn compare(a: CompareArgs) -> CliResult {
-    // The specification first: a bad file stops before the lots are read.
-    let spec = a.spec.request()?;
+pub(super) fn compare(mut a: CompareArgs) -> CliResult {
+    // The description, the protocol and the specification first: a bad one stops before the
+    // lots are read.
+    let mut fields = a
+        .fields
+        .iter()
+        .map(|f| report::parse_field(f))
+        .collect::<Result<Vec<_>, _>>()
+        .map_err(CliError::from)?;
+    let protocol = match &a.protocol {
+        Some(path) => Some(crate::protocol::load(path)?),
+        None => None,
+    };
+    if let Some(p) = &protocol {
+        // The protocol names the lots unless the command line does.
+        let l = &p.file.lots;
+        if a.lots.files.is_empty() {
+            a.lots.files = p.lot_files.clone();
+        }
+        if a.lots.lot_column.is_none() && a.lots.files.len() == 1 {
+            a.lots.lot_column = l.lot_column.clone();
+            if a.lots.lot_values.is_none() {
+                a.lots.lot_values = l.values.as_ref().map(|v| v.join(","));
+            }
+        }
+        if a.lots.sheet.is_none() {
+            a.lots.sheet = l.sheet.clone();
+        }
+        // Its description first; an entry given on the command line replaces one of the
+        // same name.
+        let mut all = p.file.fields.clone();
+        for f in fields {
+            all.retain(|x: &report::FieldRecord| !x.name.eq_ignore_ascii_case(&f.name));
+            all.push(f);
+        }
+        fields = all;
+    }
+    let spec = match &protocol {
+        Some(p) if !a.spec.given() => p.spec.clone(),
+        _ => a.spec.request()?,
+    };
+    let base = protocol
+        .as_ref()
+        .map_or_else(Settings::default, |p| p.settings.clone());
+    let settings = Settings {
+        alpha: a.alpha.unwrap_or(base.alpha),
+        leave_one_out: base.leave_one_out && !a.no_holdout,
+        checks: base.checks && !a.no_checks,
+        permutations: a.permutations.unwrap_or(base.permutations),
+        seed: a.seed.unwrap_or(base.seed),
+        sequential: a.sequential(base.sequential)?,
+    };
+    let only = a
+        .lots
+        .characteristics
+        .clone()
+        .or_else(|| protocol.as_ref().map(|p| p.file.characteristics.clone()));
+    let deviations = match &protocol {
+        None => Vec::new(),
+        Some(p) => {
+            let compared: Vec<String> = only
+                .clone()
+                .unwrap_or_default()
+                .into_iter()
+                .filter(|c| {
+                    !a.lots
+                        .exclude
+                        .iter()
+                        .any(|e| data::match_key(e) == data::match_key(c))
+                })
+                .collect();
+            let values = match &a.lots.lot_values {
+                Some(text) => Some(parse_lot_values(text)?),
+                None => None,
+            };
+            let column = a.lots.lot_column.as_deref().map(|c| {
+                let v = values.as_ref();
+                (
+                    c,
+                    [
+                        v.map_or("", |v| v[0].as_str()),
+                        v.map_or("", |v| v[1].as_str()),
+                    ],
+                )
+            });
+            let found = crate::protocol::differences(p, &compared, &settings, &spec, column);
+            match (&a.deviation, found.is_empty()) {
+                (_, true) => Vec::new(),
+                (None, false) => {
+                    let list: Vec<String> = found
+                        .iter()
+                        .map(|(what, want, got)| format!("{what}: {got} (protocol: {want})"))
+                        .collect();
+                    return Err(CliError::from(format!(
+                        "the comparison asked for differs from the protocol {}: {}. Run it as \
+                         fixed, or give --deviation REASON to run it so and record each \
+                         difference as a deviation",
+                        p.path.display(),
+                        list.join("; ")
+                    )));
+                }
+                (Some(reason), false) => {
+                    if reason.trim().is_empty() {
+                        return Err("--deviation needs a reason".into());
+                    }
+                    found
+                        .into_iter()
+                        .map(|(what, protocol, used)| report::Deviation {
+                            what,
+                            protocol,
+                            used,
+                            reason: reason.trim().to_string(),
+                        })
+                        .collect()
+                }
+            }
+        }
+    };
     let mut lots = load_lots(&a.lots)?;
     let exclusions = match &a.lots.exclude_units {
         Some(path) => data::exclusions::load_exclusions(path, [&lots[0], &lots[1]])?,
@@ -13,16 +128,10 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
     };
     let request = Request {
         selection: Selection {
-            only: a.lots.characteristics.clone(),
+            only,
             exclude: a.lots.exclude.clone(),
         },
-        settings: Settings {
-            alpha: a.alpha,
-            leave_one_out: !a.no_holdout,
-            checks: !a.no_checks,
-            permutations: a.permutations,
-            seed: a.seed,
-        },
+        settings,
         spec,
         strict_columns: a.lots.strict_columns,
         exclusions,
@@ -32,6 +141,10 @@ pub(super) fn compare(a: CompareArgs) -> CliResult {
     let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
     let mut record = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
     record.analysed_at = Some(sign::now_rfc3339());
+    record.fields = fields;
+    record.protocol = protocol
+        .as_ref()
+        .map(|p| crate::protocol::record_section(p, deviations));
     // Sign before printing anything, so a bad key or meaning stops with nothing written.
     let signed = match &a.sign {
         Some(key_path) => {
@@ -116,6 +229,7 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
         checks: true,
         permutations: 0,
         seed: analysis::DEFAULT_SEED,
+        sequential: None,
     };
     let mut c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
         .map_err(|e| format!("{}: {e}", a.file.display()))?;

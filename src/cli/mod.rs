@@ -63,6 +63,9 @@ pub struct Cli {
     /// Specification file (limits and margins) to open in the window's Specification tab.
     #[arg(long, value_name = "FILE")]
     pub spec: Option<PathBuf>,
+    /// Comparison protocol to run under in the window (its lots, unless lot files are given).
+    #[arg(long, value_name = "FILE")]
+    pub protocol: Option<PathBuf>,
     /// Lot files to open in the window (two files; default: the bundled sample lots).
     #[arg(value_name = "FILE")]
     pub files: Vec<PathBuf>,
@@ -119,6 +122,9 @@ pub enum CliError {
     /// A trusted-signers list.
     #[error(transparent)]
     Trust(#[from] crate::report::trust::TrustError),
+    /// A comparison protocol that cannot be used.
+    #[error(transparent)]
+    Protocol(#[from] crate::protocol::ProtocolError),
     /// Options that do not fit together, an output that cannot be written, a file that is not
     /// what the subcommand reads: the reason in words.
     #[error("{0}")]

@@ -141,6 +141,60 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         );
         Ok(ExitCode::from(EXIT_PARTIALLY_VERIFIED))
     };
+    if let Some(path) = &a.trail {
+        let chain = match crate::report::trail::read_chain(path) {
+            Ok(c) => c,
+            Err(e) => return fail(format!("the audit trail does not hold: {e}")),
+        };
+        let runs = summary
+            .record
+            .get("audit_trail")
+            .filter(|v| !v.is_null())
+            .map(|v| serde_json::from_value::<report::AuditRecord>(v.clone()));
+        let audit = match runs {
+            None => {
+                return fail(format!(
+                    "--trail {} was given, but the record holds no audit trail (it was not made \
+                     in the window)",
+                    path.display()
+                ));
+            }
+            Some(Err(e)) => return fail(format!("the record's audit_trail cannot be read: {e}")),
+            Some(Ok(a)) => a,
+        };
+        for r in &audit.runs {
+            match chain.iter().find(|e| e.seq == r.seq) {
+                Some(e) if e.hash == r.hash && e.headline == r.headline && e.at == r.at => {}
+                Some(_) => {
+                    return fail(format!(
+                        "the record's run {} is not the trail's entry {} (it was changed in one \
+                         of them)",
+                        r.seq, r.seq
+                    ));
+                }
+                None => {
+                    return fail(format!(
+                        "the record's run {} is not in the audit trail {}",
+                        r.seq,
+                        path.display()
+                    ));
+                }
+            }
+        }
+        if !chain.iter().any(|e| e.hash == audit.final_hash) {
+            return fail(format!(
+                "the record's last run ({}) is not in the audit trail {}",
+                audit.final_hash,
+                path.display()
+            ));
+        }
+        outln!(
+            "audit trail  {}: {} entries, chain intact; the record's {} runs on these lots are in it",
+            path.display(),
+            chain.len(),
+            audit.runs.len()
+        );
+    }
     if a.files.is_empty() {
         outln!("lot files    not checked (give --files to check them and recompute every number)");
         short.push(
@@ -201,6 +255,29 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         ),
         None => data::load_two(&files, None, None, &options),
     }?;
+    if let Some(path) = &a.protocol {
+        let Some(recorded) = &typed.protocol else {
+            return fail(format!(
+                "--protocol {} was given, but the comparison was not run under a protocol",
+                path.display()
+            ));
+        };
+        let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
+        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+        if got != recorded.sha256 {
+            return fail(format!(
+                "protocol file {} is not the protocol run: its SHA-256 is {got}, the record has {}",
+                path.display(),
+                recorded.sha256
+            ));
+        }
+        outln!("protocol     {} matches (SHA-256 {got})", path.display());
+    }
+    if let Some(p) = &typed.protocol {
+        for d in &p.deviations {
+            outln!("deviation    {} — reason: {}", d.describe(), d.reason);
+        }
+    }
     let characteristics = typed.characteristics.clone();
     let settings = Settings::from(&typed.settings);
     let recorded_spec = typed
@@ -266,10 +343,28 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
     };
     let mut lots = lots;
     let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
-    let recomputed = serde_json::to_value(Record::new(&c, Some((&prepared, [&lots[0], &lots[1]]))))
-        .map_err(|e| CliError::from(e.to_string()))?;
+    // A record of the earlier schema wrote every difference as reference − candidate: it is
+    // recomputed the same way round, never reinterpreted.
+    let v1 = typed.schema == report::SCHEMA_V1;
+    let c = if v1 { c.reference_minus_candidate() } else { c };
+    let mut again = Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])));
+    if v1 {
+        again.schema = report::SCHEMA_V1.into();
+    }
+    // What was entered about the comparison and the protocol it ran under are not
+    // recomputed: the signature covers them (and --protocol checks the protocol file).
+    again.fields = typed.fields.clone();
+    again.protocol = typed.protocol.clone();
+    again.audit_trail = typed.audit_trail.clone();
+    let recomputed = serde_json::to_value(again).map_err(|e| CliError::from(e.to_string()))?;
     if let Some(diff) = sign::first_difference(rec, &recomputed) {
         return fail(format!("a recomputed number differs: {diff}"));
+    }
+    if v1 {
+        outln!(
+            "schema       {} (differences written reference − candidate, as that release did)",
+            report::SCHEMA_V1
+        );
     }
     outln!("recomputed   every number in the record matches the lot files");
     if !short.is_empty() {
@@ -313,7 +408,10 @@ pub(super) fn report_html(a: ReportArgs) -> CliResult {
             Err(e) => eprintln!("lotshift: warning: {e}"),
         }
         html::render_html_signed(&record, &blocks)
-    } else if doc.get("schema").and_then(|s| s.as_str()) == Some(report::SCHEMA) {
+    } else if matches!(
+        doc.get("schema").and_then(|s| s.as_str()),
+        Some(report::SCHEMA | report::SCHEMA_V1)
+    ) {
         let record = Record::deserialize(&doc).map_err(|e| {
             format!(
                 "{}: not a comparison record lotshift can read: {e}",

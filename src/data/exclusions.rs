@@ -270,9 +270,21 @@ pub fn labels_of(lot: &Lot, index: usize) -> Vec<(String, String)> {
 /// # Errors
 /// An exclusion whose row is not a unit of its lot (a record replayed against other files).
 pub fn apply(lots: [&Lot; 2], exclusions: &[Exclusion]) -> Result<[Lot; 2], String> {
-    let mut out = Vec::with_capacity(2);
+    let keep = kept_units(lots, exclusions)?;
+    Ok([
+        lots[0].select_units(&keep[0]),
+        lots[1].select_units(&keep[1]),
+    ])
+}
+
+/// For each lot, the indices (in the lot as read) of the units not set aside.
+///
+/// # Errors
+/// As [`apply`].
+pub fn kept_units(lots: [&Lot; 2], exclusions: &[Exclusion]) -> Result<[Vec<usize>; 2], String> {
+    let mut out: [Vec<usize>; 2] = [Vec::new(), Vec::new()];
     for (g, lot) in lots.iter().enumerate() {
-        let gone: Vec<u32> = exclusions
+        let gone: std::collections::HashSet<u32> = exclusions
             .iter()
             .filter(|e| e.lot == g)
             .map(|e| e.row)
@@ -285,10 +297,9 @@ pub fn apply(lots: [&Lot; 2], exclusions: &[Exclusion]) -> Result<[Lot; 2], Stri
                 ));
             }
         }
-        let keep: Vec<usize> = (0..lot.len())
+        out[g] = (0..lot.len())
             .filter(|&i| !gone.contains(&lot.rows[i]))
             .collect();
-        out.push(lot.select_units(&keep));
     }
-    out.try_into().map_err(|_| "two lots expected".to_string())
+    Ok(out)
 }

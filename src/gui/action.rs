@@ -59,6 +59,24 @@ pub enum Action {
     SetCoverage(f64),
     /// Compare the current lots, selection, settings and specification.
     Rerun,
+    /// Set a unit aside with a recorded reason (a run follows).
+    SetUnitAside {
+        /// 0 reference, 1 candidate.
+        lot: usize,
+        /// The unit's row in its lot file.
+        row: u32,
+        /// The unit's labels, `[header, value]`.
+        labels: Vec<(String, String)>,
+        /// Why.
+        reason: String,
+    },
+    /// Put a unit set aside back (a run follows).
+    RestoreUnit {
+        /// 0 reference, 1 candidate.
+        lot: usize,
+        /// The unit's row in its lot file.
+        row: u32,
+    },
     /// Cancel the comparison under way.
     CancelRun,
     /// Open a tab.
@@ -74,6 +92,16 @@ pub enum Action {
     DifferenceShadow(bool),
     /// Open a dialog for a specification file.
     PickSpec,
+    /// Open a dialog for a comparison protocol.
+    PickProtocol,
+    /// Run under the protocol in this file: its lots, characteristics, settings and
+    /// specification.
+    LoadProtocol(PathBuf),
+    /// Record the differences from the protocol shown as deviations, with the reason typed,
+    /// and compare.
+    AcceptDeviations(String),
+    /// Stop running under the protocol (the settings stay as they are).
+    CloseProtocol,
     /// Save the specification as CSV, to this path or where a dialog says.
     SaveSpec(Option<PathBuf>),
     /// An edit of the specification is done: apply it (a new run when it checks).

@@ -21,6 +21,7 @@ use super::action::Action;
 use super::characteristics::{self, TableState};
 use super::lots::{self, ColumnPair, Lots};
 use super::pairs::{self, PairsState};
+use super::protocol_panel::{self, ProtocolState};
 use super::screenshot::{ScreenshotOutcome, ScreenshotPlan};
 use super::signing::{self, Note, SignForm};
 use super::spec_editor::{SpecEditor, fits};
@@ -46,6 +47,16 @@ pub struct LotshiftApp {
     screenshot: Option<ScreenshotPlan>,
     /// The signing form, while open.
     pub signing: Option<SignForm>,
+    /// The comparison protocol the window runs under, when one is loaded.
+    pub protocol: Option<ProtocolState>,
+    /// The audit trail every finished run is appended to (none: runs are not logged, as in
+    /// the tests that do not ask for it).
+    pub trail: Option<crate::report::trail::Trail>,
+    /// The entries this session appended, in order.
+    pub trail_log: Vec<crate::report::trail::TrailEntry>,
+    /// What the comparison is about ([`crate::report::STANDARD_FIELDS`], in that order), as
+    /// typed: copied into the record that is exported and signed.
+    pub fields: [String; 6],
     /// Specification and margins of the latest run (built from `spec_editor`).
     pub spec: SpecRequest,
     /// The specification view's state: the specification as edited in the window.
@@ -77,6 +88,10 @@ impl LotshiftApp {
             notice: None,
             screenshot: None,
             signing: None,
+            protocol: None,
+            trail: None,
+            trail_log: Vec::new(),
+            fields: Default::default(),
             spec: SpecRequest::default(),
             spec_editor: SpecEditor::default(),
             pending_spec: None,
@@ -129,6 +144,25 @@ impl LotshiftApp {
             Action::Settings(s) => self.saved.settings = *s,
             Action::SetCoverage(c) => self.saved.coverage = c,
             Action::Rerun => self.rerun(),
+            Action::SetUnitAside {
+                lot,
+                row,
+                labels,
+                reason,
+            } => {
+                self.lots
+                    .set_unit_aside(crate::data::exclusions::Exclusion {
+                        lot,
+                        row,
+                        labels,
+                        reason,
+                    });
+                self.rerun();
+            }
+            Action::RestoreUnit { lot, row } => {
+                self.lots.restore_unit(lot, row);
+                self.rerun();
+            }
             Action::CancelRun => {
                 self.worker.cancel();
                 self.result
@@ -140,6 +174,24 @@ impl LotshiftApp {
             Action::ShowPairGrid(on) => self.pairs.grid = on,
             Action::DifferenceShadow(on) => self.pairs.difference_shadow = on,
             Action::PickSpec => self.worker.choose(Purpose::Specification),
+            Action::PickProtocol => self.worker.choose(Purpose::Protocol),
+            Action::LoadProtocol(path) => self.load_protocol(&path),
+            Action::AcceptDeviations(reason) => {
+                if let Some(ps) = &mut self.protocol {
+                    ps.accept(&reason);
+                    ps.reason.clear();
+                }
+                self.rerun();
+            }
+            Action::CloseProtocol => {
+                self.protocol = None;
+                self.notice = Some(
+                    "Protocol closed: the settings stay as they are; runs are no longer checked \
+                     against it."
+                        .into(),
+                );
+                self.rerun();
+            }
             Action::SaveSpec(to) => self.save_spec_to(to),
             Action::ApplySpec => self.apply_spec(),
             Action::Export => self.export(),
@@ -291,12 +343,50 @@ impl LotshiftApp {
                 return;
             }
         };
+        if let Some(ps) = &mut self.protocol {
+            let compared: Vec<String> = self
+                .lots
+                .characteristic_list(true)
+                .into_iter()
+                .map(|(n, _)| n)
+                .collect();
+            let column = self.lots.combined.as_ref().map(|c| {
+                (
+                    c.column.as_str(),
+                    [c.values[0].as_str(), c.values[1].as_str()],
+                )
+            });
+            let found = crate::protocol::differences(
+                &ps.protocol,
+                &compared,
+                &self.saved.settings,
+                &spec,
+                column,
+            );
+            match ps.settle(found) {
+                Some(deviations) => ps.running = deviations,
+                None => {
+                    let list: Vec<String> = ps
+                        .pending
+                        .iter()
+                        .map(|(what, want, got)| format!("{what}: {got} (protocol: {want})"))
+                        .collect();
+                    self.result.hold(format!(
+                        "this comparison differs from the protocol ({}): give the reason above \
+                         to record it as a deviation, or change it back",
+                        list.join("; ")
+                    ));
+                    return;
+                }
+            }
+        }
         self.result.start();
         self.spec = spec.clone();
         let request = Request {
             selection: self.lots.selection(),
             settings: self.saved.settings.clone(),
             spec,
+            exclusions: self.lots.set_aside.clone(),
             ..Request::default()
         };
         self.worker.compare(lots, request);
@@ -338,7 +428,14 @@ impl LotshiftApp {
                 // A run held for a specification problem stays held: a result still
                 // arriving is not current, and the problem stays the message. A failed run
                 // keeps the previous result on screen, marked as not current.
-                Outcome::Compared { result, .. } => self.result.arrive(result),
+                Outcome::Compared { result, last, .. } => {
+                    let finished = last && result.is_ok();
+                    self.result.arrive(result);
+                    if finished {
+                        self.log_run();
+                    }
+                    self.sync_fields();
+                }
                 Outcome::SpecLoaded(Err(e)) => self.messages.push(format!(
                     "{e} — the specification was not loaded; the table and the result are \
                      unchanged"
@@ -378,7 +475,11 @@ impl LotshiftApp {
             Ok(mut lots) if slot == Slot::Combined => {
                 if let Some(table) = lots.pop() {
                     match self.lots.set_combined(table) {
-                        Ok(()) => self.rerun(),
+                        Ok(()) => {
+                            self.protocol_split();
+                            self.protocol_ticks();
+                            self.rerun();
+                        }
                         Err(e) => self.messages.push(e),
                     }
                 }
@@ -388,6 +489,7 @@ impl LotshiftApp {
                 if slot == Slot::Both && std::mem::take(&mut self.order_given) {
                     self.lots.roles_to_confirm = false;
                 }
+                self.protocol_ticks();
                 self.rerun();
             }
         }
@@ -406,6 +508,7 @@ impl LotshiftApp {
             Purpose::Summary => self.check_summary(&path),
             Purpose::SummaryToSign => self.add_signature(path),
             Purpose::Specification => self.load_spec_path(path),
+            Purpose::Protocol => self.load_protocol(&path),
         }
     }
 
@@ -556,12 +659,210 @@ impl LotshiftApp {
         ui.separator();
         side::settings_ui(ui, &self.saved.settings, self.saved.coverage, &mut actions);
         self.apply_all(actions);
+        ui.separator();
+        if side::fields_ui(ui, &mut self.fields) {
+            self.sync_fields();
+        }
+    }
+
+    /// Appends the result on screen to the audit trail (a trail that cannot be written or
+    /// whose chain is broken is reported, and the run is not in it).
+    fn log_run(&mut self) {
+        let (Some(trail), Some(s)) = (&mut self.trail, self.result.shown()) else {
+            return;
+        };
+        let c = &s.comparison;
+        let h = &c.hotelling;
+        let headline = format!(
+            "{} (alpha {}): T² = {}, {}",
+            if h.differ {
+                "the lots differ"
+            } else {
+                "no difference detected"
+            },
+            c.alpha(),
+            crate::format::format_sig(h.t2, 6),
+            crate::format::p_text(h.p_value)
+        );
+        let lots = [0, 1].map(|g| s.lots[g].provenance.sha256.clone());
+        match trail.append(
+            crate::report::sign::now_rfc3339(),
+            lots,
+            c.characteristics.clone(),
+            serde_json::to_value(&s.record.settings).unwrap_or_default(),
+            headline,
+        ) {
+            Ok(e) => self.trail_log.push(e),
+            Err(e) => self
+                .messages
+                .push(format!("audit trail: {e} — this run is not in the trail")),
+        }
+    }
+
+    /// Puts the typed description into the record on screen (the one exported and signed).
+    pub fn sync_fields(&mut self) {
+        let fields: Vec<crate::report::FieldRecord> = crate::report::STANDARD_FIELDS
+            .iter()
+            .zip(&self.fields)
+            .filter(|(_, v)| !v.trim().is_empty())
+            .map(|(n, v)| crate::report::FieldRecord {
+                name: (*n).to_string(),
+                value: v.trim().to_string(),
+            })
+            .collect();
+        let protocol = self
+            .protocol
+            .as_ref()
+            .map(|ps| crate::protocol::record_section(&ps.protocol, ps.running.clone()));
+        let trail_file = self.trail.as_ref().map(|t| t.path.display().to_string());
+        let log = &self.trail_log;
+        if let Some(s) = self.result.shown_mut() {
+            s.record.fields = fields;
+            s.record.protocol = protocol;
+            // The runs on these lot files this session, up to the one on screen.
+            let lots = [0, 1].map(|g| s.lots[g].provenance.sha256.clone());
+            s.record.audit_trail = match (trail_file, log.last()) {
+                (Some(file), Some(last)) if last.lots == lots => Some(crate::report::AuditRecord {
+                    file,
+                    final_hash: last.hash.clone(),
+                    runs: log
+                        .iter()
+                        .filter(|e| e.lots == lots)
+                        .map(|e| crate::report::AuditRun {
+                            seq: e.seq,
+                            at: e.at.clone(),
+                            characteristics: e.characteristics.clone(),
+                            settings: e.settings.clone(),
+                            headline: e.headline.clone(),
+                            hash: e.hash.clone(),
+                        })
+                        .collect(),
+                }),
+                _ => None,
+            };
+        }
+    }
+
+    /// Runs under the protocol in `path`: its settings, description and specification, then
+    /// its lots (their characteristics ticked as it fixes them once they are read). A
+    /// protocol that cannot be used changes nothing.
+    pub fn load_protocol(&mut self, path: &Path) {
+        self.protocol_from(path, true);
+    }
+
+    /// As [`Self::load_protocol`], with the lots given on the command line instead of the
+    /// protocol's (as `compare --protocol P FILES` does).
+    pub fn load_protocol_keeping_lots(&mut self, path: &Path) {
+        self.protocol_from(path, false);
+    }
+
+    fn protocol_from(&mut self, path: &Path, its_lots: bool) {
+        let p = match crate::protocol::load(path) {
+            Ok(p) => p,
+            Err(e) => {
+                self.messages.push(format!(
+                    "{e} — the protocol was not loaded; nothing changed"
+                ));
+                return;
+            }
+        };
+        self.saved.settings = p.settings.clone();
+        for (value, name) in self.fields.iter_mut().zip(crate::report::STANDARD_FIELDS) {
+            *value = p
+                .file
+                .fields
+                .iter()
+                .find(|f| f.name.eq_ignore_ascii_case(name))
+                .map(|f| f.value.clone())
+                .unwrap_or_default();
+        }
+        use super::spec_editor::RuleChoice;
+        let e = &mut self.spec_editor;
+        e.clear();
+        match p.spec.rule {
+            crate::analysis::decision::MarginRule::FileOnly => e.rule = RuleChoice::FileOnly,
+            crate::analysis::decision::MarginRule::ToleranceFraction(f) => {
+                e.rule = RuleChoice::ToleranceFraction;
+                e.fraction = f.to_string();
+            }
+            crate::analysis::decision::MarginRule::ReferenceSd(k) => {
+                e.rule = RuleChoice::ReferenceSd;
+                e.sd = k.to_string();
+            }
+        }
+        e.distance = p
+            .spec
+            .distance_margin
+            .map(|d| d.to_string())
+            .unwrap_or_default();
+        self.pending_spec = p.spec.file.clone();
+        let files = p.lot_files.clone();
+        let combined = p.file.lots.lot_column.is_some();
+        self.notice = Some(format!(
+            "Running under the protocol {} (SHA-256 {}…): its lots, characteristics, settings \
+             and specification. A change is recorded as a deviation with its reason.",
+            path.display(),
+            &p.sha256[..12]
+        ));
+        self.protocol = Some(ProtocolState::new(p));
+        if !its_lots {
+            return;
+        }
+        if combined {
+            self.order_given = true;
+            self.load_paths(Slot::Combined, files);
+        } else {
+            self.load_in_order(files);
+        }
+    }
+
+    /// A file holding both lots, read for a protocol: split by the protocol's lot column and
+    /// values.
+    fn protocol_split(&mut self) {
+        let Some(ps) = &self.protocol else { return };
+        let l = &ps.protocol.file.lots;
+        if let (Some(column), Some(values)) = (&l.lot_column, &l.values)
+            && ps.ticks_pending
+            && self.lots.choose_split(column.clone(), values.clone())
+            && let Err(e) = self.lots.resplit()
+        {
+            self.messages.push(e);
+        }
+    }
+
+    /// Once the protocol's lots are in: tick exactly the characteristics it compares.
+    fn protocol_ticks(&mut self) {
+        let Some(ps) = &mut self.protocol else { return };
+        if !ps.ticks_pending {
+            return;
+        }
+        let all = self.lots.characteristic_list(false);
+        if all.is_empty() {
+            return;
+        }
+        let want: Vec<String> = ps
+            .protocol
+            .file
+            .characteristics
+            .iter()
+            .map(|c| crate::data::match_key(c))
+            .collect();
+        for (name, _) in all {
+            let key = crate::data::match_key(&name);
+            let on = want.contains(&key);
+            self.lots.set_compared(key, on);
+        }
+        ps.ticks_pending = false;
     }
 
     fn central_ui(&mut self, ui: &mut egui::Ui) {
         let mut actions = Vec::new();
         toolbar::messages_ui(ui, &self.messages, self.notice.as_deref(), &mut actions);
         self.apply_all(std::mem::take(&mut actions));
+        if let Some(ps) = &mut self.protocol {
+            protocol_panel::protocol_ui(ui, ps, &mut actions);
+            self.apply_all(std::mem::take(&mut actions));
+        }
         let busy = self.worker.busy();
         toolbar::tabs_ui(ui, self.saved.view, &self.result, busy, &mut actions);
         self.apply_all(std::mem::take(&mut actions));

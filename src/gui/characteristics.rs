@@ -6,6 +6,7 @@ use egui::RichText;
 
 use crate::analysis::decision::{CapabilityLot, SpecEntry};
 use crate::analysis::{format_confidence, format_p, format_sig};
+use crate::format::format_measure;
 
 use super::action::Action;
 use super::shown::Shown;
@@ -24,7 +25,7 @@ const HEADERS: [&str; 17] = [
     "n cand",
     "mean cand",
     "sd cand",
-    "difference",
+    "cand − ref",
     "std. difference",
     "pooled t",
     "p (pooled t)",
@@ -65,6 +66,7 @@ fn sort_key(s: &Shown, k: usize, col: usize) -> f64 {
 
 fn cells(s: &Shown, k: usize) -> [String; 17] {
     let r = &s.comparison.per_characteristic[k];
+    let decimals = crate::stats::moments::finer_decimals(r.lots[0].decimals, r.lots[1].decimals);
     let sw = |g: usize| {
         let p = shapiro_p(s, k, g);
         if p.is_nan() {
@@ -77,12 +79,12 @@ fn cells(s: &Shown, k: usize) -> [String; 17] {
         r.characteristic.clone(),
         r.unit.clone().unwrap_or_default(),
         r.lots[0].n.to_string(),
-        format_sig(r.lots[0].mean, 7),
+        format_measure(r.lots[0].mean, decimals),
         format_sig(r.lots[0].sd, 4),
         format_sig(r.lots[0].min, 7),
         format_sig(r.lots[0].max, 7),
         r.lots[1].n.to_string(),
-        format_sig(r.lots[1].mean, 7),
+        format_measure(r.lots[1].mean, decimals),
         format_sig(r.lots[1].sd, 4),
         format_sig(r.difference, 4),
         format_sig(r.standardized_difference, 3),
@@ -151,7 +153,7 @@ pub fn table_ui(ui: &mut egui::Ui, s: &mut Shown, state: &TableState, actions: &
         {
             ui.ctx().copy_text(table_tsv(s));
         }
-        ui.weak("Click a column title to sort. Difference = reference minus candidate; p-values are one characteristic at a time.");
+        ui.weak("Click a column title to sort. Difference = candidate minus reference; p-values are one characteristic at a time.");
     });
     let mut order: Vec<usize> = (0..s.comparison.per_characteristic.len()).collect();
     if let Some((col, asc)) = state.sort {

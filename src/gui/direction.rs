@@ -60,7 +60,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
     let mut line = String::new();
     if let Some(a) = d.apparent_misclassified {
         line.push_str(&format!(
-            "Misclassified by the rule (a score below 0 is put with the candidate lot): {} of {} reference, {} of {} candidate ({:.1}%).",
+            "Misclassified by the rule (a score above 0 is put with the candidate lot): {} of {} reference, {} of {} candidate ({:.1}%).",
             a[0],
             c.lots[0].n,
             a[1],
@@ -106,7 +106,7 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         .legend(Legend::default())
         .allow_scroll(false)
         .x_axis_label(format!(
-            "score along the direction (0 = midpoint between the means; D² = {})",
+            "score along the direction, higher toward the candidate (0 = midpoint between the means; D² = {})",
             format_sig(c.hotelling.mahalanobis_d2, 4)
         ))
         .y_axis_label("density")

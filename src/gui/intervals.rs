@@ -113,10 +113,11 @@ fn tables(ui: &mut egui::Ui, s: &Shown, equivalence: Option<&Equivalence>) {
 fn difference_chart(ui: &mut egui::Ui, s: &Shown, height: f32) {
     let c = &s.comparison;
     let conf = format_confidence(c.alpha());
-    ui.label(RichText::new("Is there a difference? Reference − candidate").strong());
+    ui.label(RichText::new("Is there a difference? Candidate − reference").strong());
     ui.label(format!(
-        "Mean difference (reference minus candidate) with {conf}% intervals, in pooled standard \
-         deviations. A larger diamond marks a simultaneous interval that misses the zero line."
+        "Mean difference (candidate minus reference) with {conf}% intervals, in pooled standard \
+         deviations: right of zero, the candidate is higher. A larger diamond marks a \
+         simultaneous interval that misses the zero line."
     ));
     let names: Vec<String> = c.characteristics.clone();
     let names_hover = names.clone();
@@ -138,7 +139,7 @@ fn difference_chart(ui: &mut egui::Ui, s: &Shown, height: f32) {
         .allow_scroll(false)
         .y_axis_formatter(row_names(names.clone()))
         .y_axis_min_width(120.0)
-        .x_axis_label("difference / pooled standard deviation")
+        .x_axis_label("candidate − reference / pooled standard deviation")
         .label_formatter(move |h| {
             let pos = match h {
                 egui_plot::HoverPosition::NearDataPoint { position, .. }
@@ -326,7 +327,7 @@ fn interval_table(ui: &mut egui::Ui, s: &Shown) {
         .show(ui, |ui| {
             for h in [
                 "characteristic",
-                "difference",
+                "cand − ref",
                 "simultaneous (T²)",
                 "Bonferroni",
                 "one at a time",
@@ -343,7 +344,7 @@ fn interval_table(ui: &mut egui::Ui, s: &Shown) {
                     (iv.bonferroni, iv.excludes_zero[1]),
                     (iv.one_at_a_time, iv.excludes_zero[2]),
                 ] {
-                    let text = format!("[{}, {}]", format_sig(r[0], 4), format_sig(r[1], 4));
+                    let text = format!("[{}, {}]{unit}", format_sig(r[0], 4), format_sig(r[1], 4));
                     if flag {
                         ui.label(RichText::new(format!("{text} excludes 0")).strong());
                     } else {
@@ -353,4 +354,15 @@ fn interval_table(ui: &mut egui::Ui, s: &Shown) {
                 ui.end_row();
             }
         });
+    let conf = format_confidence(c.alpha());
+    for (iv, r) in c.intervals.iter().zip(&c.per_characteristic) {
+        ui.label(crate::format::shift_sentence(
+            &iv.characteristic,
+            r.unit.as_deref(),
+            iv.difference,
+            iv.simultaneous,
+            crate::stats::moments::finer_decimals(r.lots[0].decimals, r.lots[1].decimals),
+            &conf,
+        ));
+    }
 }

@@ -142,6 +142,10 @@ impl Worker {
                     )
                     .add_filter("All files", &["*"])
                     .pick_file(),
+                Purpose::Protocol => rfd::FileDialog::new()
+                    .set_title("Open a comparison protocol")
+                    .add_filter("JSON", &["json"])
+                    .pick_file(),
             };
             out.send(Outcome::Chosen { purpose, path }, Ends::Nothing);
         });
@@ -442,7 +446,9 @@ pub fn summary_note(
         .flatten()
         .map(|l| l["sha256"].as_str().unwrap_or_default().to_string())
         .collect();
-    if loaded.len() == 2 && recorded == loaded {
+    if s.record["schema"].as_str() == Some(crate::report::SCHEMA_V1) {
+        note.push_str(" It was written by an earlier release (record schema /1, differences as reference − candidate): use lotshift verify to recompute its numbers.");
+    } else if loaded.len() == 2 && recorded == loaded {
         match current {
             Some(record) => {
                 let now = serde_json::to_value(record).unwrap_or_default();

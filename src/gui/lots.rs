@@ -68,6 +68,9 @@ pub struct Lots {
     pub pairs: Vec<ColumnPair>,
     /// The candidate lot as read and its copy with the paired columns renamed.
     paired: Option<(Arc<Lot>, Arc<Lot>)>,
+    /// Units set aside with a reason for this session (the files stay as they are; the
+    /// record lists them). Cleared when either lot is loaded anew.
+    pub set_aside: Vec<crate::data::exclusions::Exclusion>,
 }
 
 /// A column of the candidate lot the user paired with a reference column of another name:
@@ -246,6 +249,7 @@ impl Lots {
     pub fn place(&mut self, slot: Slot, mut lots: Vec<Lot>) {
         self.combined = None;
         self.clear_pairs();
+        self.set_aside.clear();
         // Two files read together get their roles from the order they came in: the user
         // confirms them. One file put in a slot the user chose settles both roles.
         self.roles_to_confirm = slot == Slot::Both && lots.len() == 2;
@@ -308,6 +312,7 @@ impl Lots {
         let [a, b] = data::split_lot(&c.table, &c.column, Some([&c.values[0], &c.values[1]]))
             .map_err(|e| e.to_string())?;
         self.clear_pairs();
+        self.set_aside.clear();
         self.slots = [Some(Arc::new(a)), Some(Arc::new(b))];
         Ok(())
     }
@@ -323,6 +328,21 @@ impl Lots {
         for p in &mut self.pairs {
             std::mem::swap(&mut p.reference, &mut p.candidate);
         }
+        for e in &mut self.set_aside {
+            e.lot = 1 - e.lot;
+        }
         self.rebuild_paired();
+    }
+
+    /// Sets a unit aside with a reason (again: the new reason replaces the old).
+    pub fn set_unit_aside(&mut self, e: crate::data::exclusions::Exclusion) {
+        self.set_aside
+            .retain(|x| !(x.lot == e.lot && x.row == e.row));
+        self.set_aside.push(e);
+    }
+
+    /// Puts a unit set aside back.
+    pub fn restore_unit(&mut self, lot: usize, row: u32) {
+        self.set_aside.retain(|x| !(x.lot == lot && x.row == row));
     }
 }

@@ -15,6 +15,7 @@ pub mod jobs;
 pub mod lots;
 pub mod overview;
 pub mod pairs;
+pub mod protocol_panel;
 pub mod screenshot;
 pub mod shown;
 pub mod side;
@@ -40,17 +41,19 @@ pub use state::{ResultState, Saved, View};
 /// Opens the window (with `files`, or the bundled sample lots), or renders it to `screenshot`
 /// and exits.
 pub fn run(files: Vec<PathBuf>, screenshot: Option<PathBuf>, view: Option<String>) -> ExitCode {
-    run_with_spec(files, screenshot, view, None)
+    run_with_spec(files, screenshot, view, None, None)
 }
 
 /// As [`run`], with a specification file (limits and margins) loaded into the
 /// Specification tab at start, as if opened there (a bad file shows the loader's message in
-/// the window; the lots and the comparison go ahead without it).
+/// the window; the lots and the comparison go ahead without it), and with a comparison
+/// protocol run from the start (its lots in place of the sample lots when no files are given).
 pub fn run_with_spec(
     files: Vec<PathBuf>,
     screenshot: Option<PathBuf>,
     view: Option<String>,
     spec: Option<PathBuf>,
+    protocol: Option<PathBuf>,
 ) -> ExitCode {
     if !(files.is_empty() || files.len() == 2) {
         eprintln!(
@@ -93,13 +96,21 @@ pub fn run_with_spec(
                     .unwrap_or_default()
             };
             let mut app = LotshiftApp::new(Some(cc.egui_ctx.clone()), saved);
+            if !taking_screenshot {
+                app.trail = crate::report::trail::Trail::default_path()
+                    .map(crate::report::trail::Trail::at);
+            }
             if let Some(v) = start_view {
                 app.saved.view = v;
             }
-            if files.is_empty() {
-                app.load_samples();
-            } else {
-                app.load_in_order(files);
+            let given = !files.is_empty();
+            match (&protocol, given) {
+                (Some(p), false) => app.load_protocol(p),
+                (_, false) => app.load_samples(),
+                (_, true) => app.load_in_order(files),
+            }
+            if let (Some(p), true) = (&protocol, given) {
+                app.load_protocol_keeping_lots(p);
             }
             if let Some(p) = spec {
                 app.load_spec_path(p);

@@ -137,6 +137,21 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                 ui.label("condition of the pooled covariance");
                 ui.label(format_sig(c.condition_number, 3));
                 ui.end_row();
+                if let Some(d) = &c.detectable {
+                    ui.label(format!("shift detected with {:.0}% power", 100.0 * d.power));
+                    ui.label(format!(
+                        "Mahalanobis distance {} (hover: along the observed direction, per \
+                         characteristic)",
+                        format_sig(d.distance, 3)
+                    ))
+                    .on_hover_text(format!(
+                        "The shift these lot sizes detect 8 times in 10 at this alpha; read \
+                         \"no difference detected\" against it. Along the observed direction: \
+                         {}",
+                        d.along_words(&c.characteristics)
+                    ));
+                    ui.end_row();
+                }
             });
         ui.add_space(8.0);
         ui.strong("What drives the shift");
@@ -156,7 +171,7 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                 }
             });
         ui.add_space(8.0);
-        checks_ui(ui, s);
+        checks_ui(ui, s, actions);
         ui.add_space(8.0);
         ui.strong("Lots");
         for (i, lot) in s.lots.iter().enumerate() {
@@ -179,6 +194,29 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                  candidate's \"{}\"",
                 p.reference, p.candidate
             ));
+        }
+        for e in &s.prepared.exclusions {
+            ui.horizontal(|ui| {
+                ui.label(format!(
+                    "set aside: {} lot, row {}{} — {}",
+                    if e.lot == 0 { "reference" } else { "candidate" },
+                    e.row,
+                    crate::data::label_text(&e.labels)
+                        .map(|l| format!(" ({l})"))
+                        .unwrap_or_default(),
+                    e.reason
+                ));
+                if ui
+                    .small_button("put back")
+                    .on_hover_text("Compare again with this unit")
+                    .clicked()
+                {
+                    actions.push(Action::RestoreUnit {
+                        lot: e.lot,
+                        row: e.row,
+                    });
+                }
+            });
         }
         for u in &s.prepared.unmatched {
             ui.label(format!(
@@ -339,7 +377,14 @@ fn in_spec_ui(ui: &mut egui::Ui, s: &Shown, d: &Decision) {
     }
 }
 
-fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
+fn checks_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) {
+    // The view's own text is edited here; the rest of the result is only read.
+    let mut typed = std::mem::take(&mut s.set_aside_reason);
+    checks_body(ui, s, &mut typed, actions);
+    s.set_aside_reason = typed;
+}
+
+fn checks_body(ui: &mut egui::Ui, s: &Shown, typed: &mut String, actions: &mut Vec<Action>) {
     let c = &s.comparison;
     ui.strong("Assumption checks and alternatives");
     if c.box_m.is_none() && c.mardia.is_empty() && c.permutation.is_none() {
@@ -399,6 +444,40 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
                         .map(|r| r.characteristic.clone())
                         .collect();
                     let computed = c.normality.iter().any(|r| r.lots[g].is_some());
+                    let large: Vec<_> = c
+                        .normality
+                        .iter()
+                        .filter_map(|r| r.large.get(g).and_then(Option::as_ref).map(|t| (r, t)))
+                        .collect();
+                    if !computed && !large.is_empty() {
+                        let low: Vec<String> = large
+                            .iter()
+                            .filter(|(_, t)| t.anderson_darling_p < c.alpha() || t.k2_p < c.alpha())
+                            .map(|(r, _)| r.characteristic.clone())
+                            .collect();
+                        let worst_skew = large
+                            .iter()
+                            .map(|(_, t)| t.skewness.abs())
+                            .fold(0.0, f64::max);
+                        let worst_kurt = large
+                            .iter()
+                            .map(|(_, t)| t.excess_kurtosis.abs())
+                            .fold(0.0, f64::max);
+                        ui.label(format!("Anderson–Darling and K², {}", c.lots[g].name));
+                        ui.label(format!(
+                            "{}; largest |skewness| {}, largest |excess kurtosis| {} (the size \
+                             of the departure, which decides at this many units)",
+                            if low.is_empty() {
+                                format!("no characteristic below p = {}", c.alpha())
+                            } else {
+                                format!("below p = {}: {}", c.alpha(), low.join(", "))
+                            },
+                            format_sig(worst_skew, 2),
+                            format_sig(worst_kurt, 2)
+                        ));
+                        ui.end_row();
+                        continue;
+                    }
                     ui.label(format!("Shapiro–Wilk, {}", c.lots[g].name));
                     ui.label(if !computed {
                         format!(
@@ -423,16 +502,64 @@ fn checks_ui(ui: &mut egui::Ui, s: &Shown) {
             count(0),
             count(1)
         ));
+        if let Some(w) = &c.without_outliers {
+            let text = format!(
+                "Without the {} flagged units: T² = {}, {}: {}",
+                w.removed[0] + w.removed[1],
+                format_sig(w.t2, 6),
+                crate::format::p_text(w.p_value),
+                if w.same_decision {
+                    "the decision holds without them."
+                } else {
+                    "the decision changes without them — look at these units before deciding."
+                }
+            );
+            ui.label(if w.same_decision {
+                RichText::new(text)
+            } else {
+                RichText::new(text)
+                    .strong()
+                    .color(ui.visuals().warn_fg_color)
+            });
+        }
+        ui.horizontal(|ui| {
+            ui.label("Reason for setting a unit aside:");
+            ui.add(
+                egui::TextEdit::singleline(typed)
+                    .hint_text("e.g. gauge fault, confirmed by a remeasurement")
+                    .desired_width(320.0),
+            );
+        });
+        let reason = typed.trim().to_string();
         for u in o.units.iter().take(20) {
             let labels: Vec<String> = u.labels.iter().map(|(h, v)| format!("{h} {v}")).collect();
-            ui.label(format!(
-                "  {} lot, row {}: {} — d² = {}, {}",
-                if u.lot == 0 { "reference" } else { "candidate" },
-                u.row.map_or("?".into(), |r| r.to_string()),
-                labels.join(", "),
-                format_sig(u.d2, 4),
-                crate::format::p_text(u.p_value)
-            ));
+            ui.horizontal(|ui| {
+                ui.label(format!(
+                    "  {} lot, row {}: {} — d² = {}, {}",
+                    if u.lot == 0 { "reference" } else { "candidate" },
+                    u.row.map_or("?".into(), |r| r.to_string()),
+                    labels.join(", "),
+                    format_sig(u.d2, 4),
+                    crate::format::p_text(u.p_value)
+                ));
+                if let Some(row) = u.row {
+                    let button = ui
+                        .add_enabled(!reason.is_empty(), egui::Button::new("set aside"))
+                        .on_hover_text(
+                            "Compare again without this unit; the reason is recorded with it \
+                             (the lot file is not changed)",
+                        )
+                        .on_disabled_hover_text("Type the reason first: it is recorded");
+                    if button.clicked() {
+                        actions.push(Action::SetUnitAside {
+                            lot: u.lot,
+                            row,
+                            labels: u.labels.clone(),
+                            reason: reason.clone(),
+                        });
+                    }
+                }
+            });
         }
         if o.units.len() > 20 {
             ui.label(format!(

@@ -289,7 +289,7 @@ fn difference_ui(
 ) {
     let mut shadow = state.difference_shadow;
     ui.horizontal(|ui| {
-        ui.label("Mean difference region:");
+        ui.label("Mean difference region (Δ = candidate − reference):");
         ui.radio_value(&mut shadow, true, "consistent with all characteristics")
             .on_hover_text("The shadow of the full T² confidence region on this pair: agrees with the simultaneous intervals");
         ui.radio_value(&mut shadow, false, "this pair alone")
@@ -309,8 +309,8 @@ fn difference_ui(
         .unwrap_or(false);
     Plot::new(("difference", i, j))
         .height((ui.available_height() - 24.0).max(160.0))
-        .x_axis_label(format!("difference in {}", label(s, i)))
-        .y_axis_label(format!("difference in {}", label(s, j)))
+        .x_axis_label(format!("Δ {}", label(s, i)))
+        .y_axis_label(format!("Δ {}", label(s, j)))
         .show(ui, |plot| {
             if let Some(o) = outline {
                 plot.line(

@@ -39,6 +39,8 @@ pub struct Shown {
     pub requested_permutations: usize,
     /// Hover text ("lot: row 17, serial ...") of each drawn unit, per lot.
     pub unit_text: Arc<[Vec<String>; 2]>,
+    /// The reason typed for setting units aside (the Verdict view's own text).
+    pub set_aside_reason: String,
     pairs: HashMap<(usize, usize, u64), Arc<PairView>>,
 }
 
@@ -84,6 +86,7 @@ impl Shown {
             sample,
             unit_text: Arc::new([Vec::new(), Vec::new()]),
             requested_permutations: 0,
+            set_aside_reason: String::new(),
             pairs: HashMap::new(),
         };
         let text = [0, 1].map(|g| {

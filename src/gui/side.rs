@@ -322,6 +322,19 @@ pub fn settings_ui(
             .on_hover_text("Relabellings for the permutation p-value; 0 skips it");
         changed |= settled(&r);
     });
+    let mut early = s.sequential.is_some();
+    if ui
+        .checkbox(&mut early, "stop relabelling when settled")
+        .on_hover_text(
+            "Stop at the 10th relabelling that reaches the observed T² (Besag & Clifford), or \
+             as soon as the decision at alpha is settled with at most a 0.001 chance of \
+             differing from all relabellings (Gandy)",
+        )
+        .changed()
+    {
+        s.sequential = early.then(crate::analysis::Sequential::default);
+        changed = true;
+    }
     if s != *settings {
         actions.push(Action::Settings(Box::new(s)));
     }
@@ -331,4 +344,25 @@ pub fn settings_ui(
     if changed {
         actions.push(Action::Rerun);
     }
+}
+
+/// The description of the comparison for the record (part, lot identifiers, change request,
+/// purpose, notes): the form's own text, edited in place. Returns whether anything changed.
+pub fn fields_ui(ui: &mut egui::Ui, fields: &mut [String; 6]) -> bool {
+    let mut changed = false;
+    egui::CollapsingHeader::new("About this comparison (for the record)")
+        .default_open(false)
+        .show(ui, |ui| {
+            egui::Grid::new("fields").num_columns(2).show(ui, |ui| {
+                for (name, value) in crate::report::STANDARD_FIELDS.iter().zip(fields.iter_mut()) {
+                    ui.label(*name);
+                    changed |= ui
+                        .add(egui::TextEdit::singleline(value).desired_width(170.0))
+                        .changed();
+                    ui.end_row();
+                }
+            });
+            ui.weak("Printed at the top of the report and covered by the signature.");
+        });
+    changed
 }

@@ -56,6 +56,16 @@ pub fn top_ui(ui: &mut egui::Ui, top: &Top, actions: &mut Vec<Action>) {
             actions.push(Action::PickLots(Slot::Combined));
         }
         if ui
+            .button("Open protocol…")
+            .on_hover_text(
+                "Run a comparison protocol: lots, characteristics, settings and specification \
+                 fixed in advance; a change afterwards is recorded as a deviation with its reason",
+            )
+            .clicked()
+        {
+            actions.push(Action::PickProtocol);
+        }
+        if ui
             .add_enabled(top.lots_loaded, egui::Button::new("Swap lots"))
             .on_hover_text(format!(
                 "Make the candidate the reference and vice versa ({})",

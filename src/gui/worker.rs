@@ -21,7 +21,7 @@ use super::shown::Shown;
 /// Which lot slot a load fills.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Slot {
-    /// The reference lot (first; differences are reference minus candidate).
+    /// The reference lot (first; differences are candidate minus reference).
     Reference,
     /// The candidate lot.
     Candidate,
@@ -44,6 +44,8 @@ pub enum Purpose {
     SummaryToSign,
     /// Choose a specification file (limits and margins) to load.
     Specification,
+    /// Choose a comparison protocol to run under.
+    Protocol,
 }
 
 /// What a file to load is.

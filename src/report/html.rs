@@ -15,7 +15,10 @@ use super::sign::SignatureBlock;
 use super::{CAUTION, Record};
 use crate::analysis::decision::{MarginRule, Outcome};
 use crate::analysis::{FavouredTest, ScoreHistogram, pair_geometry};
-use crate::format::{format_confidence, format_p, format_sig, p_text};
+use crate::format::{
+    format_confidence, format_measure, format_p, format_sig, p_text, shift_sentence,
+};
+use crate::stats::moments::finer_decimals;
 
 /// Coverage of the data ellipses in the pair chart: the window's default.
 const DATA_COVERAGE: f64 = 0.95;
@@ -89,13 +92,19 @@ pub fn render_html_signed(record: &Record, signatures: &[SignatureBlock]) -> Str
     );
     let _ = writeln!(
         h,
-        "<h1>Lot comparison: {} (reference) vs {} (candidate)</h1><div class=\"muted\">{} {}; analysed {}; difference = reference minus candidate</div>",
+        "<h1>Lot comparison: {} (reference) vs {} (candidate)</h1><div class=\"muted\">{} {}; analysed {}; {}</div>",
         esc(&lot_name(0)),
         esc(&lot_name(1)),
         esc(&r.software.name),
         esc(&r.software.version),
-        esc(r.analysed_at.as_deref().unwrap_or("(time not recorded)"))
+        esc(r.analysed_at.as_deref().unwrap_or("(time not recorded)")),
+        if r.schema == super::SCHEMA_V1 {
+            "a record of schema lotshift.comparison/1: its differences (not those of the equivalence section) are reference minus candidate"
+        } else {
+            "every difference is candidate minus reference"
+        }
     );
+    fields_section(&mut h, r);
     let differ = r.hotelling.differ;
     let _ = writeln!(
         h,
@@ -122,6 +131,8 @@ pub fn render_html_signed(record: &Record, signatures: &[SignatureBlock]) -> Str
     h.push_str(&score_chart(r));
     h.push_str(&pair_chart(r));
     checks_section(&mut h, r);
+    settings_section(&mut h, r);
+    trail_section(&mut h, r);
     let _ = writeln!(h, "<p class=\"caution\">{}</p>", esc(CAUTION));
     if signatures.is_empty() {
         let _ = writeln!(
@@ -454,6 +465,137 @@ fn lots_section(h: &mut String, r: &Record) {
     }
 }
 
+/// What the comparison is about, as entered: the standard fields first, in their order,
+/// then any other; every standard field is printed, a blank one as "(not given)", so that a
+/// missing entry shows on paper.
+fn fields_section(h: &mut String, r: &Record) {
+    match &r.protocol {
+        Some(p) => {
+            let _ = writeln!(
+                h,
+                "<p id=\"protocol\"><b>Protocol:</b> {}{} (SHA-256 <code>{}</code>). {}</p>",
+                esc(&p.file),
+                p.title
+                    .as_ref()
+                    .map(|t| format!(", “{}”", esc(t)))
+                    .unwrap_or_default(),
+                esc(&p.sha256),
+                if p.deviations.is_empty() {
+                    "Run as the protocol fixes it: no deviation."
+                } else {
+                    "Deviations from it:"
+                }
+            );
+            if !p.deviations.is_empty() {
+                h.push_str("<table id=\"deviations\"><tr><th class=\"name\">what</th><th class=\"name\">protocol</th><th class=\"name\">as run</th><th class=\"name\">reason</th></tr>");
+                for d in &p.deviations {
+                    let _ = write!(
+                        h,
+                        "<tr><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td></tr>",
+                        esc(&d.what),
+                        esc(&d.protocol),
+                        esc(&d.used),
+                        esc(&d.reason)
+                    );
+                }
+                h.push_str("</table>\n");
+            }
+        }
+        None => h.push_str(
+            "<p class=\"muted\" id=\"protocol\">No comparison protocol: the characteristics, alpha and margins were not fixed in a file before the run.</p>\n",
+        ),
+    }
+    h.push_str("<table id=\"fields\">");
+    let value = |name: &str| {
+        r.fields
+            .iter()
+            .find(|f| f.name.eq_ignore_ascii_case(name))
+            .map(|f| f.value.clone())
+    };
+    for name in super::STANDARD_FIELDS {
+        let _ = write!(
+            h,
+            "<tr><th class=\"name\">{}</th><td class=\"name\">{}</td></tr>",
+            esc(name),
+            value(name).map_or_else(
+                || "<span class=\"muted\">(not given)</span>".into(),
+                |v| esc(&v)
+            )
+        );
+    }
+    for f in &r.fields {
+        if !super::STANDARD_FIELDS
+            .iter()
+            .any(|n| n.eq_ignore_ascii_case(&f.name))
+        {
+            let _ = write!(
+                h,
+                "<tr><th class=\"name\">{}</th><td class=\"name\">{}</td></tr>",
+                esc(&f.name),
+                esc(&f.value)
+            );
+        }
+    }
+    h.push_str("</table>\n");
+}
+
+/// The runs the audit trail holds on these lots, the last one this record's; a record made on
+/// the command line says it has none.
+fn trail_section(h: &mut String, r: &Record) {
+    let Some(a) = &r.audit_trail else {
+        h.push_str("<p class=\"muted\" id=\"audit-trail\">No audit trail: the comparison was not made in the window.</p>\n");
+        return;
+    };
+    let _ = writeln!(
+        h,
+        "<h2>Runs on these lots (audit trail)</h2><div class=\"muted\">{} runs in {}, the last one this record's (entry hash <code>{}</code>); <code>lotshift verify SUMMARY --trail FILE</code> checks them against the trail.</div><table id=\"audit-trail\"><tr><th>run</th><th class=\"name\">time (UTC)</th><th class=\"name\">characteristics</th><th>alpha</th><th class=\"name\">result</th></tr>",
+        a.runs.len(),
+        esc(&a.file),
+        esc(&a.final_hash)
+    );
+    for run in &a.runs {
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td>{}</td><td class=\"name\">{}</td></tr>",
+            run.seq,
+            esc(&run.at),
+            esc(&run.characteristics.join(", ")),
+            esc(&run
+                .settings
+                .get("alpha")
+                .map(ToString::to_string)
+                .unwrap_or_default()),
+            esc(&run.headline)
+        );
+    }
+    h.push_str("</table>\n");
+}
+
+/// Every setting the comparison ran with (the record's `settings`, key by key, so a setting
+/// added later is printed too).
+fn settings_section(h: &mut String, r: &Record) {
+    h.push_str("<h2>Settings</h2><table id=\"settings\">");
+    if let Ok(serde_json::Value::Object(m)) = serde_json::to_value(&r.settings) {
+        for (k, v) in m {
+            let shown = match &v {
+                serde_json::Value::String(s) => s.clone(),
+                other => other.to_string(),
+            };
+            let _ = write!(
+                h,
+                "<tr><th class=\"name\">{}</th><td class=\"name\">{}</td></tr>",
+                esc(&k.replace('_', " ")),
+                esc(&shown)
+            );
+        }
+    }
+    let _ = writeln!(
+        h,
+        "<tr><th class=\"name\">record schema</th><td class=\"name\">{}</td></tr></table>",
+        esc(&r.schema)
+    );
+}
+
 fn test_section(h: &mut String, r: &Record) {
     let t = &r.hotelling;
     let _ = writeln!(
@@ -469,23 +611,60 @@ fn test_section(h: &mut String, r: &Record) {
         format_sig(t.critical_f, 6),
         format_sig(t.mahalanobis_d2, 6)
     );
+    let d = &r.discriminant;
+    let n = [
+        r.lots.first().map_or(0, |l| l.n),
+        r.lots.get(1).map_or(0, |l| l.n),
+    ];
+    // In floating point: a record that disagrees with itself may hold any counts.
+    let total = (n[0] as f64 + n[1] as f64).max(1.0);
+    h.push_str("<table id=\"discrimination\">");
+    let _ = write!(
+        h,
+        "<tr><th class=\"name\">units compared</th><td class=\"name\">{} (reference) and {} (candidate)</td></tr>",
+        n[0], n[1]
+    );
+    if let Some(a) = d.apparent_misclassified {
+        let _ = write!(
+            h,
+            "<tr><th class=\"name\">misclassified by the discriminant rule</th><td class=\"name\">{} of the reference, {} of the candidate ({:.1}%)</td></tr>",
+            a[0],
+            a[1],
+            100.0 * (a[0] as f64 + a[1] as f64) / total
+        );
+    }
+    if let Some(l) = d.leave_one_out_misclassified {
+        let _ = write!(
+            h,
+            "<tr><th class=\"name\">misclassified, each unit held out</th><td class=\"name\">{} of the reference, {} of the candidate ({:.1}%)</td></tr>",
+            l[0],
+            l[1],
+            100.0 * d.leave_one_out_rate.unwrap_or(f64::NAN)
+        );
+    }
+    let _ = writeln!(
+        h,
+        "<tr><th class=\"name\">condition number of the pooled correlation matrix</th><td class=\"name\">{}</td></tr></table>",
+        format_sig(r.condition_number, 3)
+    );
 }
 
 fn characteristics_section(h: &mut String, r: &Record) {
-    h.push_str("<h2>Per characteristic</h2><table><tr><th class=\"name\">characteristic</th><th>mean ref</th><th>SD ref</th><th>mean cand</th><th>SD cand</th><th>difference</th><th>std. difference</th><th>p (pooled t)</th><th>p (Welch)</th></tr>\n");
+    h.push_str("<h2>Per characteristic</h2><table><tr><th class=\"name\">characteristic</th><th>mean ref.</th><th>SD ref.</th><th>mean cand.</th><th>SD cand.</th><th>cand. − ref.</th><th>std. difference</th><th>p (pooled t)</th><th>p (Welch)</th></tr>\n");
     for c in &r.per_characteristic {
         let unit = c
             .unit
             .as_deref()
             .map(|u| format!(" ({})", esc(u)))
             .unwrap_or_default();
+        let decimals = finer_decimals(c.lots[0].decimals, c.lots[1].decimals);
         let _ = writeln!(
             h,
             "<tr><td class=\"name\">{}{unit}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
             esc(&c.characteristic),
-            format_sig(c.lots[0].mean, 7),
+            format_measure(c.lots[0].mean, decimals),
             format_sig(c.lots[0].sd, 4),
-            format_sig(c.lots[1].mean, 7),
+            format_measure(c.lots[1].mean, decimals),
             format_sig(c.lots[1].sd, 4),
             format_sig(c.difference, 4),
             format_sig(c.standardized_difference, 3),
@@ -497,8 +676,14 @@ fn characteristics_section(h: &mut String, r: &Record) {
 }
 
 fn intervals_table(h: &mut String, r: &Record) {
-    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>difference</th><th>simultaneous (T²)</th><th>Bonferroni</th><th>one at a time</th></tr>\n");
+    h.push_str("<table><tr><th class=\"name\">characteristic</th><th>unit</th><th>cand. − ref.</th><th>simultaneous (T²)</th><th>Bonferroni</th><th>one at a time</th></tr>\n");
     for iv in &r.intervals {
+        let unit = r
+            .per_characteristic
+            .iter()
+            .find(|c| c.characteristic == iv.characteristic)
+            .and_then(|c| c.unit.as_deref())
+            .unwrap_or("");
         let cell = |x: [f64; 2], k: usize| {
             format!(
                 "[{}, {}]{}",
@@ -513,8 +698,9 @@ fn intervals_table(h: &mut String, r: &Record) {
         };
         let _ = writeln!(
             h,
-            "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            "<tr><td class=\"name\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
             esc(&iv.characteristic),
+            esc(unit),
             format_sig(iv.difference, 4),
             cell(iv.simultaneous, 0),
             cell(iv.bonferroni, 1),
@@ -522,6 +708,25 @@ fn intervals_table(h: &mut String, r: &Record) {
         );
     }
     h.push_str("</table>\n");
+    if r.schema != super::SCHEMA_V1 {
+        let conf = format_confidence(r.alpha);
+        h.push_str("<ul class=\"readings\">");
+        for (iv, c) in r.intervals.iter().zip(&r.per_characteristic) {
+            let _ = write!(
+                h,
+                "<li>{}</li>",
+                esc(&shift_sentence(
+                    &iv.characteristic,
+                    c.unit.as_deref(),
+                    iv.difference,
+                    iv.simultaneous,
+                    finer_decimals(c.lots[0].decimals, c.lots[1].decimals),
+                    &conf
+                ))
+            );
+        }
+        h.push_str("</ul>\n");
+    }
 }
 
 fn ranking_table(h: &mut String, r: &Record) {
@@ -677,7 +882,7 @@ fn score_chart(r: &Record) -> String {
     }
     let _ = write!(
         s,
-        "<line x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"8\" y2=\"{bottom}\" stroke=\"#333\" stroke-dasharray=\"4 3\"/><line x1=\"{left}\" x2=\"{right}\" y1=\"{bottom}\" y2=\"{bottom}\" stroke=\"#333\"/><text x=\"{1}\" y=\"{2}\" text-anchor=\"middle\">discriminant score (filled indigo: reference, amber outline: candidate; dashed: allocation cut-off)</text></svg></div>",
+        "<line x1=\"{0:.1}\" x2=\"{0:.1}\" y1=\"8\" y2=\"{bottom}\" stroke=\"#333\" stroke-dasharray=\"4 3\"/><line x1=\"{left}\" x2=\"{right}\" y1=\"{bottom}\" y2=\"{bottom}\" stroke=\"#333\"/><text x=\"{1}\" y=\"{2}\" text-anchor=\"middle\">discriminant score, higher toward the candidate (filled indigo: reference, amber outline: candidate; dashed: allocation cut-off)</text></svg></div>",
         x(0.0),
         (left + right) / 2.0,
         h - 12.0

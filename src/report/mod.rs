@@ -6,10 +6,15 @@ mod record;
 pub mod sections;
 pub mod sign;
 mod text;
+pub mod trail;
 pub mod trust;
 
 pub use canonical::{CanonicalError, canonical_bytes};
-pub use record::{CAUTION, LotRecord, OutlierRecord, OutlierSection, Record, SCHEMA, Software};
+pub use record::{
+    AuditRecord, AuditRun, CAUTION, Deviation, FieldRecord, LotRecord, OutlierRecord,
+    OutlierSection, ProtocolRecord, Record, SCHEMA, SCHEMA_V1, STANDARD_FIELDS, Software,
+    parse_field,
+};
 pub use text::{box_m_line, mardia_line, permutation_line, render_text, unequal_line};
 
 use std::io::Write as _;

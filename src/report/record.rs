@@ -1,4 +1,5 @@
-//! The record every export and signed summary is built from (schema `lotshift.comparison/1`).
+//! The record every export and signed summary is built from (schema `lotshift.comparison/2`:
+//! every difference is candidate − reference; `/1` wrote reference − candidate).
 
 //!
 //! Every key is a field of a type of the report layer (this file and [`super::sections`]),
@@ -17,7 +18,11 @@ use crate::analysis::{Comparison, LotResult};
 use crate::data::{ColumnData, Lot, Prepared};
 
 /// Schema identifier written into every record.
-pub const SCHEMA: &str = "lotshift.comparison/1";
+pub const SCHEMA: &str = "lotshift.comparison/2";
+
+/// The earlier schema, whose differences were reference − candidate; `verify` still verifies
+/// summaries of it (see [`crate::analysis::Comparison::reference_minus_candidate`]).
+pub const SCHEMA_V1: &str = "lotshift.comparison/1";
 
 /// The caution carried by every output.
 pub const CAUTION: &str = "This statistical result supports, and does not replace, the lot \
@@ -287,6 +292,121 @@ pub struct Record {
     /// The T² test without the units flagged as outliers.
     #[serde(default)]
     pub without_outliers: Option<WithoutOutliersRecord>,
+    /// What the comparison is about, as entered (part, lot identifiers, change request,
+    /// purpose, notes): printed in the report, covered by the signature, not recomputed.
+    #[serde(default)]
+    pub fields: Vec<FieldRecord>,
+    /// The protocol the comparison was run under, with every deviation and its reason (null
+    /// without a protocol).
+    #[serde(default)]
+    pub protocol: Option<ProtocolRecord>,
+    /// The window's audit trail: the runs made on these lot files up to this one, and the
+    /// hash of this one's entry (null for a record made on the command line).
+    #[serde(default)]
+    pub audit_trail: Option<AuditRecord>,
+}
+
+/// `audit_trail`: what the audit trail holds of this comparison.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AuditRecord {
+    /// The trail file.
+    pub file: String,
+    /// Hash of the entry of the run this record is of.
+    pub final_hash: String,
+    /// The runs on these lot files, in order, the last one this record's.
+    pub runs: Vec<AuditRun>,
+}
+
+/// `audit_trail.runs[]`: one run as the trail holds it.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct AuditRun {
+    /// Position in the trail.
+    pub seq: u64,
+    /// When (RFC 3339, UTC).
+    pub at: String,
+    /// The characteristics compared.
+    pub characteristics: Vec<String>,
+    /// The settings.
+    pub settings: serde_json::Value,
+    /// The result in a line.
+    pub headline: String,
+    /// The entry's hash.
+    pub hash: String,
+}
+
+/// One way a comparison differs from its protocol.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct Deviation {
+    /// What differs ("alpha", "characteristics", "specification file", …).
+    pub what: String,
+    /// As the protocol fixes it.
+    pub protocol: String,
+    /// As run.
+    pub used: String,
+    /// Why, as the person who ran it gave it.
+    pub reason: String,
+}
+
+impl Deviation {
+    /// "alpha: 0.01 (protocol: 0.05)".
+    pub fn describe(&self) -> String {
+        format!("{}: {} (protocol: {})", self.what, self.used, self.protocol)
+    }
+}
+
+/// The record's `protocol` section: which protocol, and every deviation with its reason.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ProtocolRecord {
+    /// The protocol file's name.
+    pub file: String,
+    /// SHA-256 of its bytes.
+    pub sha256: String,
+    /// Its title.
+    pub title: Option<String>,
+    /// How the comparison differs from it, each with the reason given.
+    pub deviations: Vec<Deviation>,
+}
+
+/// `fields[]`: one entry of the comparison's description, as entered.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct FieldRecord {
+    /// What it is ("part", "reference lot", "change request", …).
+    pub name: String,
+    /// As entered.
+    pub value: String,
+}
+
+/// The entry fields the window's form offers and the report prints first, in this order
+/// (`--field` takes these and any other name).
+pub const STANDARD_FIELDS: [&str; 6] = [
+    "part",
+    "reference lot",
+    "candidate lot",
+    "change request",
+    "purpose",
+    "notes",
+];
+
+/// Parses `--field NAME=VALUE`.
+///
+/// # Errors
+/// No `=`, or an empty name or value, in words.
+pub fn parse_field(s: &str) -> Result<FieldRecord, String> {
+    let Some((name, value)) = s.split_once('=') else {
+        return Err(format!(
+            "--field takes NAME=VALUE (for example --field \"part=HX40 hub\"), got \"{s}\""
+        ));
+    };
+    let (name, value) = (name.trim(), value.trim());
+    if name.is_empty() || value.is_empty() {
+        return Err(format!(
+            "--field \"{s}\": both the name and the value must be given"
+        ));
+    }
+    Ok(FieldRecord {
+        name: name.to_string(),
+        value: value.to_string(),
+    })
 }
 
 impl Record {
@@ -425,6 +545,9 @@ impl Record {
                 .unwrap_or_default(),
             detectable: c.detectable.as_ref().map(Into::into),
             without_outliers: c.without_outliers.as_ref().map(Into::into),
+            fields: Vec::new(),
+            protocol: None,
+            audit_trail: None,
         }
     }
 

@@ -1,5 +1,5 @@
 //! The sections of the comparison record, defined here and nowhere else: their field names
-//! are the record's keys (schema `lotshift.comparison/1`, README "The comparison record"), in
+//! are the record's keys (schema `lotshift.comparison/2`, README "The comparison record"), in
 //! the order they are written. The engine's types (`analysis`, `stats`, `data`) are converted
 //! into these with `From`, and back for the engine functions that read a comparison; every
 //! conversion names every field, so a field added to or renamed in an engine type does not
@@ -24,7 +24,7 @@ use crate::stats::bignormal::LargeLotNormality;
 use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
 use crate::stats::moments::ColumnSummary;
 use crate::stats::normality::ShapiroWilk;
-use crate::stats::permutation::PermutationResult;
+use crate::stats::permutation::{PermutationResult, Sequential, StoppedBy};
 
 /// Reading numbers that may be `null` (written for NaN and infinities) as NaN.
 pub(crate) mod nan {
@@ -102,6 +102,35 @@ pub struct SettingsRecord {
     pub permutations: usize,
     /// Seed of the relabellings.
     pub seed: u64,
+    /// Sequential stopping of the relabellings (`null`: all drawn). Absent in a record made
+    /// before sequential stopping, which reads as `null` and so recomputes as it was made.
+    #[serde(default)]
+    pub sequential: Option<SequentialRecord>,
+}
+
+/// `settings.sequential`: when the relabellings stop early.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+pub struct SequentialRecord {
+    /// Besag & Clifford's h: stop at the h-th relabelling reaching the observed T² (0: off).
+    pub hits: usize,
+    /// Gandy's resampling risk of the decision at alpha (0: his boundaries are off).
+    pub risk: f64,
+}
+
+impl From<&Sequential> for SequentialRecord {
+    fn from(s: &Sequential) -> Self {
+        let Sequential { hits, risk } = *s;
+        SequentialRecord { hits, risk }
+    }
+}
+
+impl From<&SequentialRecord> for Sequential {
+    fn from(s: &SequentialRecord) -> Self {
+        Sequential {
+            hits: s.hits,
+            risk: s.risk,
+        }
+    }
 }
 
 impl Default for SettingsRecord {
@@ -118,6 +147,7 @@ impl From<&Settings> for SettingsRecord {
             checks,
             permutations,
             seed,
+            sequential,
         } = *s;
         SettingsRecord {
             alpha,
@@ -125,6 +155,7 @@ impl From<&Settings> for SettingsRecord {
             checks,
             permutations,
             seed,
+            sequential: sequential.as_ref().map(Into::into),
         }
     }
 }
@@ -137,6 +168,7 @@ impl From<&SettingsRecord> for Settings {
             checks: s.checks,
             permutations: s.permutations,
             seed: s.seed,
+            sequential: s.sequential.as_ref().map(Into::into),
         }
     }
 }
@@ -242,7 +274,7 @@ impl From<&HotellingRecord> for HotellingResult {
 pub struct IntervalRecord {
     /// Characteristic name.
     pub characteristic: String,
-    /// Mean difference, reference minus candidate.
+    /// Mean difference, candidate − reference (reference − candidate in schema `/1`).
     #[serde(deserialize_with = "nan::de")]
     pub difference: f64,
     /// Its standard error.
@@ -463,6 +495,10 @@ pub struct ColumnSummaryRecord {
     /// Largest value (null from summary statistics).
     #[serde(deserialize_with = "nan::de")]
     pub max: f64,
+    /// Decimal places the measurements carry (null from summary statistics or for values with
+    /// more than 9); means are written to one place more.
+    #[serde(default)]
+    pub decimals: Option<u8>,
 }
 
 impl From<&ColumnSummary> for ColumnSummaryRecord {
@@ -474,6 +510,7 @@ impl From<&ColumnSummary> for ColumnSummaryRecord {
             min,
             median,
             max,
+            decimals,
         } = *c;
         ColumnSummaryRecord {
             n,
@@ -482,6 +519,7 @@ impl From<&ColumnSummary> for ColumnSummaryRecord {
             min,
             median,
             max,
+            decimals,
         }
     }
 }
@@ -495,6 +533,7 @@ impl From<&ColumnSummaryRecord> for ColumnSummary {
             min: c.min,
             median: c.median,
             max: c.max,
+            decimals: c.decimals,
         }
     }
 }
@@ -508,7 +547,7 @@ pub struct CharacteristicRecord {
     pub unit: Option<String>,
     /// Summary in each lot.
     pub lots: [ColumnSummaryRecord; 2],
-    /// Mean difference, reference minus candidate.
+    /// Mean difference, candidate − reference (reference − candidate in schema `/1`).
     #[serde(deserialize_with = "nan::de")]
     pub difference: f64,
     /// Pooled standard deviation.
@@ -968,15 +1007,69 @@ impl From<&UnequalCovarianceRecord> for UnequalCovariance {
 /// `permutation`: the permutation p-value of T².
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct PermutationRecord {
-    /// Relabellings drawn.
+    /// Relabellings asked for (the most drawn).
     pub permutations: usize,
     /// Seed of the draws.
     pub seed: u64,
-    /// Relabellings whose T² reached the observed one.
+    /// Relabellings drawn whose T² reached the observed one.
     pub at_least_observed: usize,
-    /// The p-value.
+    /// The p-value (with `p_interval`, the interval's end nearer alpha).
     #[serde(deserialize_with = "nan::de")]
     pub p_value: f64,
+    /// Relabellings drawn (absent in a record made before sequential stopping: all were).
+    #[serde(default)]
+    pub drawn: usize,
+    /// What ended the draws.
+    #[serde(default)]
+    pub stopped_by: StoppedByRecord,
+    /// The p-value as an interval `[lo, hi]` when one of Gandy's boundaries stopped the draws
+    /// (null otherwise).
+    #[serde(default, deserialize_with = "nan::de")]
+    pub p_interval: Option<[f64; 2]>,
+    /// Why the draws stopped, in words.
+    #[serde(default)]
+    pub why: String,
+}
+
+/// `permutation.stopped_by`: what ended the relabellings, written as a word.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum StoppedByRecord {
+    /// `"all_drawn"`: sequential stopping was off.
+    #[default]
+    AllDrawn,
+    /// `"hits"`: Besag & Clifford's h-th relabelling reaching the observed T².
+    Hits,
+    /// `"lower_boundary"`: Gandy's lower boundary, p below alpha.
+    LowerBoundary,
+    /// `"upper_boundary"`: Gandy's upper boundary, p above alpha.
+    UpperBoundary,
+    /// `"limit"`: no rule stopped the draws within one fewer than asked for.
+    Limit,
+}
+
+impl From<StoppedBy> for StoppedByRecord {
+    fn from(s: StoppedBy) -> Self {
+        match s {
+            StoppedBy::All => StoppedByRecord::AllDrawn,
+            StoppedBy::Hits => StoppedByRecord::Hits,
+            StoppedBy::LowerBoundary => StoppedByRecord::LowerBoundary,
+            StoppedBy::UpperBoundary => StoppedByRecord::UpperBoundary,
+            StoppedBy::Limit => StoppedByRecord::Limit,
+        }
+    }
+}
+
+impl From<StoppedByRecord> for StoppedBy {
+    fn from(s: StoppedByRecord) -> Self {
+        match s {
+            StoppedByRecord::AllDrawn => StoppedBy::All,
+            StoppedByRecord::Hits => StoppedBy::Hits,
+            StoppedByRecord::LowerBoundary => StoppedBy::LowerBoundary,
+            StoppedByRecord::UpperBoundary => StoppedBy::UpperBoundary,
+            StoppedByRecord::Limit => StoppedBy::Limit,
+        }
+    }
 }
 
 impl From<&PermutationResult> for PermutationRecord {
@@ -986,12 +1079,20 @@ impl From<&PermutationResult> for PermutationRecord {
             seed,
             at_least_observed,
             p_value,
+            drawn,
+            stopped_by,
+            p_interval,
+            ref why,
         } = *p;
         PermutationRecord {
             permutations,
             seed,
             at_least_observed,
             p_value,
+            drawn,
+            stopped_by: stopped_by.into(),
+            p_interval,
+            why: why.clone(),
         }
     }
 }
@@ -1003,6 +1104,10 @@ impl From<&PermutationRecord> for PermutationResult {
             seed: p.seed,
             at_least_observed: p.at_least_observed,
             p_value: p.p_value,
+            drawn: p.drawn,
+            stopped_by: p.stopped_by.into(),
+            p_interval: p.p_interval,
+            why: p.why.clone(),
         }
     }
 }

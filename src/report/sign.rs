@@ -819,7 +819,16 @@ pub fn first_difference(recorded: &Value, recomputed: &Value) -> Option<String> 
 
 fn walk(path: &str, a: &Value, b: &Value, prose: bool) -> Option<String> {
     {
-        const SKIP: [&str; 3] = ["analysed_at", "software", "file"];
+        // `fields` (what was typed about the comparison), `protocol` (what it ran under) and
+        // `audit_trail` (the runs before it) are not results: never recomputed.
+        const SKIP: [&str; 6] = [
+            "analysed_at",
+            "software",
+            "file",
+            "fields",
+            "protocol",
+            "audit_trail",
+        ];
         match (a, b) {
             (Value::Object(x), Value::Object(y)) => {
                 for (k, va) in x {

@@ -7,7 +7,9 @@ use std::fmt::Write as _;
 use crate::analysis::Comparison;
 use crate::analysis::decision::MarginFrom;
 use crate::data::Prepared;
-use crate::format::{format_confidence, format_p, format_sig, p_text};
+use crate::format::{
+    format_confidence, format_measure, format_p, format_sig, p_text, shift_sentence,
+};
 use crate::stats::checks::{BoxM, Mardia, UnequalCovariance};
 use crate::stats::permutation::PermutationResult;
 
@@ -15,6 +17,20 @@ use super::CAUTION;
 
 fn unit_suffix(u: &Option<String>) -> String {
     u.as_ref().map(|u| format!(" ({u})")).unwrap_or_default()
+}
+
+/// The data's resolution for a characteristic: the finer of the two lots'.
+fn decimals_of(r: &crate::analysis::CharacteristicResult) -> Option<u8> {
+    crate::stats::moments::finer_decimals(r.lots[0].decimals, r.lots[1].decimals)
+}
+
+/// A characteristic's unit for a table cell ("" when the header gave none).
+fn unit_of(c: &Comparison, name: &str) -> String {
+    c.characteristics
+        .iter()
+        .position(|n| n == name)
+        .and_then(|k| c.units.get(k).cloned().flatten())
+        .unwrap_or_default()
 }
 
 /// Renders a comparison as plain text.
@@ -29,7 +45,7 @@ pub fn render_text(
     let h = &c.hotelling;
     let _ = writeln!(
         s,
-        "lotshift comparison (difference = first lot minus second lot)"
+        "lotshift comparison (every difference is candidate − reference: lot 2 minus lot 1)"
     );
     for (i, lot) in c.lots.iter().enumerate() {
         let extra = prepared
@@ -43,8 +59,9 @@ pub fn render_text(
             .unwrap_or_default();
         let _ = writeln!(
             s,
-            "  lot {}: \"{}\" from {} — {} units used{}",
+            "  lot {} ({}): \"{}\" from {} — {} units used{}",
             i + 1,
+            ["reference", "candidate"][i],
             lot.name,
             files[i],
             lot.n,
@@ -97,6 +114,34 @@ pub fn render_text(
             );
         }
     }
+    if let Some(p) = record.and_then(|r| r.protocol.as_ref()) {
+        let _ = writeln!(
+            s,
+            "  protocol: {}{} (SHA-256 {})",
+            p.file,
+            p.title
+                .as_ref()
+                .map(|t| format!(", \"{t}\""))
+                .unwrap_or_default(),
+            p.sha256
+        );
+        if p.deviations.is_empty() {
+            let _ = writeln!(s, "  run as the protocol fixes it: no deviation");
+        }
+        for d in &p.deviations {
+            let _ = writeln!(
+                s,
+                "  DEVIATION from the protocol: {} — reason: {}",
+                d.describe(),
+                d.reason
+            );
+        }
+    }
+    if let Some(fields) = record.map(|r| &r.fields).filter(|f| !f.is_empty()) {
+        for f in fields {
+            let _ = writeln!(s, "  {}: {}", f.name, f.value);
+        }
+    }
     let _ = writeln!(s, "\nVerdict\n  {}", c.verdict);
     for w in &c.warnings {
         let _ = writeln!(s, "  warning: {w}");
@@ -122,12 +167,7 @@ pub fn render_text(
              these lot sizes (along the observed direction: {})",
             format_sig(d.distance, 3),
             d.power,
-            c.characteristics
-                .iter()
-                .zip(&d.per_characteristic_sd)
-                .map(|(n, v)| format!("{n} {} SD", format_sig(*v, 2)))
-                .collect::<Vec<_>>()
-                .join(", ")
+            d.along_words(&c.characteristics)
         );
     }
 
@@ -135,15 +175,16 @@ pub fn render_text(
     let _ = writeln!(
         s,
         "  {:<22} {:>12} {:>12} {:>11} {:>10} {:>9} {:>9}",
-        "characteristic", "mean lot 1", "mean lot 2", "difference", "std diff", "t p", "Welch p"
+        "characteristic", "mean ref.", "mean cand.", "cand − ref", "std diff", "t p", "Welch p"
     );
     for r in &c.per_characteristic {
+        let decimals = decimals_of(r);
         let _ = writeln!(
             s,
             "  {:<22} {:>12} {:>12} {:>11} {:>10} {:>9} {:>9}",
             format!("{}{}", r.characteristic, unit_suffix(&r.unit)),
-            format_sig(r.lots[0].mean, 6),
-            format_sig(r.lots[1].mean, 6),
+            format_measure(r.lots[0].mean, decimals),
+            format_measure(r.lots[1].mean, decimals),
             format_sig(r.difference, 4),
             format_sig(r.standardized_difference, 3),
             format_p(r.pooled_p),
@@ -152,13 +193,14 @@ pub fn render_text(
     }
     let _ = writeln!(
         s,
-        "\nIntervals for the mean difference at {}% confidence (* excludes zero)",
+        "\nIntervals for the mean difference, candidate − reference, at {}% confidence, in each \
+         characteristic's unit (* excludes zero)",
         format_confidence(c.alpha())
     );
     let _ = writeln!(
         s,
-        "  {:<22} {:>11} {:>25} {:>25} {:>25}",
-        "characteristic", "difference", "simultaneous (T²)", "Bonferroni", "one at a time"
+        "  {:<22} {:>6} {:>11} {:>25} {:>25} {:>25}",
+        "characteristic", "unit", "cand − ref", "simultaneous (T²)", "Bonferroni", "one at a time"
     );
     let iv = |x: [f64; 2], flag: bool| {
         format!(
@@ -171,12 +213,29 @@ pub fn render_text(
     for i in &c.intervals {
         let _ = writeln!(
             s,
-            "  {:<22} {:>11} {:>25} {:>25} {:>25}",
+            "  {:<22} {:>6} {:>11} {:>25} {:>25} {:>25}",
             i.characteristic,
+            unit_of(c, &i.characteristic),
             format_sig(i.difference, 4),
             iv(i.simultaneous, i.excludes_zero[0]),
             iv(i.bonferroni, i.excludes_zero[1]),
             iv(i.one_at_a_time, i.excludes_zero[2])
+        );
+    }
+    let conf = format_confidence(c.alpha());
+    let _ = writeln!(s, "\nIn words");
+    for (i, r) in c.intervals.iter().zip(&c.per_characteristic) {
+        let _ = writeln!(
+            s,
+            "  {}",
+            shift_sentence(
+                &i.characteristic,
+                r.unit.as_deref(),
+                i.difference,
+                i.simultaneous,
+                decimals_of(r),
+                &conf
+            )
         );
     }
     let d = &c.discriminant;
@@ -495,18 +554,43 @@ pub fn unequal_line(u: &UnequalCovariance) -> String {
     )
 }
 
-/// The permutation p-value in one line.
+/// The permutation p-value in one line, with one plain sentence on how many relabellings
+/// were drawn and why the drawing stopped.
 pub fn permutation_line(p: &PermutationResult) -> String {
-    // Monte Carlo standard error of the estimated p-value over B relabellings.
-    let se = (p.p_value * (1.0 - p.p_value) / p.permutations.max(1) as f64).sqrt();
+    use crate::stats::permutation::StoppedBy;
+    let drawn = p.draws();
+    let value = match (p.stopped_by, p.p_interval) {
+        (StoppedBy::LowerBoundary | StoppedBy::UpperBoundary, Some([lo, hi])) => {
+            format!("between {} and {}", format_p(lo), format_p(hi))
+        }
+        (StoppedBy::Hits, _) => format_p(p.p_value),
+        _ => {
+            // Monte Carlo standard error of the estimated p-value over the draws made.
+            let se = (p.p_value * (1.0 - p.p_value) / drawn.max(1) as f64).sqrt();
+            format!(
+                "{} ± {} (Monte Carlo standard error)",
+                format_p(p.p_value),
+                format_sig(se, 2)
+            )
+        }
+    };
+    if p.why.is_empty() {
+        // A result from before sequential stopping.
+        return format!(
+            "{value}; {} of {} relabellings reached the observed T², seed {}",
+            p.at_least_observed, p.permutations, p.seed
+        );
+    }
+    if p.stopped_by == StoppedBy::All {
+        let mut why = p.why.clone();
+        if let Some(first) = why.get_mut(0..1) {
+            first.make_ascii_uppercase();
+        }
+        return format!("{value}; seed {}. {why}.", p.seed);
+    }
     format!(
-        "{} ± {} (Monte Carlo standard error; {} of {} relabellings reached the observed T², \
-         seed {})",
-        format_p(p.p_value),
-        format_sig(se, 2),
-        p.at_least_observed,
-        p.permutations,
-        p.seed
+        "{value}; seed {}. Stopped after {drawn} of at most {} relabellings: {}.",
+        p.seed, p.permutations, p.why
     )
 }
 

@@ -234,49 +234,52 @@ pub fn whiten_keeping(c: &mut DMatrix<f64>) -> Option<Whitening> {
 /// Mardia's statistics from whitened units (`n × p`, one row per unit).
 pub fn mardia(lot: &str, z: &DMatrix<f64>) -> Mardia {
     let (n, p) = z.shape();
-    // Upper-triangle entries (a ≤ b ≤ c) of the symmetric tensor, with their multiplicity.
-    let mut weights = Vec::new();
-    for a in 0..p {
-        for b in a..p {
-            for c in b..p {
-                let w = if a == b && b == c {
-                    1.0
-                } else if a == b || b == c {
-                    3.0
-                } else {
-                    6.0
-                };
-                weights.push(w);
+    // The third-moment tensor T_abc = Σᵢ zᵢₐ zᵢ_b zᵢ_c, for a ≤ b and every c, as a matrix
+    // product over blocks of units: T += Zᵀ W, W holding each unit's pairwise products
+    // (one column per pair a ≤ b). b1 = Σ over all ordered (a, b, c) of (T_abc / n)²: each
+    // pair a < b stands for two ordered pairs.
+    let pairs: Vec<(usize, usize)> = (0..p).flat_map(|a| (a..p).map(move |b| (a, b))).collect();
+    let q = pairs.len();
+    const BLOCK: usize = 512;
+    let mut tensor = DMatrix::<f64>::zeros(p, q);
+    let mut b2_sum = 0.0;
+    let mut r2 = vec![0.0; BLOCK];
+    let mut start = 0;
+    while start < n {
+        let m = BLOCK.min(n - start);
+        let zt = DMatrix::from_fn(p, m, |a, i| z[(start + i, a)]);
+        let mut w = DMatrix::<f64>::zeros(m, q);
+        for (k, &(a, b)) in pairs.iter().enumerate() {
+            let all = z.as_slice();
+            let ca = &all[a * n + start..a * n + start + m];
+            let cb = &all[b * n + start..b * n + start + m];
+            for ((dst, &x), &y) in w.column_mut(k).iter_mut().zip(ca).zip(cb) {
+                *dst = x * y;
             }
         }
-    }
-    let mut tensor = vec![0.0; weights.len()];
-    let mut b2_sum = 0.0;
-    let mut row = vec![0.0; p];
-    for i in 0..n {
-        for (k, r) in row.iter_mut().enumerate() {
-            *r = z[(i, k)];
-        }
-        let mut k = 0;
-        for a in 0..p {
-            let za = row[a];
-            for b in a..p {
-                let zab = za * row[b];
-                for &zc in &row[b..p] {
-                    tensor[k] += zab * zc;
-                    k += 1;
+        tensor.gemm(1.0, &zt, &w, 1.0);
+        // Each unit's squared length, from the diagonal pairs.
+        r2[..m].fill(0.0);
+        for (k, &(a, b)) in pairs.iter().enumerate() {
+            if a == b {
+                for (acc, &v) in r2[..m].iter_mut().zip(w.column(k).iter()) {
+                    *acc += v;
                 }
             }
         }
-        let r2: f64 = row.iter().map(|v| v * v).sum();
-        b2_sum += r2 * r2;
+        b2_sum += r2[..m].iter().map(|v| v * v).sum::<f64>();
+        start += m;
     }
+    let weights: Vec<f64> = pairs
+        .iter()
+        .map(|&(a, b)| if a == b { 1.0 } else { 2.0 })
+        .collect();
     let nf = n as f64;
     let pf = p as f64;
     let b1: f64 = tensor
-        .iter()
+        .column_iter()
         .zip(&weights)
-        .map(|(t, w)| w * (t / nf) * (t / nf))
+        .map(|(col, w)| w * col.iter().map(|t| (t / nf) * (t / nf)).sum::<f64>())
         .sum();
     let b2 = b2_sum / nf;
     let skewness_stat = nf * b1 / 6.0;

@@ -4,7 +4,7 @@
 //!
 //! # Formula
 //! `Sp = ((n1−1)S1 + (n2−1)S2)/(N−2)`, `T² = n1 n2/N · dᵀ Sp⁻¹ d`,
-//! `F = (N−p−1)/((N−2)p) · T²` on `(p, N−p−1)` df, `d = x̄1 − x̄2`.
+//! `F = (N−p−1)/((N−2)p) · T²` on `(p, N−p−1)` df, `d = x̄2 − x̄1`: lot 2 (the candidate) minus lot 1 (the reference).
 //! Solves use the Cholesky factor of the pooled *correlation* matrix `R = D⁻¹ Sp D⁻¹`
 //! (`D` the pooled standard deviations), so characteristics in very different units do not
 //! spoil the conditioning; no inverse is formed.
@@ -139,6 +139,19 @@ impl Pooled {
         self.chol.solve(&z).component_div(&self.sd)
     }
 
+    /// `Sp⁻¹ V` for every column of `V` at once (one blocked triangular solve).
+    pub fn solve_columns(&self, v: &DMatrix<f64>) -> DMatrix<f64> {
+        let mut z = v.clone();
+        for (mut row, &sd) in z.row_iter_mut().zip(self.sd.iter()) {
+            row /= sd;
+        }
+        self.chol.solve_mut(&mut z);
+        for (mut row, &sd) in z.row_iter_mut().zip(self.sd.iter()) {
+            row /= sd;
+        }
+        z
+    }
+
     /// Diagonal of `R⁻¹` (needed for each characteristic's unique contribution), from the
     /// triangular factor: `(R⁻¹)_kk = ‖L⁻¹ e_k‖²`.
     pub fn corr_inverse_diagonal(&self) -> DVector<f64> {
@@ -159,7 +172,7 @@ impl Pooled {
 /// The test and everything derived from the pooled solve.
 #[derive(Debug, Clone)]
 pub struct TwoSampleT2 {
-    /// `d = x̄1 − x̄2`.
+    /// `d = x̄2 − x̄1` (candidate − reference).
     pub difference: DVector<f64>,
     /// Hotelling's T².
     pub t2: f64,
@@ -190,7 +203,7 @@ pub struct TwoSampleT2 {
 /// Runs the two-sample T² on pooled moments at level `alpha`.
 ///
 /// # Formula
-/// `T² = n1 n2/(n1 + n2) · dᵀ Sp⁻¹ d` with `d = x̄1 − x̄2` and the pooled covariance `Sp`;
+/// `T² = n1 n2/(n1 + n2) · dᵀ Sp⁻¹ d` with `d = x̄2 − x̄1` (candidate − reference) and the pooled covariance `Sp`;
 /// `F = (N − p − 1)/((N − 2) p) · T²` on `(p, N − p − 1)` df (Johnson & Wichern, Applied
 /// Multivariate Statistical Analysis, 6th ed., Result 6.2). `Sp⁻¹ d` comes from a Cholesky
 /// solve of the pooled correlation matrix, never from an inverse.
@@ -211,7 +224,7 @@ pub struct TwoSampleT2 {
 /// let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
 /// let ss = |v: &[f64]| v.iter().map(|x| (x - mean(v)).powi(2)).sum::<f64>();
 /// let sp2 = (ss(&a) + ss(&b)) / 9.0;
-/// let t = (mean(&a) - mean(&b)) / (sp2 * (1.0 / 5.0 + 1.0 / 6.0)).sqrt();
+/// let t = (mean(&b) - mean(&a)) / (sp2 * (1.0 / 5.0 + 1.0 / 6.0)).sqrt();
 /// assert!((test.t2 - t * t).abs() < 1e-12 * t * t);
 /// assert!((test.f - t * t).abs() < 1e-12 * t * t); // p = 1: F = T²
 /// ```
@@ -219,7 +232,7 @@ pub fn two_sample(m1: &LotMoments, m2: &LotMoments, pooled: &Pooled, alpha: f64)
     let p = m1.dim();
     let (n1, n2) = (m1.n as f64, m2.n as f64);
     let n = n1 + n2;
-    let difference = &m1.offset - &m2.offset;
+    let difference = &m2.offset - &m1.offset;
     let z = difference.component_div(&pooled.sd);
     let standardized = pooled.solve_corr(&z);
     let coefficients = standardized.component_div(&pooled.sd);
@@ -317,7 +330,7 @@ pub struct UnivariateTests {
 /// Pooled and Welch t tests of characteristic `k`.
 pub fn univariate(m1: &LotMoments, m2: &LotMoments, pooled: &Pooled, k: usize) -> UnivariateTests {
     let (n1, n2) = (m1.n as f64, m2.n as f64);
-    let d = m1.offset[k] - m2.offset[k];
+    let d = m2.offset[k] - m1.offset[k];
     let pooled_df = n1 + n2 - 2.0;
     let pooled_t = d / ((1.0 / n1 + 1.0 / n2) * pooled.covariance[(k, k)]).sqrt();
     let v1 = if m1.n > 1 {

@@ -156,6 +156,42 @@ pub struct ColumnSummary {
     pub median: f64,
     /// Largest value.
     pub max: f64,
+    /// Decimal places the values carry (the data's resolution), when they have at most 9.
+    #[serde(default)]
+    pub decimals: Option<u8>,
+}
+
+/// The resolution of two lots' data on one characteristic: the finer (more places) of the
+/// two, when both are known or either is.
+pub fn finer_decimals(a: Option<u8>, b: Option<u8>) -> Option<u8> {
+    match (a, b) {
+        (Some(x), Some(y)) => Some(x.max(y)),
+        (x, y) => x.or(y),
+    }
+}
+
+/// The number of decimal places the measurements carry, read off the values themselves: the
+/// fewest `d ≤ 9` such that every value (of the first 2,000) times `10^d` is a whole number
+/// to within the rounding of its decimal reading. `None` for no values or for values with
+/// more places (computed rather than measured numbers).
+pub fn resolution_decimals(values: &[f64]) -> Option<u8> {
+    let sample: Vec<f64> = values
+        .iter()
+        .copied()
+        .filter(|v| v.is_finite())
+        .take(2000)
+        .collect();
+    if sample.is_empty() {
+        return None;
+    }
+    (0u8..=9).find(|&d| {
+        let scale = 10f64.powi(i32::from(d));
+        sample.iter().all(|&v| {
+            let x = v * scale;
+            // A decimal reading is off by half an ulp, and the scaling adds another.
+            (x - x.round()).abs() <= 8.0 * f64::EPSILON * x.abs().max(1.0)
+        })
+    })
 }
 
 /// Summary of one column; `mean` and `ssp_kk` come from [`LotMoments`].
@@ -190,12 +226,28 @@ pub fn column_summary(values: &[f64], mean: f64, ssp_kk: f64) -> ColumnSummary {
         min,
         median,
         max,
+        decimals: resolution_decimals(values),
     }
 }
 
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn resolution_is_read_off_the_values() {
+        // Values as a gauge writes them (decimal readings, so not exact binary fractions).
+        assert_eq!(resolution_decimals(&[24.812, 24.8, 25.0, 24.999]), Some(3));
+        assert_eq!(resolution_decimals(&[12.0, 13.0, f64::NAN]), Some(0));
+        assert_eq!(resolution_decimals(&[0.1 + 0.2]), Some(1));
+        assert_eq!(resolution_decimals(&[1.0 / 3.0]), None);
+        // Far from zero the last places still count.
+        assert_eq!(
+            resolution_decimals(&[1_000_000.123_4, 1_000_000.5]),
+            Some(4)
+        );
+        assert_eq!(resolution_decimals(&[]), None);
+    }
 
     #[test]
     fn median_of_even_and_odd_counts() {

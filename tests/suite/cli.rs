@@ -48,7 +48,7 @@ fn compare_prints_the_verdict_and_writes_the_record() {
     assert!(out.contains("supports, and does not replace"));
     let rec: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
-    assert_eq!(rec["schema"], "lotshift.comparison/1");
+    assert_eq!(rec["schema"], "lotshift.comparison/2");
     assert_eq!(rec["alpha"], 0.05);
     assert_eq!(rec["lots"][0]["n"], 39);
     assert_eq!(rec["lots"][0]["n_excluded"], 1);
@@ -729,4 +729,196 @@ fn a_tiny_lot_says_which_checks_could_not_run() {
     assert!(why.contains("Mardia's tests for \"tiny\""), "{why}");
     assert!(why.contains("Shapiro–Wilk needs at least 3 units"), "{why}");
     std::fs::remove_dir_all(dir).unwrap();
+}
+
+#[test]
+fn every_output_names_the_direction_candidate_minus_reference() {
+    // A mistake this guards against: reading a shift the wrong way round. The text, the HTML
+    // report and the record all say candidate − reference, and the numbers agree with it:
+    // each difference is the candidate's mean minus the reference's (arithmetic on the
+    // record's own means).
+    let dir = tmpdir("direction");
+    let (json, html) = (dir.join("r.json"), dir.join("r.html"));
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--json",
+        json.to_str().unwrap(),
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(
+        out.contains("every difference is candidate − reference"),
+        "{out}"
+    );
+    assert!(out.contains("Intervals for the mean difference, candidate − reference"));
+    assert!(
+        out.contains("The candidate's hub length is 0.0094 mm higher on average"),
+        "{out}"
+    );
+    // Means to the data's resolution (three decimals in the files) plus one digit.
+    assert!(out.contains("27.9956") && out.contains("28.0050"), "{out}");
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(page.contains("every difference is candidate minus reference"));
+    assert!(page.contains("<th>cand. − ref.</th>"));
+    assert!(
+        page.contains("The candidate&#39;s hub length")
+            || page.contains("The candidate's hub length")
+    );
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(rec["schema"], "lotshift.comparison/2");
+    for (k, row) in rec["per_characteristic"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .enumerate()
+    {
+        let m = |g: usize| rec["lots"][g]["mean"][k].as_f64().unwrap();
+        let d = row["difference"].as_f64().unwrap();
+        assert!((d - (m(1) - m(0))).abs() < 1e-9 * m(0).abs(), "{k}");
+        // The files carry three decimals in mm and two in g.
+        let places = if row["unit"] == "g" { 2 } else { 3 };
+        assert_eq!(row["lots"][0]["decimals"], places, "{k}");
+        let iv = &rec["intervals"][k];
+        assert_eq!(iv["difference"].as_f64().unwrap(), d);
+    }
+}
+
+#[test]
+fn fields_describe_the_comparison_in_the_record_text_and_report() {
+    let dir = tmpdir("fields");
+    let (json, html) = (dir.join("r.json"), dir.join("r.html"));
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--field",
+        "part=HX40 hub",
+        "--field",
+        "change request = CR-0193",
+        "--field",
+        "supplier=Route B works",
+        "--json",
+        json.to_str().unwrap(),
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stdout(&o).contains("  change request: CR-0193"));
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(rec["fields"][0]["name"], "part");
+    assert_eq!(rec["fields"][1]["value"], "CR-0193");
+    assert_eq!(rec["fields"][2]["name"], "supplier");
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(page.contains("HX40 hub") && page.contains("Route B works"));
+    // A standard entry left blank still shows on paper.
+    assert!(
+        page.contains("reference lot</th><td class=\"name\"><span class=\"muted\">(not given)")
+    );
+    // A malformed entry stops before anything is read or written.
+    let o = run(&[
+        "compare",
+        sample("reference-route-a.csv").to_str().unwrap(),
+        sample("candidate-route-b.csv").to_str().unwrap(),
+        "--field",
+        "part",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("--field takes NAME=VALUE"),
+        "{}",
+        stderr(&o)
+    );
+}
+
+#[test]
+fn a_protocol_runs_as_fixed_and_a_change_is_a_recorded_deviation() {
+    let dir = tmpdir("protocol");
+    let protocol = sample("hub-protocol.json");
+    let p = protocol.to_str().unwrap();
+    // As fixed: its lots, characteristics, settings, specification and description.
+    let json = dir.join("as-fixed.json");
+    let o = run(&["compare", "--protocol", p, "--json", json.to_str().unwrap()]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stdout(&o).contains("run as the protocol fixes it: no deviation"));
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let bytes = std::fs::read(&protocol).unwrap();
+    let sha = lotshift::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+    assert_eq!(rec["protocol"]["sha256"], sha.as_str());
+    assert_eq!(rec["protocol"]["deviations"].as_array().unwrap().len(), 0);
+    assert_eq!(rec["settings"]["permutations"], 999);
+    assert_eq!(rec["settings"]["seed"], 20_261_105);
+    assert!(rec["specification"]["sha256"].is_string());
+    assert_eq!(rec["fields"][1]["name"], "change request");
+    // A change without a reason is refused, naming it, and nothing is written.
+    let refused = dir.join("refused.json");
+    let o = run(&[
+        "compare",
+        "--protocol",
+        p,
+        "--alpha",
+        "0.01",
+        "--json",
+        refused.to_str().unwrap(),
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("alpha: 0.01 (protocol: 0.05)"),
+        "{}",
+        stderr(&o)
+    );
+    assert!(!refused.exists());
+    // With a reason it runs, and each difference is recorded with it.
+    let json = dir.join("deviation.json");
+    let html = dir.join("deviation.html");
+    let o = run(&[
+        "compare",
+        "--protocol",
+        p,
+        "--alpha",
+        "0.01",
+        "--no-holdout",
+        "--deviation",
+        "customer asked for 99% confidence",
+        "--json",
+        json.to_str().unwrap(),
+        "--html",
+        html.to_str().unwrap(),
+    ]);
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(stdout(&o).contains("DEVIATION from the protocol: alpha: 0.01 (protocol: 0.05)"));
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    let d = rec["protocol"]["deviations"].as_array().unwrap();
+    assert_eq!(d.len(), 2, "{d:?}");
+    assert_eq!(d[0]["what"], "alpha");
+    assert_eq!(d[1]["what"], "leave one out");
+    assert_eq!(d[1]["reason"], "customer asked for 99% confidence");
+    assert_eq!(rec["alpha"], 0.01);
+    let page = std::fs::read_to_string(&html).unwrap();
+    assert!(
+        page.contains("id=\"deviations\"") && page.contains("customer asked for 99% confidence")
+    );
+    // A protocol with a key lotshift does not know is refused, naming the file and the place.
+    let bad = dir.join("bad-protocol.json");
+    std::fs::write(
+        &bad,
+        std::fs::read_to_string(&protocol)
+            .unwrap()
+            .replace("\"title\"", "\"titel\""),
+    )
+    .unwrap();
+    let o = run(&["compare", "--protocol", bad.to_str().unwrap()]);
+    assert_eq!(o.status.code(), Some(2));
+    let e = stderr(&o);
+    assert!(
+        e.contains("bad-protocol.json: line") && e.contains("titel"),
+        "{e}"
+    );
 }

@@ -1128,3 +1128,215 @@ fn swapping_the_lots_mirrors_an_asymmetric_margin() {
     );
     assert_eq!(margin(&h), [-0.03, 0.01]);
 }
+
+#[test]
+fn a_unit_set_aside_in_the_window_is_left_out_recorded_and_put_back() {
+    use lotshift::gui::action::Action;
+    let mut h = harness();
+    let before = h.state().result.shown().unwrap().comparison.clone();
+    let lot = h.state().lots.slots[1].clone().unwrap();
+    let row = lot.rows[3];
+    h.state_mut().apply(Action::SetUnitAside {
+        lot: 1,
+        row,
+        labels: vec![],
+        reason: "gauge fault, remeasured".into(),
+    });
+    settle(&mut h);
+    let s = h.state().result.shown().unwrap();
+    assert_eq!(s.comparison.lots[1].n, before.lots[1].n - 1);
+    assert_eq!(s.record.exclusions.len(), 1);
+    assert_eq!(s.record.exclusions[0].row, row);
+    assert_eq!(s.record.exclusions[0].reason, "gauge fault, remeasured");
+    // The same exclusion through the command line's path gives the same T² (one pipeline).
+    let mut lots = [
+        (*h.state().lots.slots[0].clone().unwrap()).clone(),
+        (*lot).clone(),
+    ];
+    let request = lotshift::pipeline::Request {
+        exclusions: vec![lotshift::data::exclusions::Exclusion {
+            lot: 1,
+            row,
+            labels: vec![],
+            reason: "gauge fault, remeasured".into(),
+        }],
+        ..lotshift::pipeline::Request::default()
+    };
+    let (_, c) =
+        lotshift::pipeline::run_owned(&mut lots, &request, &lotshift::analysis::Silent).unwrap();
+    assert!((c.hotelling.t2 - s.comparison.hotelling.t2).abs() < 1e-9 * c.hotelling.t2);
+    h.get_by_label_contains(&format!("set aside: candidate lot, row {row}"));
+    h.get_by_label("put back");
+    h.state_mut().apply(Action::RestoreUnit { lot: 1, row });
+    settle(&mut h);
+    let s = h.state().result.shown().unwrap();
+    assert_eq!(s.comparison.lots[1].n, before.lots[1].n);
+    assert!(s.record.exclusions.is_empty());
+    assert!((s.comparison.hotelling.t2 - before.hotelling.t2).abs() < 1e-12 * before.hotelling.t2);
+}
+
+#[test]
+fn the_description_typed_in_the_window_goes_into_the_record_and_survives_a_rerun() {
+    let mut h = harness();
+    h.get_by_label("About this comparison (for the record)");
+    h.state_mut().fields[0] = "HX40 hub".into();
+    h.state_mut().fields[3] = " CR-0193 ".into();
+    h.state_mut().sync_fields();
+    let fields =
+        |h: &Harness<'static, LotshiftApp>| h.state().result.shown().unwrap().record.fields.clone();
+    let f = fields(&h);
+    assert_eq!(f.len(), 2);
+    assert_eq!(
+        (f[0].name.as_str(), f[0].value.as_str()),
+        ("part", "HX40 hub")
+    );
+    assert_eq!(
+        (f[1].name.as_str(), f[1].value.as_str()),
+        ("change request", "CR-0193")
+    );
+    // A new run keeps what was typed.
+    h.state_mut().apply(lotshift::gui::action::Action::Rerun);
+    settle(&mut h);
+    assert_eq!(fields(&h), f);
+}
+
+#[test]
+fn a_protocol_fixes_the_window_and_a_change_waits_for_its_reason() {
+    use lotshift::gui::action::Action;
+    let mut app = LotshiftApp::new(None, Saved::default());
+    app.load_protocol(&common::sample("hub-protocol.json"));
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    // Its lots, settings and specification are in; the run is as fixed.
+    h.get_by_label_contains("Protocol:");
+    h.get_by_label("— run as fixed");
+    {
+        let s = h.state().result.shown().expect("a result");
+        assert_eq!(s.comparison.settings.permutations, 999);
+        assert_eq!(s.comparison.settings.seed, 20_261_105);
+        assert!(
+            s.comparison.decision.is_some(),
+            "the protocol's specification is applied"
+        );
+        let p = s
+            .record
+            .protocol
+            .as_ref()
+            .expect("the record names the protocol");
+        assert!(p.deviations.is_empty());
+        assert_eq!(s.record.fields[0].name, "part");
+    }
+    // A change of a setting holds the run until a reason is given.
+    let mut settings = h.state().saved.settings.clone();
+    settings.alpha = 0.01;
+    h.state_mut().apply(Action::Settings(Box::new(settings)));
+    h.state_mut().apply(Action::Rerun);
+    settle(&mut h);
+    assert!(h.state().result.is_held());
+    h.get_by_label("This comparison differs from the protocol:");
+    h.get_by_label("  alpha: 0.01 (protocol: 0.05)");
+    h.state_mut().apply(Action::AcceptDeviations(
+        "customer asked for 99% confidence".into(),
+    ));
+    settle(&mut h);
+    let s = h.state().result.shown().unwrap();
+    assert!(h.state().result.is_current());
+    assert_eq!(s.comparison.alpha(), 0.01);
+    let d = &s.record.protocol.as_ref().unwrap().deviations;
+    assert_eq!(d.len(), 1);
+    assert_eq!(
+        (d[0].what.as_str(), d[0].used.as_str(), d[0].reason.as_str()),
+        ("alpha", "0.01", "customer asked for 99% confidence")
+    );
+    h.get_by_label("— 1 deviation recorded");
+}
+
+#[test]
+fn every_run_in_the_window_goes_into_the_audit_trail_and_verify_checks_it() {
+    use lotshift::gui::action::Action;
+    use lotshift::report::sign::{self, Meaning};
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-trail-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    let trail = dir.join("audit-trail.jsonl");
+    let mut app = LotshiftApp::new(None, Saved::default());
+    app.trail = Some(lotshift::report::trail::Trail::at(trail.clone()));
+    app.load_samples();
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    // A second run with one characteristic unticked: both are in the trail and the record.
+    h.state_mut().apply(Action::SetCompared {
+        key: lotshift::data::match_key("mass"),
+        compared: false,
+    });
+    h.state_mut().apply(Action::Rerun);
+    settle(&mut h);
+    let chain = lotshift::report::trail::read_chain(&trail).unwrap();
+    assert_eq!(chain.len(), 2);
+    assert!(!chain[1].characteristics.iter().any(|c| c == "mass"));
+    let record = h.state().result.shown().unwrap().record.clone();
+    let audit = record
+        .audit_trail
+        .clone()
+        .expect("the record lists the runs");
+    assert_eq!(audit.runs.len(), 2);
+    assert_eq!(audit.final_hash, chain[1].hash);
+    assert!(
+        audit.runs[0].headline.contains("T² ="),
+        "{}",
+        audit.runs[0].headline
+    );
+    // Signed, the summary verifies against the trail; an edited trail does not.
+    let key = ed25519_key();
+    let summary = sign::sign(
+        &record,
+        &key,
+        "Dana Whitfield",
+        Meaning::Authorship,
+        "2026-12-02T10:00:00Z",
+    )
+    .unwrap();
+    let path = dir.join("summary.json");
+    std::fs::write(&path, summary.to_json()).unwrap();
+    let verify = |trail: &std::path::Path| {
+        std::process::Command::new(env!("CARGO_BIN_EXE_lotshift"))
+            .args([
+                "verify",
+                path.to_str().unwrap(),
+                "--trail",
+                trail.to_str().unwrap(),
+            ])
+            .output()
+            .unwrap()
+    };
+    let o = verify(&trail);
+    let out = String::from_utf8_lossy(&o.stdout).into_owned();
+    assert!(out.contains("2 entries, chain intact"), "{out}");
+    // The trail holds, but with no trusted list and no lot files the summary is only
+    // partially verified: its own status, never the one of a verified summary.
+    assert_eq!(
+        o.status.code(),
+        Some(i32::from(lotshift::exit::EXIT_PARTIALLY_VERIFIED)),
+        "{out}"
+    );
+    assert!(out.contains("PARTIALLY VERIFIED"), "{out}");
+    let edited = dir.join("edited.jsonl");
+    let text = std::fs::read_to_string(&trail).unwrap();
+    std::fs::write(
+        &edited,
+        text.replacen("the lots differ", "no difference detected", 1),
+    )
+    .unwrap();
+    let o = verify(&edited);
+    let out = String::from_utf8_lossy(&o.stdout).into_owned();
+    assert_eq!(o.status.code(), Some(1), "{out}");
+    assert!(
+        out.contains("NOT VERIFIED") && out.contains("line 1") && out.contains("edited"),
+        "{out}"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}

@@ -17,4 +17,5 @@ mod loading;
 mod properties;
 mod record_schema;
 mod reference;
+mod sequential;
 mod signing;

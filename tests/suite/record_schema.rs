@@ -522,6 +522,30 @@ fn full_record() -> Record {
         "anderson_darling_modified": 0.3, "anderson_darling_p": 0.5, "z_skewness": 1.0,
         "z_kurtosis": 1.0, "k2": 2.0, "k2_p": 0.37}"#;
     record.normality[0].large[1] = Some(serde_json::from_str(json).unwrap());
+    record.fields = vec![lotshift::report::parse_field("part=HX40 hub").unwrap()];
+    record.protocol = Some(lotshift::report::ProtocolRecord {
+        file: "protocol.json".into(),
+        sha256: "0".repeat(64),
+        title: Some("a protocol".into()),
+        deviations: vec![lotshift::report::Deviation {
+            what: "alpha".into(),
+            protocol: "0.05".into(),
+            used: "0.01".into(),
+            reason: "asked for".into(),
+        }],
+    });
+    record.audit_trail = Some(lotshift::report::AuditRecord {
+        file: "audit-trail.jsonl".into(),
+        final_hash: "1".repeat(64),
+        runs: vec![lotshift::report::AuditRun {
+            seq: 1,
+            at: "2026-12-02T10:00:00Z".into(),
+            characteristics: vec!["hub length".into()],
+            settings: serde_json::json!({"alpha": 0.05}),
+            headline: "the lots differ".into(),
+            hash: "1".repeat(64),
+        }],
+    });
     record
 }
 
@@ -540,6 +564,9 @@ const KEYS: &[&str] = &[
     "settings.checks",
     "settings.permutations",
     "settings.seed",
+    "settings.sequential",
+    "settings.sequential.hits",
+    "settings.sequential.risk",
     "alpha",
     "characteristics",
     "units",
@@ -609,6 +636,7 @@ const KEYS: &[&str] = &[
     "per_characteristic[].lots[].min",
     "per_characteristic[].lots[].median",
     "per_characteristic[].lots[].max",
+    "per_characteristic[].lots[].decimals",
     "per_characteristic[].difference",
     "per_characteristic[].pooled_sd",
     "per_characteristic[].standardized_difference",
@@ -678,6 +706,10 @@ const KEYS: &[&str] = &[
     "permutation.seed",
     "permutation.at_least_observed",
     "permutation.p_value",
+    "permutation.drawn",
+    "permutation.stopped_by",
+    "permutation.p_interval",
+    "permutation.why",
     "favoured",
     "favoured.test",
     "favoured.why",
@@ -757,6 +789,29 @@ const KEYS: &[&str] = &[
     "without_outliers.p_value",
     "without_outliers.differ",
     "without_outliers.same_decision",
+    "fields",
+    "fields[].name",
+    "fields[].value",
+    "protocol",
+    "protocol.file",
+    "protocol.sha256",
+    "protocol.title",
+    "protocol.deviations",
+    "protocol.deviations[].what",
+    "protocol.deviations[].protocol",
+    "protocol.deviations[].used",
+    "protocol.deviations[].reason",
+    "audit_trail",
+    "audit_trail.file",
+    "audit_trail.final_hash",
+    "audit_trail.runs",
+    "audit_trail.runs[].seq",
+    "audit_trail.runs[].at",
+    "audit_trail.runs[].characteristics",
+    "audit_trail.runs[].settings",
+    "audit_trail.runs[].settings.alpha",
+    "audit_trail.runs[].headline",
+    "audit_trail.runs[].hash",
 ];
 
 #[test]

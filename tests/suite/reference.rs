@@ -57,6 +57,7 @@ fn every_fixture_case_matches_numpy_and_scipy() {
             checks: true,
             permutations: 0,
             seed: 1,
+            sequential: None,
         };
         let c = analysis::compare(
             &names,
@@ -388,8 +389,9 @@ fn johnson_wichern_example_6_3_soap() {
     // Exact algebra of the same inputs: Sp = [[2, 1], [1, 5]], d = (-1.9, 0.2),
     // dᵀ Sp⁻¹ d = 18.89 / 9, so T² = 25 · 18.89 / 9.
     assert!((c.hotelling.t2 - 25.0 * 18.89 / 9.0).abs() < 1e-10);
-    // The difference is first minus second.
-    assert!((c.intervals[0].difference + 1.9).abs() < 1e-12);
+    // The book's difference is first minus second (-1.9); lotshift reports the second lot
+    // (the candidate) minus the first (the reference).
+    assert!((c.intervals[0].difference - 1.9).abs() < 1e-12);
 }
 
 #[test]
@@ -416,9 +418,11 @@ fn johnson_wichern_example_6_4_electricity() {
         analysis::compare_summaries(&names, &[None, None], [&a, &b], &Settings::default()).unwrap();
     assert!((c.hotelling.t2 - 16.07).abs() < 0.01, "{}", c.hotelling.t2);
     let iv = c.intervals[0].simultaneous;
-    // The book's c² is rounded; the exact one is a little smaller, so allow 0.2.
+    // The book's interval is for first minus second; lotshift's is candidate (second) minus
+    // reference (first), its mirror. The book's c² is rounded; the exact one is a little
+    // smaller, so allow 0.2.
     assert!(
-        (iv[0] - 21.7).abs() < 0.2 && (iv[1] - 127.1).abs() < 0.2,
+        (iv[0] + 127.1).abs() < 0.2 && (iv[1] + 21.7).abs() < 0.2,
         "{iv:?}"
     );
 }

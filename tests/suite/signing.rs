@@ -460,6 +460,24 @@ fn the_html_report_renders_in_a_real_browser() {
     assert!(text.contains("The lots differ at alpha 0.05"), "{text}");
     assert!(text.contains("Dana Whitfield"), "{text}");
     assert!(text.contains("does not replace"), "{text}");
+    // The complete report: the description (blank entries printed as such), every check's
+    // reading, both misclassification rates, the condition number and the settings.
+    for want in [
+        "change request",
+        "(not given)",
+        "Shapiro–Wilk",
+        "misclassified by the discriminant rule",
+        "misclassified, each unit held out",
+        "condition number of the pooled correlation matrix",
+        "Settings",
+        "permutations",
+        "candidate minus reference",
+    ] {
+        assert!(
+            text.contains(want),
+            "the printed report lacks \"{want}\": {text}"
+        );
+    }
     std::fs::remove_dir_all(dir).unwrap();
 }
 
@@ -922,4 +940,108 @@ fn a_schema_1_summary_made_by_lotshift_0_2_still_verifies() {
         stderr(&o)
     );
     std::fs::remove_dir_all(dir).unwrap();
+}
+
+/// Summaries written by release 0.2.0 (record schema `lotshift.comparison/1`, differences
+/// reference − candidate), made with that release's binary and committed in
+/// tests/fixtures/release-0.2 (see its README): they still verify, number for number.
+#[test]
+fn summaries_of_the_first_record_schema_still_verify() {
+    let root = Path::new(env!("CARGO_MANIFEST_DIR"));
+    let fx = root.join("tests/fixtures/release-0.2");
+    let key = fx.join("signer.pub.pem");
+    let lots = |n: &str| root.join("sample-lots").join(n);
+    // The quality system lists the fixtures' signer under the printed name and in the roles
+    // of the meanings its summaries carry, so that they can reach full verification.
+    let listed = folder("release-0.2");
+    std::fs::create_dir_all(listed.join("keys")).unwrap();
+    std::fs::copy(&key, listed.join("keys/release-0.2.pub.pem")).unwrap();
+    let blocks: Vec<serde_json::Value> = ["summary-spec.json", "summary-split.json"]
+        .iter()
+        .map(|f| {
+            let doc: serde_json::Value =
+                serde_json::from_str(&std::fs::read_to_string(fx.join(f)).unwrap()).unwrap();
+            doc["signature"].clone()
+        })
+        .collect();
+    let signer = blocks[0]["signer"].as_str().unwrap();
+    assert!(blocks.iter().all(|b| b["signer"] == signer));
+    let roles: Vec<&str> = blocks
+        .iter()
+        .map(|b| {
+            let meaning = Meaning::parse(b["meaning"].as_str().unwrap()).unwrap();
+            lotshift::report::trust::Role::for_meaning(meaning).as_str()
+        })
+        .collect();
+    trust(
+        &listed,
+        "release-0.2",
+        signer,
+        &roles.join(","),
+        "trusted.json",
+    );
+    let trusted = listed.join("trusted.json");
+    for (summary, files, spec) in [
+        (
+            "summary-spec.json",
+            vec![lots("reference-route-a.csv"), lots("candidate-route-b.csv")],
+            Some(lots("hub-spec.csv")),
+        ),
+        ("summary-split.json", vec![lots("both-routes.csv")], None),
+    ] {
+        let mut args: Vec<String> = vec![
+            "verify".into(),
+            fx.join(summary).display().to_string(),
+            "--key".into(),
+            key.display().to_string(),
+            "--trusted".into(),
+            trusted.display().to_string(),
+            "--files".into(),
+        ];
+        args.extend(files.iter().map(|f| f.display().to_string()));
+        if let Some(s) = &spec {
+            args.push("--spec".into());
+            args.push(s.display().to_string());
+        }
+        let args: Vec<&str> = args.iter().map(String::as_str).collect();
+        let o = run(&args, root);
+        let out = stdout(&o);
+        assert_eq!(o.status.code(), Some(0), "{summary}: {out}");
+        assert_eq!(out.trim_end().lines().last(), Some("VERIFIED"), "{out}");
+        assert!(out.contains("lotshift.comparison/1"), "{out}");
+    }
+    // The same lots compared now: every difference is the mirror of the old record's.
+    let doc: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(fx.join("summary-spec.json")).unwrap())
+            .unwrap();
+    let old = &doc["record"];
+    let dir = std::env::temp_dir().join(format!("lotshift-v1-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let json = dir.join("now.json");
+    let o = run(
+        &[
+            "compare",
+            lots("reference-route-a.csv").to_str().unwrap(),
+            lots("candidate-route-b.csv").to_str().unwrap(),
+            "--json",
+            json.to_str().unwrap(),
+        ],
+        root,
+    );
+    assert!(o.status.success());
+    let now: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
+    assert_eq!(now["schema"], "lotshift.comparison/2");
+    for k in 0..old["intervals"].as_array().unwrap().len() {
+        let (a, b) = (&old["intervals"][k], &now["intervals"][k]);
+        let f = |v: &serde_json::Value| v.as_f64().unwrap();
+        assert_eq!(f(&a["difference"]), -f(&b["difference"]));
+        assert_eq!(f(&a["simultaneous"][0]), -f(&b["simultaneous"][1]));
+        assert_eq!(
+            f(&old["discriminant"]["coefficients"][k]),
+            -f(&now["discriminant"]["coefficients"][k])
+        );
+    }
+    std::fs::remove_dir_all(dir).unwrap();
+    std::fs::remove_dir_all(listed).unwrap();
 }
