@@ -25,8 +25,9 @@ pub struct KeygenArgs {
 #[derive(Debug, Args)]
 pub struct SignArgs {
     /// The signed summary to add a signature to (rewritten in place, atomically, unless
-    /// --out is given).
-    #[arg(value_name = "SUMMARY")]
+    /// --out is given), or a comparison protocol to sign (its signatures are kept beside it,
+    /// in NAME.signatures.json, unless --out is given).
+    #[arg(value_name = "SUMMARY|PROTOCOL")]
     pub file: PathBuf,
     /// The signer's private key (PEM).
     #[arg(long, value_name = "KEY")]
@@ -44,7 +45,8 @@ pub struct SignArgs {
     /// of asking for it on the terminal.
     #[arg(long, value_name = "FILE")]
     pub passphrase_file: Option<PathBuf>,
-    /// Write the signed summary here instead of over SUMMARY.
+    /// Write the signed summary here instead of over SUMMARY (for a protocol: its
+    /// signatures file here instead of beside it).
     #[arg(long, value_name = "FILE")]
     pub out: Option<PathBuf>,
 }
@@ -256,6 +258,9 @@ pub struct CompareArgs {
     /// difference as a deviation with this reason.
     #[arg(long, value_name = "REASON", requires = "protocol")]
     pub deviation: Option<String>,
+    /// With --protocol: check the protocol's signers against this trusted-signers list.
+    #[arg(long, value_name = "FILE", requires = "protocol")]
+    pub trusted: Option<PathBuf>,
     /// Write the comparison record as JSON to FILE, or to standard output with "-".
     #[arg(long, value_name = "FILE")]
     pub json: Option<String>,

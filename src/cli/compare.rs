@@ -16,6 +16,10 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
         Some(path) => Some(crate::protocol::load(path)?),
         None => None,
     };
+    let trusted = match &a.trusted {
+        Some(path) => Some(crate::report::trust::read_trusted(path)?),
+        None => None,
+    };
     if let Some(p) = &protocol {
         // The protocol names the lots unless the command line does.
         let l = &p.file.lots;
@@ -177,6 +181,35 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
             files,
             Some(&record),
         ));
+    }
+    // Who signed the protocol, against the trusted list when one is given: said plainly, the
+    // comparison still runs (`verify --trusted` reports a partial verification).
+    if let (Some(p), true) = (&record.protocol, a.json.as_deref() != Some("-")) {
+        let path = a
+            .trusted
+            .as_ref()
+            .map(|p| p.display().to_string())
+            .unwrap_or_default();
+        let (lines, short) = super::signing::protocol_signature_lines(
+            p,
+            trusted.as_ref().map(|l| (&l.list, path.as_str())),
+        );
+        if !p.signatures.is_empty() {
+            for line in lines.iter().filter(|l| l.starts_with("signer")) {
+                outln!("{line}");
+            }
+            if trusted.is_none() {
+                outln!(
+                    "protocol     its signers were not checked against a trusted list (give \
+                     --trusted FILE)"
+                );
+            } else if !short.is_empty() {
+                outln!("protocol     NOT FULLY TRUSTED:");
+                for s in &short {
+                    outln!("  - {s}");
+                }
+            }
+        }
     }
     emit_json(&a.json, &record)?;
     if let (Some(summary), Some(out_path)) = (&signed, &a.out) {

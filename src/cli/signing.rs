@@ -1,4 +1,5 @@
-//! `sign` (a further signature on a signed summary), `trust` (an entry of the
+//! `sign` (a further signature on a signed summary, or a signature on a comparison
+//! protocol), `trust` (an entry of the
 //! trusted-signers list) and the passphrase of a private key (asked for on the terminal
 //! without echo, or read from a file or standard input; never stored).
 
@@ -115,6 +116,12 @@ pub(super) fn sign_summary(a: SignArgs) -> CliResult {
     let signer = signer_name(a.signer.as_deref(), &a.key)?;
     let text =
         std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
+    let schema = serde_json::from_str::<serde_json::Value>(&text)
+        .ok()
+        .and_then(|v| v.get("schema").and_then(|s| s.as_str()).map(str::to_string));
+    if schema.as_deref() == Some(crate::protocol::PROTOCOL_SCHEMA) {
+        return sign_protocol(&a, meaning, signer);
+    }
     // The signatures there are checked before the passphrase is asked for.
     if let Err(e) = sign::verify_sequence(&text) {
         return Err(sign::SignError::Refused {
@@ -150,6 +157,44 @@ pub(super) fn sign_summary(a: SignArgs) -> CliResult {
     Ok(ExitCode::SUCCESS)
 }
 
+/// A signature on a comparison protocol, in the signatures file beside it (or `--out`): the
+/// protocol must be usable and every signature already there must verify.
+fn sign_protocol(a: &SignArgs, meaning: sign::Meaning, signer: String) -> CliResult {
+    use crate::report::protocol_sign;
+    let p = crate::protocol::load(&a.file)?;
+    let key = signing_key(&a.key, a.passphrase_file.as_deref())?;
+    let m = sign::Manifestation {
+        signer,
+        signed_at: sign::now_rfc3339(),
+        meaning,
+        comment: a.comment.trim().to_string(),
+    };
+    let signed = protocol_sign::add(&p.sha256, &p.signatures, &key, &m)?;
+    let out_path = a
+        .out
+        .clone()
+        .unwrap_or_else(|| protocol_sign::signatures_path(&a.file));
+    let json = serde_json::to_string_pretty(&signed).map_err(|e| CliError::from(e.to_string()))?;
+    report::write_atomic(&out_path, json.as_bytes())
+        .map_err(|e| format!("the protocol's signatures were not written: {e}"))?;
+    let n = signed.signatures.len();
+    let last = &signed.signatures[n - 1];
+    outln!(
+        "signature {n} of the protocol {} (SHA-256 {}) written to {}: {} by {} on {} (UTC), key {}",
+        a.file.display(),
+        p.sha256,
+        out_path.display(),
+        last.meaning,
+        last.signer,
+        last.signed_at,
+        last.key_fingerprint
+    );
+    for note in sign::order_notes(&signed.signatures) {
+        outln!("note         {note}");
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
 pub(super) fn trust(a: TrustArgs) -> CliResult {
     let key = sign::read_verifying_key(&a.key)?;
     let roles = a
@@ -177,4 +222,83 @@ pub(super) fn trust(a: TrustArgs) -> CliResult {
         a.trusted.display()
     );
     Ok(ExitCode::SUCCESS)
+}
+
+/// How signature `sig` (named `at` in the output) stands against the trusted list at `path`:
+/// `Ok` with the line saying it is trusted, `Err` with the shortfall in words.
+pub(super) fn standing_words(
+    list: &trust::TrustedList,
+    sig: &sign::SignatureBlock,
+    at: &str,
+    path: &str,
+) -> Result<String, String> {
+    let role = trust::Role::for_meaning(sig.meaning).as_str();
+    match list.standing(sig) {
+        trust::Standing::Trusted => Ok(format!(
+            "{at}: in the trusted list under that name, as {role}"
+        )),
+        trust::Standing::UnknownKey => Err(format!(
+            "{at}: the key {} is not in the trusted list {path}",
+            sig.key_fingerprint
+        )),
+        trust::Standing::NameDiffers { listed } => Err(format!(
+            "{at}: the trusted list has this key under the printed name \"{listed}\", not \"{}\"",
+            sig.signer
+        )),
+        trust::Standing::RoleMissing { listed } => Err(format!(
+            "{at}: the trusted list does not let this signer sign as {role} (roles: {})",
+            listed
+                .iter()
+                .map(|r| r.as_str())
+                .collect::<Vec<_>>()
+                .join(", ")
+        )),
+    }
+}
+
+/// The protocol's signatures in words (one line each, or one saying it is not signed) and,
+/// against a trusted list, each signer's standing: the lines to print and the shortfalls.
+pub(super) fn protocol_signature_lines(
+    p: &report::ProtocolRecord,
+    trusted: Option<(&trust::TrustedList, &str)>,
+) -> (Vec<String>, Vec<String>) {
+    let mut lines = Vec::new();
+    let mut short = Vec::new();
+    if p.signatures.is_empty() {
+        lines.push(format!(
+            "protocol     {} is NOT SIGNED: nobody's authorship, review or approval of it is \
+             recorded (sign it with `lotshift sign PROTOCOL`)",
+            p.file
+        ));
+        return (lines, short);
+    }
+    for (k, sig) in p.signatures.iter().enumerate() {
+        let comment = match sig.comment.as_deref().map(str::trim) {
+            Some(c) if !c.is_empty() => format!(", comment \"{c}\""),
+            _ => String::new(),
+        };
+        lines.push(format!(
+            "protocol signature {}  {} by {} on {} (UTC), key {}{comment}",
+            k + 1,
+            sig.meaning,
+            sig.signer,
+            sig.signed_at,
+            sig.key_fingerprint
+        ));
+    }
+    if let Some((list, path)) = trusted {
+        for (k, sig) in p.signatures.iter().enumerate() {
+            let at = format!(
+                "protocol signature {} ({} by {})",
+                k + 1,
+                sig.meaning,
+                sig.signer
+            );
+            match standing_words(list, sig, &at, path) {
+                Ok(line) => lines.push(format!("signer       {line}")),
+                Err(why) => short.push(why),
+            }
+        }
+    }
+    (lines, short)
 }

@@ -103,25 +103,79 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
             );
             for (k, sig) in summary.signatures.iter().enumerate() {
                 let at = format!("signature {} ({} by {})", k + 1, sig.meaning, sig.signer);
-                match list.list.standing(sig) {
-                    trust::Standing::Trusted => outln!(
-                        "signer       {at}: in the trusted list under that name, as {}",
-                        trust::Role::for_meaning(sig.meaning).as_str()
-                    ),
-                    trust::Standing::UnknownKey => short.push(format!(
-                        "{at}: the key {} is not in the trusted list {path}",
-                        sig.key_fingerprint
-                    )),
-                    trust::Standing::NameDiffers { listed } => short.push(format!(
-                        "{at}: the trusted list has this key under the printed name \"{listed}\", not \"{}\"",
-                        sig.signer
-                    )),
-                    trust::Standing::RoleMissing { listed } => short.push(format!(
-                        "{at}: the trusted list does not let this signer sign as {} (roles: {})",
-                        trust::Role::for_meaning(sig.meaning).as_str(),
-                        listed.iter().map(|r| r.as_str()).collect::<Vec<_>>().join(", ")
-                    )),
+                match super::signing::standing_words(&list.list, sig, &at, &path) {
+                    Ok(line) => outln!("signer       {line}"),
+                    Err(why) => short.push(why),
                 }
+            }
+        }
+    }
+    // The protocol the comparison ran under: its signatures, as the record holds them, are
+    // checked again against its recorded SHA-256, and their signers against the list.
+    let recorded_protocol = match summary.record.get("protocol").filter(|v| !v.is_null()) {
+        None => None,
+        Some(v) => match serde_json::from_value::<report::ProtocolRecord>(v.clone()) {
+            Ok(p) => Some(p),
+            Err(e) => return fail(format!("the record's protocol cannot be read: {e}")),
+        },
+    };
+    if let Some(p) = &recorded_protocol {
+        if let Err(e) = crate::report::protocol_sign::check(&p.sha256, &p.signatures) {
+            return fail(format!("a signature of the protocol {}: {e}", p.file));
+        }
+        let path = a
+            .trusted
+            .as_ref()
+            .map(|p| p.display().to_string())
+            .unwrap_or_default();
+        let (lines, protocol_short) = super::signing::protocol_signature_lines(
+            p,
+            trusted.as_ref().map(|l| (&l.list, path.as_str())),
+        );
+        for line in lines {
+            outln!("{line}");
+        }
+        short.extend(protocol_short);
+    }
+    if let Some(path) = &a.protocol {
+        let Some(recorded) = &recorded_protocol else {
+            return fail(format!(
+                "--protocol {} was given, but the comparison was not run under a protocol",
+                path.display()
+            ));
+        };
+        let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
+        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+        if got != recorded.sha256 {
+            return fail(format!(
+                "protocol file {} is not the protocol run: its SHA-256 is {got}, the record has {}",
+                path.display(),
+                recorded.sha256
+            ));
+        }
+        outln!("protocol     {} matches (SHA-256 {got})", path.display());
+        // The signatures file beside it may have grown since the run: the record's
+        // signatures must be its first ones.
+        let beside = crate::report::protocol_sign::signatures_path(path);
+        if beside.exists() {
+            let now = match crate::report::protocol_sign::read(&beside, &got) {
+                Ok(s) => s.signatures,
+                Err(e) => return fail(format!("the protocol's signatures do not hold: {e}")),
+            };
+            if !now.starts_with(&recorded.signatures) {
+                return fail(format!(
+                    "the protocol's signatures in {} are not the ones the record holds",
+                    beside.display()
+                ));
+            }
+            if now.len() > recorded.signatures.len() {
+                outln!(
+                    "note         {} holds {} protocol signatures; the record holds the {} there \
+                     were when the comparison ran (later ones were added after it)",
+                    beside.display(),
+                    now.len(),
+                    recorded.signatures.len()
+                );
             }
         }
     }
@@ -255,24 +309,6 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         ),
         None => data::load_two(&files, None, None, &options),
     }?;
-    if let Some(path) = &a.protocol {
-        let Some(recorded) = &typed.protocol else {
-            return fail(format!(
-                "--protocol {} was given, but the comparison was not run under a protocol",
-                path.display()
-            ));
-        };
-        let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
-        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
-        if got != recorded.sha256 {
-            return fail(format!(
-                "protocol file {} is not the protocol run: its SHA-256 is {got}, the record has {}",
-                path.display(),
-                recorded.sha256
-            ));
-        }
-        outln!("protocol     {} matches (SHA-256 {got})", path.display());
-    }
     if let Some(p) = &typed.protocol {
         for d in &p.deviations {
             outln!("deviation    {} — reason: {}", d.describe(), d.reason);

@@ -2,6 +2,7 @@
 
 mod canonical;
 pub mod html;
+pub mod protocol_sign;
 mod record;
 pub mod sections;
 pub mod sign;

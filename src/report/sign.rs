@@ -539,7 +539,7 @@ pub fn first_signature(
 }
 
 /// Appends a signed block to a schema 2 document (in JSON form) that has been verified.
-fn append_to(
+pub(crate) fn append_to(
     mut doc: Value,
     key: &SigningKey,
     m: &Manifestation,
@@ -655,7 +655,7 @@ fn bad_signature_text(at: Option<&str>) -> String {
     }
 }
 
-fn check_block(
+pub(crate) fn check_block(
     doc: &Value,
     k: usize,
     sig: &SignatureBlock,

@@ -1045,3 +1045,248 @@ fn summaries_of_the_first_record_schema_still_verify() {
     std::fs::remove_dir_all(dir).unwrap();
     std::fs::remove_dir_all(listed).unwrap();
 }
+
+/// A folder with the sample protocol and the files it names beside it, and the keys of an
+/// author and an approver, both in `trusted.json` and only the author in `authors.json`.
+fn protocol_folder(tag: &str) -> PathBuf {
+    let dir = folder(tag);
+    for f in [
+        "hub-protocol.json",
+        "reference-route-a.csv",
+        "candidate-route-b.csv",
+        "hub-spec.csv",
+    ] {
+        std::fs::copy(sample(f), dir.join(f)).unwrap();
+    }
+    for (signer, name, role) in [
+        ("Ana Lind", "ana", "author"),
+        ("Cleo Marsh", "cleo", "approver"),
+    ] {
+        keygen(&dir, signer, name);
+        trust(&dir, name, signer, role, "trusted.json");
+    }
+    trust(&dir, "ana", "Ana Lind", "author", "authors.json");
+    dir
+}
+
+/// Signs the protocol in `dir` with key `name`.
+fn sign_protocol(dir: &Path, name: &str, meaning: &str, comment: &str) -> Output {
+    let key = format!("keys/{name}.pem");
+    run(
+        &[
+            "sign",
+            "hub-protocol.json",
+            "--key",
+            &key,
+            "--meaning",
+            meaning,
+            "--comment",
+            comment,
+            "--passphrase-file",
+            "pass.txt",
+        ],
+        dir,
+    )
+}
+
+#[test]
+fn a_protocol_is_signed_in_sequence_and_its_signers_are_checked() {
+    let dir = protocol_folder("protocol-signed");
+    let sha = |p: &Path| {
+        lotshift::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(
+            &std::fs::read(p).unwrap(),
+        ))
+    };
+    let protocol_sha = sha(&dir.join("hub-protocol.json"));
+    // Unsigned, it runs and says so plainly, in the text and the record.
+    let o = run(
+        &[
+            "compare",
+            "--protocol",
+            "hub-protocol.json",
+            "--json",
+            "unsigned.json",
+        ],
+        &dir,
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(
+        stdout(&o).contains("the protocol is NOT SIGNED"),
+        "{}",
+        stdout(&o)
+    );
+    let rec: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("unsigned.json")).unwrap()).unwrap();
+    assert_eq!(rec["protocol"]["signatures"], serde_json::json!([]));
+    // Authorship, then approval, in the signatures file beside it; the protocol's bytes (so
+    // its SHA-256) stay as they were.
+    let o = sign_protocol(
+        &dir,
+        "ana",
+        "authorship",
+        "written before the lots were measured",
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(
+        stdout(&o).contains("signature 1 of the protocol hub-protocol.json"),
+        "{}",
+        stdout(&o)
+    );
+    let o = sign_protocol(&dir, "cleo", "approval", "approved for route B");
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert_eq!(sha(&dir.join("hub-protocol.json")), protocol_sha);
+    let beside = dir.join("hub-protocol.signatures.json");
+    let sigs: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(&beside).unwrap()).unwrap();
+    assert_eq!(sigs["schema"], "lotshift.protocol-signatures/1");
+    assert_eq!(sigs["protocol_sha256"], protocol_sha.as_str());
+    assert_eq!(sigs["signatures"].as_array().unwrap().len(), 2);
+    // A wrong passphrase signs nothing and leaves the file as it was.
+    let before = std::fs::read(&beside).unwrap();
+    std::fs::write(dir.join("wrong.txt"), "not the passphrase\n").unwrap();
+    let o = run(
+        &[
+            "sign",
+            "hub-protocol.json",
+            "--key",
+            "keys/cleo.pem",
+            "--meaning",
+            "review",
+            "--passphrase-file",
+            "wrong.txt",
+        ],
+        &dir,
+    );
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("the passphrase is wrong"),
+        "{}",
+        stderr(&o)
+    );
+    assert_eq!(std::fs::read(&beside).unwrap(), before);
+    // Run under it with the trusted list: both signers are listed, and the record holds the
+    // signatures with the protocol's SHA-256.
+    let o = run(
+        &[
+            "compare",
+            "--protocol",
+            "hub-protocol.json",
+            "--trusted",
+            "trusted.json",
+            "--sign",
+            "keys/ana.pem",
+            "--meaning",
+            "authorship",
+            "--passphrase-file",
+            "pass.txt",
+            "--out",
+            "summary.json",
+            "--html",
+            "report.html",
+        ],
+        &dir,
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    let out = stdout(&o);
+    assert!(
+        out.contains("protocol signature 1: authorship by Ana Lind")
+            && out.contains("comment \"written before the lots were measured\"")
+            && out.contains("protocol signature 2: approval by Cleo Marsh"),
+        "{out}"
+    );
+    assert!(
+        out.contains(
+            "signer       protocol signature 2 (approval by Cleo Marsh): in the trusted list"
+        ),
+        "{out}"
+    );
+    let doc: serde_json::Value =
+        serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    let p = &doc["record"]["protocol"];
+    assert_eq!(p["sha256"], protocol_sha.as_str());
+    assert_eq!(p["signatures"], sigs["signatures"]);
+    let page = std::fs::read_to_string(dir.join("report.html")).unwrap();
+    assert!(page.contains("id=\"protocol-signatures\"") && page.contains("approved for route B"));
+    // Verified with both signers trusted; partially with only the author listed.
+    let full = [
+        "--files",
+        "reference-route-a.csv",
+        "candidate-route-b.csv",
+        "--protocol",
+        "hub-protocol.json",
+    ];
+    let (code, out) = verify(
+        &dir,
+        "summary.json",
+        &[&["--trusted", "trusted.json"][..], &full[..]].concat(),
+    );
+    assert_eq!(code, 0, "{out}");
+    assert!(
+        out.contains("protocol signature 2  approval by Cleo Marsh"),
+        "{out}"
+    );
+    assert_eq!(out.trim_end().lines().last(), Some("VERIFIED"), "{out}");
+    let (code, out) = verify(
+        &dir,
+        "summary.json",
+        &[&["--trusted", "authors.json"][..], &full[..]].concat(),
+    );
+    assert_eq!(code, 3, "{out}");
+    assert!(
+        out.contains("protocol signature 2 (approval by Cleo Marsh): the key")
+            && out.contains("is not in the trusted list authors.json"),
+        "{out}"
+    );
+    let o = run(
+        &[
+            "compare",
+            "--protocol",
+            "hub-protocol.json",
+            "--trusted",
+            "authors.json",
+        ],
+        &dir,
+    );
+    assert!(o.status.success(), "{}", stderr(&o));
+    assert!(
+        stdout(&o).contains("protocol     NOT FULLY TRUSTED:"),
+        "{}",
+        stdout(&o)
+    );
+    // A protocol signature edited inside the record (and the record signed again) does not
+    // verify.
+    let mut forged = doc["record"].clone();
+    forged["protocol"]["signatures"][1]["comment"] = "approved for route C".into();
+    let key = sign::read_signing_key(&dir.join("keys/ana.pem"), Some(PASS)).unwrap();
+    let resigned = sign::sign_value(
+        forged,
+        &key,
+        "Ana Lind",
+        Meaning::Authorship,
+        "2026-12-03T10:00:00Z",
+    )
+    .unwrap();
+    std::fs::write(dir.join("forged.json"), resigned.to_json()).unwrap();
+    let (code, out) = verify(&dir, "forged.json", &["--trusted", "trusted.json"]);
+    assert_eq!(code, 1, "{out}");
+    assert!(
+        out.contains("NOT VERIFIED: a signature of the protocol hub-protocol.json")
+            && out.contains("2 of 2, approval by Cleo Marsh"),
+        "{out}"
+    );
+    // A protocol changed after it was signed is not used.
+    let text = std::fs::read_to_string(dir.join("hub-protocol.json")).unwrap();
+    std::fs::write(
+        dir.join("hub-protocol.json"),
+        text.replace("\"alpha\": 0.05", "\"alpha\": 0.1"),
+    )
+    .unwrap();
+    let o = run(&["compare", "--protocol", "hub-protocol.json"], &dir);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("it was changed after it was signed"),
+        "{}",
+        stderr(&o)
+    );
+    std::fs::remove_dir_all(dir).unwrap();
+}
