@@ -558,12 +558,10 @@ impl LotshiftApp {
         }
     }
 
-    /// Opens the signing form; the remembered key (and the name stored beside it) is looked
-    /// at in the background.
+    /// Opens the signing form (without a result shown it can only add a signature to a file:
+    /// a signed summary or a comparison protocol); the remembered key (and the name stored
+    /// beside it) is looked at in the background.
     pub fn open_signing(&mut self) {
-        if self.result.shown().is_none() {
-            return;
-        }
         let key = self.saved.signing_key.clone();
         self.signing = Some(SignForm::new(self.saved.signer_name.clone(), key.clone()));
         if let Some(k) = key {
@@ -619,7 +617,7 @@ impl LotshiftApp {
         egui::CentralPanel::default().show(ui, |ui| self.central_ui(ui));
         if let Some(form) = &mut self.signing {
             let mut actions = Vec::new();
-            signing::form_ui(&ctx, form, &mut actions);
+            signing::form_ui(&ctx, form, self.result.shown().is_some(), &mut actions);
             self.apply_all(actions);
         }
         if self.worker.busy() {

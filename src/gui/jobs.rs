@@ -131,7 +131,7 @@ impl Worker {
                     .add_filter("JSON", &["json"])
                     .pick_file(),
                 Purpose::SummaryToSign => rfd::FileDialog::new()
-                    .set_title("Open the signed summary to add your signature to")
+                    .set_title("Open the signed summary or protocol to add your signature to")
                     .add_filter("JSON", &["json"])
                     .pick_file(),
                 Purpose::Specification => rfd::FileDialog::new()
@@ -347,6 +347,12 @@ impl Worker {
                 let path = &job.summary;
                 let text = std::fs::read_to_string(path)
                     .map_err(|e| format!("{}: {e}", path.display()))?;
+                let schema = serde_json::from_str::<serde_json::Value>(&text)
+                    .ok()
+                    .and_then(|v| v.get("schema").and_then(|s| s.as_str()).map(str::to_string));
+                if schema.as_deref() == Some(crate::protocol::PROTOCOL_SCHEMA) {
+                    return sign_protocol(&job);
+                }
                 // Refused before the key is opened when the signatures there do not verify.
                 sign::verify_sequence(&text).map_err(|e| {
                     format!(
@@ -393,6 +399,40 @@ impl Worker {
             out.send(Outcome::SummaryChecked(result), Ends::Job);
         });
     }
+}
+
+/// Adds the job's signature to the comparison protocol at `job.summary`, in the signatures
+/// file beside it (the protocol must be usable and its signatures must verify).
+fn sign_protocol(job: &AddJob) -> Result<String, String> {
+    use crate::report::protocol_sign;
+    let path = &job.summary;
+    let p = crate::protocol::load(path).map_err(|e| e.to_string())?;
+    let key =
+        sign::read_signing_key(&job.key, job.passphrase.as_deref()).map_err(|e| e.to_string())?;
+    let m = sign::Manifestation {
+        signer: job.signer.clone(),
+        signed_at: sign::now_rfc3339(),
+        meaning: job.meaning,
+        comment: job.comment.clone(),
+    };
+    let signed =
+        protocol_sign::add(&p.sha256, &p.signatures, &key, &m).map_err(|e| e.to_string())?;
+    let out = protocol_sign::signatures_path(path);
+    let json = serde_json::to_string_pretty(&signed).map_err(|e| e.to_string())?;
+    crate::report::write_atomic(&out, json.as_bytes())
+        .map_err(|e| format!("the protocol's signatures were not written: {e}"))?;
+    let mut note = format!(
+        "Signature {} ({} by {}) added to the protocol {} (in {}).",
+        signed.signatures.len(),
+        job.meaning,
+        job.signer,
+        path.display(),
+        out.display()
+    );
+    for n in sign::order_notes(&signed.signatures) {
+        note.push_str(&format!(" Note: {n}."));
+    }
+    Ok(note)
 }
 
 /// What checking the signed summary at `path` finds, in words: the signature, whether the

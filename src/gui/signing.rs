@@ -1,7 +1,8 @@
 //! The "Sign and export" form: the signer's printed name, the meaning of the signature, a
 //! comment, the signing key and its passphrase (typed in a password field, kept only until the
 //! key is opened, never stored). It signs the comparison shown, or adds a signature to a
-//! signed summary chosen in a dialog. The form owns what is typed in it; reading, looking at and creating keys and
+//! signed summary or a comparison protocol chosen in a dialog (this needs no comparison: the
+//! top bar's "Add my signature…" opens the form at any time). The form owns what is typed in it; reading, looking at and creating keys and
 //! signing run as background jobs ([`super::jobs`]) that the form waits for without holding
 //! up a frame, and their outcomes come back here ([`absorb`]).
 
@@ -68,7 +69,12 @@ impl SignForm {
 }
 
 /// The window of the form; its buttons ask for dialogs, the signature or closing.
-pub fn form_ui(ctx: &egui::Context, form: &mut SignForm, actions: &mut Vec<Action>) {
+pub fn form_ui(
+    ctx: &egui::Context,
+    form: &mut SignForm,
+    result_shown: bool,
+    actions: &mut Vec<Action>,
+) {
     let mut open = true;
     let mut action = None;
     egui::Window::new("Sign and export the comparison")
@@ -132,12 +138,16 @@ pub fn form_ui(ctx: &egui::Context, form: &mut SignForm, actions: &mut Vec<Actio
             ui.add_space(6.0);
             ui.horizontal(|ui| {
                 let ready = matches!(form.key, KeyStatus::Ready(_)) && !form.signing;
-                if ui.add_enabled(ready, egui::Button::new("Sign and save…")).clicked() {
+                if ui
+                    .add_enabled(ready && result_shown, egui::Button::new("Sign and save…"))
+                    .on_disabled_hover_text("Run a comparison first to sign it; a signed summary or a protocol on disk takes your signature without one")
+                    .clicked()
+                {
                     action = Some(Action::Sign(None));
                 }
                 if ui
-                    .add_enabled(ready, egui::Button::new("Add my signature to a signed summary…"))
-                    .on_hover_text("Open a signed summary whose signatures verify and add yours after them (review, approval); the file is rewritten in place")
+                    .add_enabled(ready, egui::Button::new("Add my signature to a file…"))
+                    .on_hover_text("Open a signed summary or a comparison protocol whose signatures verify and add yours after them (authorship, review, approval); a summary is rewritten in place, a protocol's signatures are kept beside it in NAME.signatures.json")
                     .clicked()
                 {
                     action = Some(Action::AddSignature(None));

@@ -1340,3 +1340,100 @@ fn every_run_in_the_window_goes_into_the_audit_trail_and_verify_checks_it() {
     );
     let _ = std::fs::remove_dir_all(dir);
 }
+
+#[test]
+fn a_signature_is_added_to_a_protocol_or_a_summary_without_a_comparison() {
+    use lotshift::gui::action::Action;
+    use lotshift::report::sign;
+    // A window with nothing loaded: the top bar still opens the form, which can sign files
+    // on disk but not a comparison (there is none).
+    let app = LotshiftApp::new(None, Saved::default());
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    assert!(h.state().result.shown().is_none());
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-sign-file-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    for f in [
+        "hub-protocol.json",
+        "reference-route-a.csv",
+        "candidate-route-b.csv",
+        "hub-spec.csv",
+    ] {
+        std::fs::copy(common::sample(f), dir.join(f)).unwrap();
+    }
+    let key = sign::keygen(&dir, "signing-key", "Cleo Marsh", "a long passphrase").unwrap();
+    h.state_mut().saved.signing_key = Some(key.display().to_string());
+    h.get_by_label("Add my signature…").click();
+    settle(&mut h);
+    assert!(
+        h.state().signing.is_some(),
+        "the form opens without a result"
+    );
+    let disabled = |h: &Harness<'static, LotshiftApp>, label: &str| {
+        use egui_kittest::kittest::NodeT as _;
+        h.get_by_label(label).accesskit_node().is_disabled()
+    };
+    assert!(disabled(&h, "Sign and save…"), "nothing to sign");
+    assert!(!disabled(&h, "Add my signature to a file…"));
+    // The protocol: its signature goes beside it.
+    {
+        let form = h.state_mut().signing.as_mut().unwrap();
+        form.meaning = sign::Meaning::Approval;
+        form.comment = "protocol approved".into();
+        form.passphrase = "a long passphrase".into();
+    }
+    let protocol = dir.join("hub-protocol.json");
+    h.state_mut()
+        .apply(Action::AddSignature(Some(protocol.clone())));
+    settle(&mut h);
+    let notice = h.state().notice.clone().unwrap_or_default();
+    assert!(
+        notice.contains("Signature 1 (approval by Cleo Marsh) added to the protocol"),
+        "{notice}"
+    );
+    let p = lotshift::protocol::load(&protocol).unwrap();
+    assert_eq!(p.signatures.len(), 1);
+    assert_eq!(p.signatures[0].signer, "Cleo Marsh");
+    assert_eq!(
+        p.signatures[0].comment.as_deref(),
+        Some("protocol approved")
+    );
+    // A signed summary made elsewhere takes a second signature the same way.
+    let record = {
+        let o = std::process::Command::new(env!("CARGO_BIN_EXE_lotshift"))
+            .args([
+                "compare",
+                "--protocol",
+                protocol.to_str().unwrap(),
+                "--json",
+                "-",
+            ])
+            .output()
+            .unwrap();
+        assert!(o.status.success());
+        serde_json::from_slice::<serde_json::Value>(&o.stdout).unwrap()
+    };
+    let summary = sign::sign_value(
+        record,
+        &ed25519_key(),
+        "Ana Lind",
+        sign::Meaning::Authorship,
+        "2026-12-03T09:00:00Z",
+    )
+    .unwrap();
+    let path = dir.join("summary.json");
+    std::fs::write(&path, summary.to_json()).unwrap();
+    h.state_mut().apply(Action::OpenSigning);
+    settle(&mut h);
+    h.state_mut().signing.as_mut().unwrap().passphrase = "a long passphrase".into();
+    h.state_mut()
+        .apply(Action::AddSignature(Some(path.clone())));
+    settle(&mut h);
+    let s = sign::verify_sequence(&std::fs::read_to_string(&path).unwrap()).unwrap();
+    assert_eq!(s.signatures.len(), 2);
+    assert_eq!(s.signatures[1].signer, "Cleo Marsh");
+    let _ = std::fs::remove_dir_all(dir);
+}
