@@ -1094,7 +1094,7 @@ fn a_protocol_is_signed_in_sequence_and_its_signers_are_checked() {
     let dir = protocol_folder("protocol-signed");
     let sha = |p: &Path| {
         lotshift::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(
-            &std::fs::read(p).unwrap(),
+            std::fs::read(p).unwrap(),
         ))
     };
     let protocol_sha = sha(&dir.join("hub-protocol.json"));
