@@ -43,6 +43,7 @@ h1 { font-size: 22px; margin-bottom: 4px; } h2 { font-size: 16px; margin: 22px 0
 table { border-collapse: collapse; font-size: 12px; margin: 6px 0; }
 th, td { border: 1px solid #bbb; padding: 3px 6px; text-align: right; } th { background: #eee; }
 td.name, th.name { text-align: left; }
+td.when { white-space: nowrap; }
 .caution { font-style: italic; margin-top: 18px; }
 .signature { border: 2px solid #333; padding: 10px 14px; margin-top: 18px; }
 .muted { color: #555; font-size: 12px; }
@@ -484,7 +485,7 @@ fn protocol_signatures(h: &mut String, p: &super::ProtocolRecord) {
     for (k, s) in p.signatures.iter().enumerate() {
         let _ = write!(
             h,
-            "<tr><td>{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\"><code>{}</code></td></tr>",
+            "<tr><td>{}</td><td class=\"name\">{}</td><td class=\"name when\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\"><code>{}</code></td></tr>",
             k + 1,
             esc(&s.signer),
             esc(&s.signed_at),
@@ -588,7 +589,7 @@ fn trail_section(h: &mut String, r: &Record) {
     for run in &a.runs {
         let _ = write!(
             h,
-            "<tr><td>{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td>{}</td><td class=\"name\">{}</td></tr>",
+            "<tr><td>{}</td><td class=\"name when\">{}</td><td class=\"name\">{}</td><td>{}</td><td class=\"name\">{}</td></tr>",
             run.seq,
             esc(&run.at),
             esc(&run.characteristics.join(", ")),

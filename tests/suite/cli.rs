@@ -471,7 +471,27 @@ fn every_command_line_in_the_readme_runs() {
             stdout(&o),
             stderr(&o)
         );
+        // A documented `verify` reaches full verification (a partial one exits 3 above).
+        if line.starts_with("$L verify ") {
+            assert_eq!(
+                stdout(&o).trim_end().lines().last(),
+                Some("VERIFIED"),
+                "README command `{line}`: {}",
+                stdout(&o)
+            );
+        }
     }
+    // The README signs the sample protocol: its two signatures are beside it.
+    let beside = lots.join("hub-protocol.signatures.json");
+    let p = lotshift::protocol::load(&lots.join("hub-protocol.json")).unwrap();
+    assert!(beside.exists());
+    assert_eq!(
+        p.signatures
+            .iter()
+            .map(|s| s.meaning.as_str())
+            .collect::<Vec<_>>(),
+        ["authorship", "approval"]
+    );
     // The screenshot line needs a display: run it under xvfb-run when installed (CI installs
     // it and sets LOTSHIFT_REQUIRE_DISPLAY=1), with the built binary for `cargo run --release --`.
     let have_xvfb = Command::new("sh")

@@ -1290,3 +1290,262 @@ fn a_protocol_is_signed_in_sequence_and_its_signers_are_checked() {
     );
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// Prints `html` to PDF in headless Chromium and returns the text of each page (whitespace
+/// collapsed), as pdftotext reads it.
+fn printed_pages(browser: &Path, dir: &Path, html: &Path) -> Vec<String> {
+    let pdf = dir.join("printed.pdf");
+    let o = Command::new(browser)
+        .args([
+            "--headless",
+            "--no-sandbox",
+            "--disable-gpu",
+            "--disable-quic",
+            "--no-first-run",
+            "--disable-background-networking",
+            "--disable-component-update",
+            "--disable-sync",
+            "--no-pdf-header-footer",
+        ])
+        .arg(format!("--user-data-dir={}", dir.join("profile").display()))
+        .arg(format!("--print-to-pdf={}", pdf.display()))
+        .arg(format!("file://{}", html.display()))
+        .output()
+        .unwrap();
+    assert!(
+        pdf.exists(),
+        "no PDF: {}",
+        String::from_utf8_lossy(&o.stderr)
+    );
+    let text = Command::new("pdftotext")
+        .arg(&pdf)
+        .arg("-")
+        .output()
+        .expect("pdftotext (poppler-utils) runs");
+    String::from_utf8_lossy(&text.stdout)
+        .split('\x0c')
+        .filter(|p| !p.trim().is_empty())
+        .map(|p| p.split_whitespace().collect::<Vec<_>>().join(" "))
+        .collect()
+}
+
+#[test]
+fn the_complete_report_prints_every_field_in_a_real_browser() {
+    // A comparison with every part the report has: a signed protocol and a deviation from it,
+    // every entry field, a unit set aside, runs from an audit trail, and three signatures
+    // with comments. Printed by headless Chromium, each of them must be on paper; each chart
+    // on the page of its heading; the caution on every page.
+    let Some(browser) = chromium() else {
+        assert!(
+            std::env::var("LOTSHIFT_REQUIRE_BROWSER").is_err(),
+            "LOTSHIFT_REQUIRE_BROWSER is set but no chromium is installed"
+        );
+        eprintln!("skipped: chromium is not installed (apt-get install chromium poppler-utils)");
+        return;
+    };
+    let dir = protocol_folder("complete-report");
+    keygen(&dir, "Ben Okafor", "ben");
+    for (name, meaning, comment) in [
+        ("ana", "authorship", "written before the lots were measured"),
+        ("cleo", "approval", "approved for route B"),
+    ] {
+        let o = sign_protocol(&dir, name, meaning, comment);
+        assert!(o.status.success(), "{}", stderr(&o));
+    }
+    std::fs::write(
+        dir.join("set-aside.csv"),
+        "lot,serial,row,reason\ncandidate,HX40-B-0009,,dropped before measuring\n",
+    )
+    .unwrap();
+    let compare = |extra: &[&str], json: &str| -> serde_json::Value {
+        let args = [
+            &["compare", "--protocol", "hub-protocol.json"][..],
+            extra,
+            &["--exclude-units", "set-aside.csv", "--json", json][..],
+        ]
+        .concat();
+        let o = run(&args, &dir);
+        assert!(o.status.success(), "{}", stderr(&o));
+        serde_json::from_str(&std::fs::read_to_string(dir.join(json)).unwrap()).unwrap()
+    };
+    let first = compare(&[], "first.json");
+    let mut record = compare(
+        &[
+            "--alpha",
+            "0.01",
+            "--deviation",
+            "customer asked for 99% confidence",
+            "--field",
+            "reference lot=RA-2026-10 (demo)",
+            "--field",
+            "candidate lot=RB-2026-11 (demo)",
+            "--field",
+            "notes=first article of route B",
+        ],
+        "record.json",
+    );
+    // The two runs as the window's audit trail holds them.
+    let mut trail = lotshift::report::trail::Trail::at(dir.join("trail.jsonl"));
+    let runs: Vec<lotshift::report::AuditRun> = [&first, &record]
+        .iter()
+        .map(|r| {
+            let e = trail
+                .append(
+                    r["analysed_at"].as_str().unwrap().to_string(),
+                    [0, 1].map(|k| r["lots"][k]["sha256"].as_str().unwrap().to_string()),
+                    serde_json::from_value(r["characteristics"].clone()).unwrap(),
+                    r["settings"].clone(),
+                    r["verdict"].as_str().unwrap().to_string(),
+                )
+                .unwrap();
+            lotshift::report::AuditRun {
+                seq: e.seq,
+                at: e.at,
+                characteristics: e.characteristics,
+                settings: e.settings,
+                headline: e.headline,
+                hash: e.hash,
+            }
+        })
+        .collect();
+    record["audit_trail"] = serde_json::to_value(lotshift::report::AuditRecord {
+        file: "trail.jsonl".into(),
+        final_hash: runs[1].hash.clone(),
+        runs: runs.clone(),
+    })
+    .unwrap();
+    // Authorship, review and approval of the comparison, each with a comment.
+    let key = sign::read_signing_key(&dir.join("keys/ana.pem"), Some(PASS)).unwrap();
+    let summary = sign::first_signature(
+        record.clone(),
+        &key,
+        &sign::Manifestation {
+            signer: "Ana Lind".into(),
+            signed_at: sign::now_rfc3339(),
+            meaning: Meaning::Authorship,
+            comment: "route B trial lots".into(),
+        },
+    )
+    .unwrap();
+    std::fs::write(dir.join("summary.json"), summary.to_json()).unwrap();
+    for (name, meaning, comment) in [
+        ("ben", "review", "inputs, settings and exclusions checked"),
+        ("cleo", "approval", "released for the change request"),
+    ] {
+        let key = format!("keys/{name}.pem");
+        let o = run(
+            &[
+                "sign",
+                "summary.json",
+                "--key",
+                &key,
+                "--meaning",
+                meaning,
+                "--comment",
+                comment,
+                "--passphrase-file",
+                "pass.txt",
+            ],
+            &dir,
+        );
+        assert!(o.status.success(), "{}", stderr(&o));
+    }
+    let o = run(&["report", "summary.json", "--out", "report.html"], &dir);
+    assert!(o.status.success(), "{}", stderr(&o));
+    let signed =
+        sign::verify_sequence(&std::fs::read_to_string(dir.join("summary.json")).unwrap()).unwrap();
+    assert_eq!(signed.signatures.len(), 3);
+    let pages = printed_pages(&browser, &dir, &dir.join("report.html"));
+    assert!(pages.len() >= 2, "{} pages", pages.len());
+    for (k, page) in pages.iter().enumerate() {
+        assert!(
+            page.contains("supports, and does not replace, the lot disposition procedures"),
+            "page {}: {page}",
+            k + 1
+        );
+    }
+    let text = pages.join(" ");
+    let bare: String = text.split_whitespace().collect();
+    let mut want: Vec<String> = Vec::new();
+    // Every entry field, as the record holds it.
+    for f in record["fields"].as_array().unwrap() {
+        want.push(f["name"].as_str().unwrap().into());
+        want.push(f["value"].as_str().unwrap().into());
+    }
+    // Every check, the misclassification rates, the condition number, the settings.
+    want.extend(
+        [
+            "Box's M",
+            "Mardia",
+            "Shapiro–Wilk",
+            "permutation",
+            "misclassified by the discriminant rule",
+            "misclassified, each unit held out",
+            "condition number of the pooled correlation matrix",
+            "Settings",
+        ]
+        .map(String::from),
+    );
+    // The unit set aside with its reason, the deviation with its reason, the runs.
+    want.push(record["exclusions"][0]["reason"].as_str().unwrap().into());
+    let d = &record["protocol"]["deviations"][0];
+    want.push(d["reason"].as_str().unwrap().into());
+    want.push("Runs on these lots (audit trail)".into());
+    // The protocol's and the summary's signatures: each one's manifestation.
+    want.push("Signatures of the protocol".into());
+    let protocol_signatures: Vec<sign::SignatureBlock> =
+        serde_json::from_value(record["protocol"]["signatures"].clone()).unwrap();
+    assert_eq!(protocol_signatures.len(), 2);
+    for s in protocol_signatures.iter().chain(&signed.signatures) {
+        want.push(s.signer.clone());
+        want.push(s.signed_at.clone());
+        want.push(s.meaning.as_str().into());
+        want.push(s.comment.clone().unwrap_or_default());
+    }
+    for w in &want {
+        let squeezed: String = w.split_whitespace().collect();
+        assert!(
+            text.contains(w.as_str()) || bare.contains(&squeezed),
+            "the printed report lacks \"{w}\": {text}"
+        );
+    }
+    // Hashes may be wrapped in a table cell: looked for without white space.
+    let protocol_sha = record["protocol"]["sha256"].as_str().unwrap();
+    assert!(
+        bare.contains(protocol_sha),
+        "protocol SHA-256 {protocol_sha}"
+    );
+    for r in &runs {
+        assert!(bare.contains(&r.headline.split_whitespace().collect::<String>()));
+    }
+    // Each chart on the page of its heading: the heading and the chart's own legend.
+    let html = std::fs::read_to_string(dir.join("report.html")).unwrap();
+    let charts = [
+        (
+            "Chart: the three interval types per characteristic",
+            "difference / pooled SD",
+        ),
+        (
+            "Chart: the discriminant scores of both lots",
+            "discriminant score, higher toward the candidate",
+        ),
+        ("The pair that separates the lots most", "each lot's"),
+        (
+            "Chart: each characteristic's interval against its margin",
+            "in units of each margin",
+        ),
+    ];
+    for (heading, legend) in charts {
+        assert!(html.contains(heading), "the report draws \"{heading}\"");
+        let page = pages
+            .iter()
+            .position(|p| p.contains(heading))
+            .unwrap_or_else(|| panic!("\"{heading}\" is not printed"));
+        assert!(
+            pages[page].contains(legend),
+            "\"{heading}\" is on page {}, its chart is not",
+            page + 1
+        );
+    }
+    std::fs::remove_dir_all(dir).unwrap();
+}
