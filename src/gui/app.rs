@@ -876,6 +876,19 @@ impl LotshiftApp {
             } else {
                 "Drop two lot files on this window, or use Open lots…"
             });
+            // A reviewer or approver signs a file on disk without running a comparison (the
+            // top bar has no room for one more button while a run shows its progress).
+            if !busy {
+                ui.add_space(8.0);
+                if ui
+                    .button("Add my signature…")
+                    .on_hover_text("Add your signature (authorship, review, approval) to a signed summary or a comparison protocol on disk; no comparison needs to be run")
+                    .clicked()
+                {
+                    actions.push(Action::OpenSigning);
+                }
+                self.apply_all(actions);
+            }
             return;
         };
         match self.saved.view {

@@ -1,8 +1,8 @@
 //! The "Sign and export" form: the signer's printed name, the meaning of the signature, a
 //! comment, the signing key and its passphrase (typed in a password field, kept only until the
 //! key is opened, never stored). It signs the comparison shown, or adds a signature to a
-//! signed summary or a comparison protocol chosen in a dialog (this needs no comparison: the
-//! top bar's "Add my signature…" opens the form at any time). The form owns what is typed in it; reading, looking at and creating keys and
+//! signed summary or a comparison protocol chosen in a dialog (this needs no comparison: while
+//! none is shown, "Add my signature…" in the main area opens the form). The form owns what is typed in it; reading, looking at and creating keys and
 //! signing run as background jobs ([`super::jobs`]) that the form waits for without holding
 //! up a frame, and their outcomes come back here ([`absorb`]).
 

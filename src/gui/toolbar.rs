@@ -82,13 +82,7 @@ pub fn top_ui(ui: &mut egui::Ui, top: &Top, actions: &mut Vec<Action>) {
         {
             actions.push(Action::OpenSigning);
         }
-        if ui
-            .button("Add my signature…")
-            .on_hover_text("Add your signature (authorship, review, approval) to a signed summary or a comparison protocol on disk; no comparison needs to be run")
-            .clicked()
-        {
-            actions.push(Action::OpenSigning);
-        }
+
         if ui
             .button("Check a signed summary…")
             .on_hover_text("Open a signed summary and check its signature (and, with its lots loaded, its numbers)")
