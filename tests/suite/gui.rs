@@ -1235,6 +1235,9 @@ fn a_protocol_fixes_the_window_and_a_change_waits_for_its_reason() {
     h.state_mut().apply(Action::Rerun);
     settle(&mut h);
     assert!(h.state().result.is_held());
+    h.get_by_label(
+        "The protocol is not signed: nobody's authorship, review or approval of it is recorded.",
+    );
     h.get_by_label("This comparison differs from the protocol:");
     h.get_by_label("  alpha: 0.01 (protocol: 0.05)");
     h.state_mut().apply(Action::AcceptDeviations(
@@ -1435,5 +1438,13 @@ fn a_signature_is_added_to_a_protocol_or_a_summary_without_a_comparison() {
     let s = sign::verify_sequence(&std::fs::read_to_string(&path).unwrap()).unwrap();
     assert_eq!(s.signatures.len(), 2);
     assert_eq!(s.signatures[1].signer, "Cleo Marsh");
+    assert!(h.state().result.shown().is_none(), "no comparison was run");
+    // The protocol, opened in the window, says who signed it.
+    h.state_mut().load_protocol(&protocol);
+    settle(&mut h);
+    h.get_by_label_contains(&format!(
+        "Protocol signed: approval by Cleo Marsh on {} (UTC)",
+        p.signatures[0].signed_at
+    ));
     let _ = std::fs::remove_dir_all(dir);
 }
