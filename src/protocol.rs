@@ -65,8 +65,8 @@ pub enum ProtocolError {
     },
     /// The signatures file beside it does not verify, or is of another version of it.
     #[error(
-        "{0} (a protocol whose signatures do not hold is not used: sign it again, or remove \
-         the signatures file)"
+        "{0} (a protocol whose signatures do not hold is not used: to use a new version, move \
+         the old signatures file aside and sign the new version)"
     )]
     Signatures(#[from] ProtocolSignatureError),
     /// Well-formed, but not a usable protocol.
