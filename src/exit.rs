@@ -6,3 +6,7 @@ pub const EXIT_SHIFT: u8 = 1;
 pub const EXIT_NOT_VERIFIED: u8 = 1;
 /// Bad input or an analysis that cannot be made.
 pub const EXIT_BAD_INPUT: u8 = 2;
+/// A signed summary whose signatures are valid but that is short of verified: no
+/// trusted-signers list, a signer not in it or under another name or role, or lot files not
+/// given (the shortfalls are listed in words).
+pub const EXIT_PARTIALLY_VERIFIED: u8 = 3;

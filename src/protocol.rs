@@ -33,6 +33,8 @@ use crate::analysis::Settings;
 use crate::analysis::decision::MarginRule;
 use crate::data::{self, LoadOptions, match_key};
 use crate::pipeline::SpecRequest;
+use crate::report::protocol_sign::{self, ProtocolSignatureError};
+use crate::report::sign::SignatureBlock;
 use crate::report::{Deviation, FieldRecord, ProtocolRecord};
 
 /// Schema of a protocol file.
@@ -61,6 +63,12 @@ pub enum ProtocolError {
         /// What serde found.
         message: String,
     },
+    /// The signatures file beside it does not verify, or is of another version of it.
+    #[error(
+        "{0} (a protocol whose signatures do not hold is not used: to use a new version, move \
+         the old signatures file aside and sign the new version)"
+    )]
+    Signatures(#[from] ProtocolSignatureError),
     /// Well-formed, but not a usable protocol.
     #[error("{file}: {message}")]
     Invalid {
@@ -152,6 +160,10 @@ pub struct Protocol {
     pub spec: SpecRequest,
     /// The lot files, relative to the protocol's folder.
     pub lot_files: Vec<PathBuf>,
+    /// Its signatures, from the signatures file beside it
+    /// ([`crate::report::protocol_sign::signatures_path`]), every one checked; empty when it
+    /// is not signed.
+    pub signatures: Vec<SignatureBlock>,
 }
 
 fn invalid(path: &Path, message: impl Into<String>) -> ProtocolError {
@@ -236,13 +248,21 @@ pub fn load(path: &Path) -> Result<Protocol, ProtocolError> {
             }
         }
     };
+    let sha256 = data::hex(&Sha256::digest(&bytes));
+    let beside = protocol_sign::signatures_path(path);
+    let signatures = if beside.exists() {
+        protocol_sign::read(&beside, &sha256)?.signatures
+    } else {
+        Vec::new()
+    };
     Ok(Protocol {
         path: path.to_path_buf(),
-        sha256: data::hex(&Sha256::digest(&bytes)),
+        sha256,
         file,
         settings,
         spec,
         lot_files,
+        signatures,
     })
 }
 
@@ -392,6 +412,7 @@ pub fn record_section(p: &Protocol, deviations: Vec<Deviation>) -> ProtocolRecor
             sha256: p.sha256.clone(),
             title: p.file.title.clone(),
             deviations,
+            signatures: p.signatures.clone(),
         }
     }
 }

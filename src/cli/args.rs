@@ -15,6 +15,57 @@ pub struct KeygenArgs {
     /// Base name of the key files.
     #[arg(long, default_value = "lotshift-signing-key")]
     pub name: String,
+    /// Read the passphrase that protects the new key from the first line of FILE ("-":
+    /// standard input) instead of asking for it twice on the terminal.
+    #[arg(long, value_name = "FILE")]
+    pub passphrase_file: Option<PathBuf>,
+}
+
+/// Arguments of `sign`.
+#[derive(Debug, Args)]
+pub struct SignArgs {
+    /// The signed summary to add a signature to (rewritten in place, atomically, unless
+    /// --out is given), or a comparison protocol to sign (its signatures are kept beside it,
+    /// in NAME.signatures.json, unless --out is given).
+    #[arg(value_name = "SUMMARY|PROTOCOL")]
+    pub file: PathBuf,
+    /// The signer's private key (PEM).
+    #[arg(long, value_name = "KEY")]
+    pub key: PathBuf,
+    /// Meaning of the signature: authorship, review or approval.
+    #[arg(long, value_name = "MEANING")]
+    pub meaning: String,
+    /// The signer's comment, kept in the signature (e.g. what was checked).
+    #[arg(long, value_name = "TEXT", default_value = "")]
+    pub comment: String,
+    /// Printed name of the signer (default: the name stored beside the key by keygen).
+    #[arg(long, value_name = "NAME")]
+    pub signer: Option<String>,
+    /// Read the key's passphrase from the first line of FILE ("-": standard input) instead
+    /// of asking for it on the terminal.
+    #[arg(long, value_name = "FILE")]
+    pub passphrase_file: Option<PathBuf>,
+    /// Write the signed summary here instead of over SUMMARY (for a protocol: its
+    /// signatures file here instead of beside it).
+    #[arg(long, value_name = "FILE")]
+    pub out: Option<PathBuf>,
+}
+
+/// Arguments of `trust`.
+#[derive(Debug, Args)]
+pub struct TrustArgs {
+    /// The signer's public key (PEM, as keygen writes it: NAME.pub.pem).
+    #[arg(value_name = "PUB")]
+    pub key: PathBuf,
+    /// The printed name the key is issued to, exactly as the signer signs.
+    #[arg(long, value_name = "NAME")]
+    pub name: String,
+    /// The roles the signer may sign in: author, reviewer, approver (comma-separated).
+    #[arg(long, value_name = "ROLE,...", value_delimiter = ',', required = true)]
+    pub role: Vec<String>,
+    /// The trusted-signers list to add the signer to (made when absent).
+    #[arg(long, value_name = "FILE")]
+    pub trusted: PathBuf,
 }
 
 /// Arguments of `verify`.
@@ -27,9 +78,13 @@ pub struct VerifyArgs {
     /// lot column): checks their SHA-256 and recomputes every number.
     #[arg(long, value_name = "FILE", num_args = 1..=2)]
     pub files: Vec<PathBuf>,
-    /// The expected signer's public key (PEM).
+    /// The trusted-signers list: every signature must be by a key in it, under the printed
+    /// name listed, in a role the list gives (without it, at best PARTIALLY VERIFIED).
+    #[arg(long, value_name = "FILE")]
+    pub trusted: Option<PathBuf>,
+    /// A public key (PEM) that must have made one of the signatures (may be repeated).
     #[arg(long, value_name = "PUB")]
-    pub key: Option<PathBuf>,
+    pub key: Vec<PathBuf>,
     /// The specification file the comparison used: checks its SHA-256 and recomputes from
     /// the file's limits and margins (without it, from the ones the record holds).
     #[arg(long, value_name = "FILE")]
@@ -215,6 +270,9 @@ pub struct CompareArgs {
     /// statements (no unit leaves it); what needs every unit is reported as not computed.
     #[arg(long, requires = "database")]
     pub in_database: bool,
+    /// With --protocol: check the protocol's signers against this trusted-signers list.
+    #[arg(long, value_name = "FILE", requires = "protocol")]
+    pub trusted: Option<PathBuf>,
     /// Write the comparison record as JSON to FILE, or to standard output with "-".
     #[arg(long, value_name = "FILE")]
     pub json: Option<String>,
@@ -258,6 +316,13 @@ pub struct CompareArgs {
     /// Meaning of the signature: review, approval or authorship.
     #[arg(long, value_name = "MEANING", requires = "sign")]
     pub meaning: Option<String>,
+    /// The signer's comment, kept in the signature.
+    #[arg(long, value_name = "TEXT", requires = "sign")]
+    pub comment: Option<String>,
+    /// Read the key's passphrase from the first line of FILE ("-": standard input) instead
+    /// of asking for it on the terminal.
+    #[arg(long, value_name = "FILE", requires = "sign")]
+    pub passphrase_file: Option<PathBuf>,
     /// Printed name of the signer (default: the name stored beside the key by keygen).
     #[arg(long, value_name = "NAME", requires = "sign")]
     pub signer: Option<String>,

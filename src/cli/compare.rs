@@ -16,6 +16,10 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
         Some(path) => Some(crate::protocol::load(path)?),
         None => None,
     };
+    let trusted = match &a.trusted {
+        Some(path) => Some(crate::report::trust::read_trusted(path)?),
+        None => None,
+    };
     if let Some(p) = &protocol {
         // The protocol names the lots unless the command line does.
         let l = &p.file.lots;
@@ -155,24 +159,20 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
     // Sign before printing anything, so a bad key or meaning stops with nothing written.
     let signed = match &a.sign {
         Some(key_path) => {
-            let meaning_text = a.meaning.as_deref().unwrap_or_default();
-            let meaning = sign::Meaning::parse(meaning_text).ok_or_else(|| {
-                format!("--meaning must be review, approval or authorship (got \"{meaning_text}\")")
-            })?;
-            let key = sign::read_signing_key(key_path)?;
-            let signer = a.signer.clone().or_else(|| sign::signer_beside(key_path)).ok_or_else(|| {
-                format!(
-                    "no printed name for the signer: give --signer, or keep the .signer.json file \
-                     keygen wrote beside {}",
-                    key_path.display()
-                )
-            })?;
-            Some(sign::sign(
-                &record,
+            let meaning = super::signing::meaning(a.meaning.as_deref().unwrap_or_default())?;
+            let signer = super::signing::signer_name(a.signer.as_deref(), key_path)?;
+            let key = super::signing::signing_key(key_path, a.passphrase_file.as_deref())?;
+            let record_value = serde_json::to_value(&record)
+                .map_err(|e| CliError::from(format!("the record cannot be signed: {e}")))?;
+            Some(sign::first_signature(
+                record_value,
                 &key,
-                &signer,
-                meaning,
-                &sign::now_rfc3339(),
+                &sign::Manifestation {
+                    signer,
+                    signed_at: sign::now_rfc3339(),
+                    meaning,
+                    comment: a.comment.as_deref().unwrap_or_default().trim().to_string(),
+                },
             )?)
         }
         None => None,
@@ -196,6 +196,35 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
             Some(&record),
         ));
     }
+    // Who signed the protocol, against the trusted list when one is given: said plainly, the
+    // comparison still runs (`verify --trusted` reports a partial verification).
+    if let (Some(p), true) = (&record.protocol, a.json.as_deref() != Some("-")) {
+        let path = a
+            .trusted
+            .as_ref()
+            .map(|p| p.display().to_string())
+            .unwrap_or_default();
+        let (lines, short) = super::signing::protocol_signature_lines(
+            p,
+            trusted.as_ref().map(|l| (&l.list, path.as_str())),
+        );
+        if !p.signatures.is_empty() {
+            for line in lines.iter().filter(|l| l.starts_with("signer")) {
+                outln!("{line}");
+            }
+            if trusted.is_none() {
+                outln!(
+                    "protocol     its signers were not checked against a trusted list (give \
+                     --trusted FILE)"
+                );
+            } else if !short.is_empty() {
+                outln!("protocol     NOT FULLY TRUSTED:");
+                for s in &short {
+                    outln!("  - {s}");
+                }
+            }
+        }
+    }
     emit_json(&a.json, &record)?;
     if let (Some(summary), Some(out_path)) = (&signed, &a.out) {
         sign::write_summary(out_path, summary)
@@ -204,14 +233,17 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
             outln!(
                 "Signed summary written to {} (signed by {}, meaning {}, key {})",
                 out_path.display(),
-                summary.signature.signer,
-                summary.signature.meaning,
-                summary.signature.key_fingerprint
+                summary.signatures[0].signer,
+                summary.signatures[0].meaning,
+                summary.signatures[0].key_fingerprint
             );
         }
     }
     if let Some(html_path) = &a.html {
-        let html = html::render_html(&record, signed.as_ref().map(|s| &s.signature));
+        let html = html::render_html_signed(
+            &record,
+            signed.as_ref().map_or(&[][..], |s| s.signatures.as_slice()),
+        );
         report::write_atomic(html_path, html.as_bytes())
             .map_err(|e| format!("the report was not written: {e}"))?;
     }

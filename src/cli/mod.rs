@@ -28,13 +28,14 @@ fn out(text: &str) {
     let _ = std::io::stdout().lock().write_all(text.as_bytes());
 }
 
-pub use crate::exit::{EXIT_BAD_INPUT, EXIT_NOT_VERIFIED, EXIT_SHIFT};
+pub use crate::exit::{EXIT_BAD_INPUT, EXIT_NOT_VERIFIED, EXIT_PARTIALLY_VERIFIED, EXIT_SHIFT};
 
 mod args;
 mod compare;
 mod inspect;
 mod keys;
 mod plan;
+mod signing;
 mod verify;
 
 pub use args::*;
@@ -42,6 +43,7 @@ use compare::{compare, compare_stats};
 use inspect::inspect;
 use keys::keygen;
 use plan::plan;
+use signing::{sign_summary, trust};
 use verify::{report_html, verify};
 
 /// lotshift: do two production lots differ on several characteristics at once, and why?
@@ -84,7 +86,12 @@ pub enum Command {
     Plan(PlanArgs),
     /// Make an Ed25519 signing key pair for signed summaries.
     Keygen(KeygenArgs),
-    /// Check a signed summary: its signature, and with the lot files, every number.
+    /// Add a signature (review, approval, …) to a signed summary whose signatures verify.
+    Sign(SignArgs),
+    /// Add a signer's public key, printed name and roles to a trusted-signers list.
+    Trust(TrustArgs),
+    /// Check a signed summary: its signatures, the signers against a trusted list, and with
+    /// the lot files, every number.
     Verify(VerifyArgs),
     /// Render a record or signed summary as a self-contained HTML page.
     Report(ReportArgs),
@@ -118,6 +125,9 @@ pub enum CliError {
     /// The comparison inside a database stopped.
     #[error(transparent)]
     Aggregate(#[from] crate::source::aggregate::AggregateError),
+    /// A trusted-signers list.
+    #[error(transparent)]
+    Trust(#[from] crate::report::trust::TrustError),
     /// A comparison protocol that cannot be used.
     #[error(transparent)]
     Protocol(#[from] crate::protocol::ProtocolError),
@@ -147,6 +157,8 @@ pub fn run(command: Command) -> ExitCode {
         Command::Inspect(a) => inspect(a),
         Command::Plan(a) => plan(a),
         Command::Keygen(a) => keygen(a),
+        Command::Sign(a) => sign_summary(a),
+        Command::Trust(a) => trust(a),
         Command::Verify(a) => verify(a),
         Command::Report(a) => report_html(a),
     };

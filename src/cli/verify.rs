@@ -3,11 +3,19 @@
 #[allow(unused_imports)]
 use super::*;
 
+use crate::report::trust;
+
 pub(super) fn verify(a: VerifyArgs) -> CliResult {
     let text =
         std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
-    let expected = match &a.key {
-        Some(k) => Some(sign::read_verifying_key(k)?),
+    let expected = a
+        .key
+        .iter()
+        .map(|k| sign::read_verifying_key(k))
+        .collect::<Result<Vec<_>, _>>()?;
+    // A list that cannot be read is bad input (exit 2), found before anything is judged.
+    let trusted = match &a.trusted {
+        Some(path) => Some(trust::read_trusted(path)?),
         None => None,
     };
     let fail = |why: String| -> CliResult {
@@ -15,25 +23,178 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         eprintln!("lotshift: {}: not verified: {why}", a.file.display());
         Ok(ExitCode::from(EXIT_NOT_VERIFIED))
     };
-    let summary = match sign::verify_signature(&text, expected.as_ref()) {
+    let summary = match sign::verify_sequence(&text) {
         Ok(s) => s,
         Err(e) => return fail(e.to_string()),
     };
-    let sig = &summary.signature;
-    outln!(
-        "signature    valid: signed by {} on {} (UTC), meaning {}, key {}",
-        sig.signer,
-        sig.signed_at,
-        sig.meaning,
-        sig.key_fingerprint
-    );
-    if expected.is_some() {
-        outln!("signer key   matches the expected public key");
+    for exp in &expected {
+        let want = sign::fingerprint(exp);
+        if !summary.signatures.iter().any(|s| s.key_fingerprint == want) {
+            return fail(
+                sign::VerifyError::WrongKey {
+                    found: summary
+                        .signatures
+                        .iter()
+                        .map(|s| s.key_fingerprint.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", "),
+                    expected: want,
+                }
+                .to_string(),
+            );
+        }
+    }
+    // What keeps the summary from being verified without being wrong: each in words.
+    let mut short: Vec<String> = Vec::new();
+    let n = summary.signatures.len();
+    if summary.schema == sign::SIGNED_SCHEMA_V1 {
+        outln!("summary      schema {} (one signature)", summary.schema);
     } else {
         outln!(
-            "signer key   not checked against an expected key (give --key PUB to check who signed)"
+            "summary      schema {}: {}",
+            summary.schema,
+            if n == 1 {
+                "1 signature, covering the record".to_string()
+            } else {
+                format!(
+                    "{n} signatures in sequence, each covering the record and every earlier signature"
+                )
+            }
         );
     }
+    for (k, sig) in summary.signatures.iter().enumerate() {
+        let comment = match sig.comment.as_deref().map(str::trim) {
+            Some(c) if !c.is_empty() => format!(", comment \"{c}\""),
+            _ => String::new(),
+        };
+        outln!(
+            "signature {}  valid: signed by {} on {} (UTC), meaning {}, key {}{comment}",
+            k + 1,
+            sig.signer,
+            sig.signed_at,
+            sig.meaning,
+            sig.key_fingerprint
+        );
+    }
+    for note in sign::order_notes(&summary.signatures) {
+        outln!("note         {note}");
+    }
+    if !expected.is_empty() {
+        outln!(
+            "signer key   the expected public key{} made a signature",
+            if expected.len() == 1 { "" } else { "s each" }
+        );
+    }
+    match &trusted {
+        None => short.push(
+            "no trusted-signers list was given (--trusted FILE): who signed is not established"
+                .into(),
+        ),
+        Some(list) => {
+            let path = a
+                .trusted
+                .as_ref()
+                .map(|p| p.display().to_string())
+                .unwrap_or_default();
+            outln!(
+                "trusted list {path} ({} signers, SHA-256 {})",
+                list.list.signers.len(),
+                list.sha256
+            );
+            for (k, sig) in summary.signatures.iter().enumerate() {
+                let at = format!("signature {} ({} by {})", k + 1, sig.meaning, sig.signer);
+                match super::signing::standing_words(&list.list, sig, &at, &path) {
+                    Ok(line) => outln!("signer       {line}"),
+                    Err(why) => short.push(why),
+                }
+            }
+        }
+    }
+    // The protocol the comparison ran under: its signatures, as the record holds them, are
+    // checked again against its recorded SHA-256, and their signers against the list.
+    let recorded_protocol = match summary.record.get("protocol").filter(|v| !v.is_null()) {
+        None => None,
+        Some(v) => match serde_json::from_value::<report::ProtocolRecord>(v.clone()) {
+            Ok(p) => Some(p),
+            Err(e) => return fail(format!("the record's protocol cannot be read: {e}")),
+        },
+    };
+    if let Some(p) = &recorded_protocol {
+        if let Err(e) = crate::report::protocol_sign::check(&p.sha256, &p.signatures) {
+            return fail(format!("a signature of the protocol {}: {e}", p.file));
+        }
+        let path = a
+            .trusted
+            .as_ref()
+            .map(|p| p.display().to_string())
+            .unwrap_or_default();
+        let (lines, protocol_short) = super::signing::protocol_signature_lines(
+            p,
+            trusted.as_ref().map(|l| (&l.list, path.as_str())),
+        );
+        for line in lines {
+            outln!("{line}");
+        }
+        short.extend(protocol_short);
+    }
+    if let Some(path) = &a.protocol {
+        let Some(recorded) = &recorded_protocol else {
+            return fail(format!(
+                "--protocol {} was given, but the comparison was not run under a protocol",
+                path.display()
+            ));
+        };
+        let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
+        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
+        if got != recorded.sha256 {
+            return fail(format!(
+                "protocol file {} is not the protocol run: its SHA-256 is {got}, the record has {}",
+                path.display(),
+                recorded.sha256
+            ));
+        }
+        outln!("protocol     {} matches (SHA-256 {got})", path.display());
+        // The signatures file beside it may have grown since the run: the record's
+        // signatures must be its first ones.
+        let beside = crate::report::protocol_sign::signatures_path(path);
+        if beside.exists() {
+            let now = match crate::report::protocol_sign::read(&beside, &got) {
+                Ok(s) => s.signatures,
+                Err(e) => return fail(format!("the protocol's signatures do not hold: {e}")),
+            };
+            if !now.starts_with(&recorded.signatures) {
+                return fail(format!(
+                    "the protocol's signatures in {} are not the ones the record holds",
+                    beside.display()
+                ));
+            }
+            if now.len() > recorded.signatures.len() {
+                outln!(
+                    "note         {} holds {} protocol signatures; the record holds the {} there \
+                     were when the comparison ran (later ones were added after it)",
+                    beside.display(),
+                    now.len(),
+                    recorded.signatures.len()
+                );
+            }
+        }
+    }
+    let partial = |short: &[String]| -> CliResult {
+        outln!(
+            "PARTIALLY VERIFIED: every signature is valid, but the summary is short of verified in {} way{}:",
+            short.len(),
+            if short.len() == 1 { "" } else { "s" }
+        );
+        for s in short {
+            outln!("  - {s}");
+        }
+        eprintln!(
+            "lotshift: {}: only partially verified (exit status {EXIT_PARTIALLY_VERIFIED}): {}",
+            a.file.display(),
+            short.join("; ")
+        );
+        Ok(ExitCode::from(EXIT_PARTIALLY_VERIFIED))
+    };
     if let Some(path) = &a.trail {
         let chain = match crate::report::trail::read_chain(path) {
             Ok(c) => c,
@@ -90,8 +251,12 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
     }
     if a.files.is_empty() {
         outln!("lot files    not checked (give --files to check them and recompute every number)");
-        outln!("VERIFIED (signature only)");
-        return Ok(ExitCode::SUCCESS);
+        short.push(
+            "the lot files were not given (--files): their SHA-256 were not checked and no \
+             number was recomputed"
+                .into(),
+        );
+        return partial(&short);
     }
     let rec = &summary.record;
     // The record, typed: a record that does not parse is reported, never read with defaults.
@@ -144,24 +309,6 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         ),
         None => data::load_two(&files, None, None, &options),
     }?;
-    if let Some(path) = &a.protocol {
-        let Some(recorded) = &typed.protocol else {
-            return fail(format!(
-                "--protocol {} was given, but the comparison was not run under a protocol",
-                path.display()
-            ));
-        };
-        let bytes = std::fs::read(path).map_err(|e| format!("{}: {e}", path.display()))?;
-        let got = crate::data::hex(&<sha2::Sha256 as sha2::Digest>::digest(&bytes));
-        if got != recorded.sha256 {
-            return fail(format!(
-                "protocol file {} is not the protocol run: its SHA-256 is {got}, the record has {}",
-                path.display(),
-                recorded.sha256
-            ));
-        }
-        outln!("protocol     {} matches (SHA-256 {got})", path.display());
-    }
     if let Some(p) = &typed.protocol {
         for d in &p.deviations {
             outln!("deviation    {} — reason: {}", d.describe(), d.reason);
@@ -256,6 +403,9 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         );
     }
     outln!("recomputed   every number in the record matches the lot files");
+    if !short.is_empty() {
+        return partial(&short);
+    }
     outln!("VERIFIED");
     Ok(ExitCode::SUCCESS)
 }
@@ -268,26 +418,32 @@ pub(super) fn report_html(a: ReportArgs) -> CliResult {
         serde_json::from_str(&text).map_err(|e| format!("{}: not JSON: {e}", a.file.display()))?;
     // Typed: a file that does not parse as a record is refused with the reason, never drawn
     // with the missing parts left out.
-    let html = if doc.get("signature").is_some() && doc.get("record").is_some() {
+    let html = if (doc.get("signature").is_some() || doc.get("signatures").is_some())
+        && doc.get("record").is_some()
+    {
         let record = Record::deserialize(&doc["record"]).map_err(|e| {
             format!(
                 "{}: the signed summary does not hold a comparison record lotshift can read: {e}",
                 a.file.display()
             )
         })?;
-        let signature = sign::SignatureBlock::deserialize(&doc["signature"]).map_err(|e| {
+        let blocks = match doc.get("signatures") {
+            Some(list) => Vec::<sign::SignatureBlock>::deserialize(list),
+            None => sign::SignatureBlock::deserialize(&doc["signature"]).map(|b| vec![b]),
+        }
+        .map_err(|e| {
             format!(
-                "{}: the signed summary's signature block cannot be read: {e}",
+                "{}: the signed summary's signature blocks cannot be read: {e}",
                 a.file.display()
             )
         })?;
-        match sign::verify_signature(&text, None) {
+        match sign::verify_sequence(&text) {
             Ok(_) => eprintln!(
-                "lotshift: the signature verifies (use lotshift verify to check the lot files too)"
+                "lotshift: the signatures verify (use lotshift verify --trusted to check who signed and the lot files)"
             ),
             Err(e) => eprintln!("lotshift: warning: {e}"),
         }
-        html::render_html(&record, Some(&signature))
+        html::render_html_signed(&record, &blocks)
     } else if matches!(
         doc.get("schema").and_then(|s| s.as_str()),
         Some(report::SCHEMA | report::SCHEMA_V1)

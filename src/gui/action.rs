@@ -119,6 +119,9 @@ pub enum Action {
     /// Sign the result with the remembered key and save the signed summary, to this path or
     /// where a dialog says.
     Sign(Option<PathBuf>),
+    /// Add a signature, with the form's name, meaning, comment and key, to a signed summary:
+    /// this one, or one chosen in a dialog.
+    AddSignature(Option<PathBuf>),
     /// Open a dialog for a signed summary to check.
     PickSummary,
     /// Check this signed summary against the loaded lots and the current result.

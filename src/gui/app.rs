@@ -200,6 +200,8 @@ impl LotshiftApp {
             Action::PickSigningKey => self.worker.choose(Purpose::SigningKey),
             Action::PickKeyFolder => self.worker.choose(Purpose::KeyFolder),
             Action::Sign(to) => self.sign(to),
+            Action::AddSignature(Some(path)) => self.add_signature(path),
+            Action::AddSignature(None) => self.worker.choose(Purpose::SummaryToSign),
             Action::PickSummary => self.worker.choose(Purpose::Summary),
             Action::CheckSummary(path) => self.check_summary(&path),
             Action::Dismiss(k) => {
@@ -499,11 +501,12 @@ impl LotshiftApp {
     fn chosen(&mut self, purpose: Purpose, path: PathBuf) {
         match purpose {
             Purpose::SigningKey => self.worker.read_key(path),
-            Purpose::KeyFolder => match signing::key_folder_signer(self.signing.as_ref()) {
-                Ok(name) => self.worker.create_key(path, name),
+            Purpose::KeyFolder => match signing::key_folder_signer(self.signing.as_mut()) {
+                Ok((name, passphrase)) => self.worker.create_key(path, name, passphrase),
                 Err(why) => self.form_problem(why),
             },
             Purpose::Summary => self.check_summary(&path),
+            Purpose::SummaryToSign => self.add_signature(path),
             Purpose::Specification => self.load_spec_path(path),
             Purpose::Protocol => self.load_protocol(&path),
         }
@@ -543,12 +546,22 @@ impl LotshiftApp {
         }
     }
 
-    /// Opens the signing form; the remembered key (and the name stored beside it) is looked
-    /// at in the background.
-    pub fn open_signing(&mut self) {
-        if self.result.shown().is_none() {
+    /// Adds a signature with the form's name, meaning, comment and key to the signed summary
+    /// at `path` (in the background; the file is rewritten atomically, or left as it was).
+    fn add_signature(&mut self, path: PathBuf) {
+        let Some(form) = &mut self.signing else {
             return;
+        };
+        match signing::add_job(form, &self.saved, path) {
+            Ok(job) => self.worker.add_signature(job),
+            Err(why) => self.form_problem(why),
         }
+    }
+
+    /// Opens the signing form (without a result shown it can only add a signature to a file:
+    /// a signed summary or a comparison protocol); the remembered key (and the name stored
+    /// beside it) is looked at in the background.
+    pub fn open_signing(&mut self) {
         let key = self.saved.signing_key.clone();
         self.signing = Some(SignForm::new(self.saved.signer_name.clone(), key.clone()));
         if let Some(k) = key {
@@ -604,7 +617,7 @@ impl LotshiftApp {
         egui::CentralPanel::default().show(ui, |ui| self.central_ui(ui));
         if let Some(form) = &mut self.signing {
             let mut actions = Vec::new();
-            signing::form_ui(&ctx, form, &mut actions);
+            signing::form_ui(&ctx, form, self.result.shown().is_some(), &mut actions);
             self.apply_all(actions);
         }
         if self.worker.busy() {
@@ -863,6 +876,19 @@ impl LotshiftApp {
             } else {
                 "Drop two lot files on this window, or use Open lots…"
             });
+            // A reviewer or approver signs a file on disk without running a comparison (the
+            // top bar has no room for one more button while a run shows its progress).
+            if !busy {
+                ui.add_space(8.0);
+                if ui
+                    .button("Add my signature…")
+                    .on_hover_text("Add your signature (authorship, review, approval) to a signed summary or a comparison protocol on disk; no comparison needs to be run")
+                    .clicked()
+                {
+                    actions.push(Action::OpenSigning);
+                }
+                self.apply_all(actions);
+            }
             return;
         };
         match self.saved.view {

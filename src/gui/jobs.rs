@@ -39,10 +39,30 @@ pub struct SignJob {
     pub signer: String,
     /// Meaning of the signature.
     pub meaning: Meaning,
+    /// The signer's comment.
+    pub comment: String,
+    /// The passphrase typed for a protected key (kept only until the key is opened).
+    pub passphrase: Option<String>,
     /// File name a save dialog suggests.
     pub suggested_name: String,
     /// Where to save (none: a save dialog asks).
     pub to: Option<PathBuf>,
+}
+
+/// A signature to add to a signed summary, which is rewritten in place.
+pub struct AddJob {
+    /// The remembered private key.
+    pub key: PathBuf,
+    /// The passphrase typed for a protected key (kept only until the key is opened).
+    pub passphrase: Option<String>,
+    /// Who signs, when (set when signing), why, and the comment.
+    pub signer: String,
+    /// Meaning of the signature.
+    pub meaning: Meaning,
+    /// The signer's comment.
+    pub comment: String,
+    /// The signed summary.
+    pub summary: PathBuf,
 }
 
 impl Worker {
@@ -108,6 +128,10 @@ impl Worker {
                     .pick_folder(),
                 Purpose::Summary => rfd::FileDialog::new()
                     .set_title("Open a signed summary")
+                    .add_filter("JSON", &["json"])
+                    .pick_file(),
+                Purpose::SummaryToSign => rfd::FileDialog::new()
+                    .set_title("Open the signed summary or protocol to add your signature to")
                     .add_filter("JSON", &["json"])
                     .pick_file(),
                 Purpose::Specification => rfd::FileDialog::new()
@@ -219,14 +243,16 @@ impl Worker {
         std::thread::spawn(move || {
             let found = guarded("looking at the signing key", || {
                 let p = Path::new(&path);
-                Ok((p.exists(), sign::signer_beside(p)))
+                let protected = sign::read_key_file(p).ok().map(|k| k.is_protected());
+                Ok((p.exists(), sign::signer_beside(p), protected))
             });
-            let (exists, signer) = found.unwrap_or((false, None));
+            let (exists, signer, protected) = found.unwrap_or((false, None, None));
             out.send(
                 Outcome::KeyLooked {
                     path,
                     exists,
                     signer,
+                    protected,
                 },
                 Ends::Job,
             );
@@ -238,20 +264,23 @@ impl Worker {
         let out = self.begin(Ends::Job);
         std::thread::spawn(move || {
             let result = guarded("reading the signing key", || {
-                sign::read_signing_key(&path).map_err(|e| e.to_string())?;
+                let protected = sign::read_key_file(&path)
+                    .map_err(|e| e.to_string())?
+                    .is_protected();
                 let signer = sign::signer_beside(&path);
-                Ok((path, signer))
+                Ok((path, signer, protected))
             });
             out.send(Outcome::KeyRead(result), Ends::Job);
         });
     }
 
-    /// Makes a new signing key for `signer` in `folder`.
-    pub fn create_key(&mut self, folder: PathBuf, signer: String) {
+    /// Makes a new signing key for `signer` in `folder`, protected by `passphrase`.
+    pub fn create_key(&mut self, folder: PathBuf, signer: String, passphrase: String) {
         let out = self.begin(Ends::Job);
         std::thread::spawn(move || {
             let result = guarded("creating the signing key", || {
-                sign::keygen(&folder, "lotshift-signing-key", &signer).map_err(|e| e.to_string())
+                sign::keygen(&folder, "lotshift-signing-key", &signer, &passphrase)
+                    .map_err(|e| e.to_string())
             });
             out.send(Outcome::KeyCreated(result), Ends::Job);
         });
@@ -264,17 +293,18 @@ impl Worker {
         let out = self.begin(Ends::Job);
         std::thread::spawn(move || {
             let signed = guarded("signing", || {
-                let key = sign::read_signing_key(&job.key).map_err(|e| e.to_string())?;
+                let key = sign::read_signing_key(&job.key, job.passphrase.as_deref())
+                    .map_err(|e| e.to_string())?;
                 let mut record = job.record;
                 record.analysed_at = Some(sign::now_rfc3339());
-                sign::sign(
-                    &record,
-                    &key,
-                    &job.signer,
-                    job.meaning,
-                    &sign::now_rfc3339(),
-                )
-                .map_err(|e| e.to_string())
+                let record = serde_json::to_value(&record).map_err(|e| e.to_string())?;
+                let m = sign::Manifestation {
+                    signer: job.signer.clone(),
+                    signed_at: sign::now_rfc3339(),
+                    meaning: job.meaning,
+                    comment: job.comment.clone(),
+                };
+                sign::first_signature(record, &key, &m).map_err(|e| e.to_string())
             });
             let summary = match signed {
                 Ok(s) => s,
@@ -308,6 +338,56 @@ impl Worker {
         });
     }
 
+    /// Adds a signature to a signed summary whose signatures verify, and rewrites the file
+    /// atomically (a summary that does not verify is refused and left as it is).
+    pub fn add_signature(&mut self, job: AddJob) {
+        let out = self.begin(Ends::Job);
+        std::thread::spawn(move || {
+            let result = guarded("adding the signature", || {
+                let path = &job.summary;
+                let text = std::fs::read_to_string(path)
+                    .map_err(|e| format!("{}: {e}", path.display()))?;
+                let schema = serde_json::from_str::<serde_json::Value>(&text)
+                    .ok()
+                    .and_then(|v| v.get("schema").and_then(|s| s.as_str()).map(str::to_string));
+                if schema.as_deref() == Some(crate::protocol::PROTOCOL_SCHEMA) {
+                    return sign_protocol(&job);
+                }
+                // Refused before the key is opened when the signatures there do not verify.
+                sign::verify_sequence(&text).map_err(|e| {
+                    format!(
+                        "{}: not signed: its signatures do not verify ({e})",
+                        path.display()
+                    )
+                })?;
+                let key = sign::read_signing_key(&job.key, job.passphrase.as_deref())
+                    .map_err(|e| e.to_string())?;
+                let m = sign::Manifestation {
+                    signer: job.signer.clone(),
+                    signed_at: sign::now_rfc3339(),
+                    meaning: job.meaning,
+                    comment: job.comment.clone(),
+                };
+                let (json, summary) =
+                    sign::add_signature(path, &text, &key, &m).map_err(|e| e.to_string())?;
+                crate::report::write_atomic(path, json.as_bytes())
+                    .map_err(|e| format!("the signed summary was not written: {e}"))?;
+                let mut note = format!(
+                    "Signature {} ({} by {}) added to {}.",
+                    summary.signatures.len(),
+                    job.meaning,
+                    job.signer,
+                    path.display()
+                );
+                for n in sign::order_notes(&summary.signatures) {
+                    note.push_str(&format!(" Note: {n}."));
+                }
+                Ok(note)
+            });
+            out.send(Outcome::SignatureAdded(result), Ends::Job);
+        });
+    }
+
     /// Checks a signed summary's signature and, when `loaded` (the SHA-256 of the loaded lots)
     /// are the files it names, its numbers against `current` (the current result's record).
     pub fn check_summary(&mut self, path: PathBuf, loaded: Vec<String>, current: Option<Record>) {
@@ -319,6 +399,40 @@ impl Worker {
             out.send(Outcome::SummaryChecked(result), Ends::Job);
         });
     }
+}
+
+/// Adds the job's signature to the comparison protocol at `job.summary`, in the signatures
+/// file beside it (the protocol must be usable and its signatures must verify).
+fn sign_protocol(job: &AddJob) -> Result<String, String> {
+    use crate::report::protocol_sign;
+    let path = &job.summary;
+    let p = crate::protocol::load(path).map_err(|e| e.to_string())?;
+    let key =
+        sign::read_signing_key(&job.key, job.passphrase.as_deref()).map_err(|e| e.to_string())?;
+    let m = sign::Manifestation {
+        signer: job.signer.clone(),
+        signed_at: sign::now_rfc3339(),
+        meaning: job.meaning,
+        comment: job.comment.clone(),
+    };
+    let signed =
+        protocol_sign::add(&p.sha256, &p.signatures, &key, &m).map_err(|e| e.to_string())?;
+    let out = protocol_sign::signatures_path(path);
+    let json = serde_json::to_string_pretty(&signed).map_err(|e| e.to_string())?;
+    crate::report::write_atomic(&out, json.as_bytes())
+        .map_err(|e| format!("the protocol's signatures were not written: {e}"))?;
+    let mut note = format!(
+        "Signature {} ({} by {}) added to the protocol {} (in {}).",
+        signed.signatures.len(),
+        job.meaning,
+        job.signer,
+        path.display(),
+        out.display()
+    );
+    for n in sign::order_notes(&signed.signatures) {
+        note.push_str(&format!(" Note: {n}."));
+    }
+    Ok(note)
 }
 
 /// What checking the signed summary at `path` finds, in words: the signature, whether the
@@ -334,14 +448,37 @@ pub fn summary_note(
     let text = std::fs::read_to_string(path).map_err(|e| format!("{}: {e}", path.display()))?;
     let s = sign::verify_signature(&text, None)
         .map_err(|e| format!("{}: NOT VERIFIED: {e}", path.display()))?;
-    let sig = &s.signature;
-    let mut note = format!(
-        "{}: signature valid — signed by {} on {} UTC, meaning {}, key {}.",
-        path.display(),
-        sig.signer,
-        sig.signed_at,
-        sig.meaning,
-        sig.key_fingerprint
+    let mut note = match s.signatures.as_slice() {
+        [sig] => format!(
+            "{}: signature valid — signed by {} on {} UTC, meaning {}, key {}.",
+            path.display(),
+            sig.signer,
+            sig.signed_at,
+            sig.meaning,
+            sig.key_fingerprint
+        ),
+        all => format!(
+            "{}: {} signatures valid, in sequence — {}.",
+            path.display(),
+            all.len(),
+            all.iter()
+                .enumerate()
+                .map(|(k, sig)| format!(
+                    "{}: signed by {} on {} UTC, meaning {}",
+                    k + 1,
+                    sig.signer,
+                    sig.signed_at,
+                    sig.meaning
+                ))
+                .collect::<Vec<_>>()
+                .join("; ")
+        ),
+    };
+    for n in sign::order_notes(&s.signatures) {
+        note.push_str(&format!(" Note: {n}."));
+    }
+    note.push_str(
+        " Who signed is checked against the trusted-signers list by lotshift verify --trusted.",
     );
     let recorded: Vec<String> = s.record["lots"]
         .as_array()

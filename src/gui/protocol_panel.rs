@@ -104,6 +104,24 @@ pub fn protocol_ui(ui: &mut egui::Ui, state: &mut ProtocolState, actions: &mut V
             actions.push(Action::CloseProtocol);
         }
     });
+    if p.signatures.is_empty() {
+        ui.label(
+            RichText::new(
+                "The protocol is not signed: nobody's authorship, review or approval of it is recorded.",
+            )
+            .color(ui.visuals().warn_fg_color),
+        );
+    } else {
+        let who: Vec<String> = p
+            .signatures
+            .iter()
+            .map(|s| format!("{} by {} on {} (UTC)", s.meaning, s.signer, s.signed_at))
+            .collect();
+        ui.label(format!(
+            "Protocol signed: {}. Whether the signers are trusted is checked by lotshift verify --trusted.",
+            who.join("; ")
+        ));
+    }
     for d in &state.running {
         ui.label(format!("  deviation: {} — {}", d.describe(), d.reason));
     }

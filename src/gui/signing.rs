@@ -1,5 +1,8 @@
-//! The "Sign and export" form: the signer's printed name, the meaning of the signature and the
-//! signing key. The form owns what is typed in it; reading, looking at and creating keys and
+//! The "Sign and export" form: the signer's printed name, the meaning of the signature, a
+//! comment, the signing key and its passphrase (typed in a password field, kept only until the
+//! key is opened, never stored). It signs the comparison shown, or adds a signature to a
+//! signed summary or a comparison protocol chosen in a dialog (this needs no comparison: while
+//! none is shown, "Add my signature…" in the main area opens the form). The form owns what is typed in it; reading, looking at and creating keys and
 //! signing run as background jobs ([`super::jobs`]) that the form waits for without holding
 //! up a frame, and their outcomes come back here ([`absorb`]).
 
@@ -11,7 +14,7 @@ use crate::report::CAUTION;
 use crate::report::sign::Meaning;
 
 use super::action::Action;
-use super::jobs::SignJob;
+use super::jobs::{AddJob, SignJob};
 use super::shown::Shown;
 use super::state::Saved;
 use super::words::file_part;
@@ -41,6 +44,12 @@ pub struct SignForm {
     pub key: KeyStatus,
     /// A signature is being made in the background.
     pub signing: bool,
+    /// The signer's comment, kept in the signature.
+    pub comment: String,
+    /// The passphrase of the key (or of the key to create); taken by the job that uses it.
+    pub passphrase: String,
+    /// Whether the key is protected by a passphrase (none: not known yet).
+    pub protected: Option<bool>,
 }
 
 impl SignForm {
@@ -52,12 +61,20 @@ impl SignForm {
             problem: None,
             key: key.map_or(KeyStatus::Missing, KeyStatus::Checking),
             signing: false,
+            comment: String::new(),
+            passphrase: String::new(),
+            protected: None,
         }
     }
 }
 
 /// The window of the form; its buttons ask for dialogs, the signature or closing.
-pub fn form_ui(ctx: &egui::Context, form: &mut SignForm, actions: &mut Vec<Action>) {
+pub fn form_ui(
+    ctx: &egui::Context,
+    form: &mut SignForm,
+    result_shown: bool,
+    actions: &mut Vec<Action>,
+) {
     let mut open = true;
     let mut action = None;
     egui::Window::new("Sign and export the comparison")
@@ -65,7 +82,7 @@ pub fn form_ui(ctx: &egui::Context, form: &mut SignForm, actions: &mut Vec<Actio
         .collapsible(false)
         .resizable(false)
         .show(ctx, |ui| {
-            ui.label("A signed summary holds the whole comparison record and your signature: your printed name, the time of signing (UTC), the meaning of the signature, and an Ed25519 signature over it, so a reviewer can check it with lotshift verify.");
+            ui.label("A signed summary holds the whole comparison record and the signatures in sequence: each one's printed name, time of signing (UTC), meaning and comment, and an Ed25519 signature over the record and every earlier signature, so a reviewer can check it with lotshift verify.");
             ui.add_space(6.0);
             ui.horizontal(|ui| {
                 let label = ui.label("printed name");
@@ -76,6 +93,10 @@ pub fn form_ui(ctx: &egui::Context, form: &mut SignForm, actions: &mut Vec<Actio
                 ui.radio_value(&mut form.meaning, Meaning::Review, "review");
                 ui.radio_value(&mut form.meaning, Meaning::Approval, "approval");
                 ui.radio_value(&mut form.meaning, Meaning::Authorship, "authorship");
+            });
+            ui.horizontal(|ui| {
+                let label = ui.label("comment");
+                ui.text_edit_singleline(&mut form.comment).labelled_by(label.id);
             });
             match &form.key {
                 KeyStatus::Ready(k) | KeyStatus::Checking(k) => {
@@ -96,14 +117,40 @@ pub fn form_ui(ctx: &egui::Context, form: &mut SignForm, actions: &mut Vec<Actio
                     });
                 }
             }
+            let asks = match form.key {
+                KeyStatus::Missing => Some("passphrase for a new key (at least 8 characters)"),
+                _ if form.protected == Some(true) => Some("passphrase of the key"),
+                _ => None,
+            };
+            if let Some(what) = asks {
+                ui.horizontal(|ui| {
+                    let label = ui.label(what);
+                    ui.add(egui::TextEdit::singleline(&mut form.passphrase).password(true))
+                        .labelled_by(label.id);
+                });
+            }
+            if form.protected == Some(false) && matches!(form.key, KeyStatus::Ready(_)) {
+                ui.label(RichText::new("This key is not protected by a passphrase: anyone who copies the file can sign as you. It still signs; create a protected key and have it listed instead.").color(ui.visuals().warn_fg_color));
+            }
             if let Some(p) = &form.problem {
                 ui.label(RichText::new(p).color(ui.visuals().error_fg_color));
             }
             ui.add_space(6.0);
             ui.horizontal(|ui| {
                 let ready = matches!(form.key, KeyStatus::Ready(_)) && !form.signing;
-                if ui.add_enabled(ready, egui::Button::new("Sign and save…")).clicked() {
+                if ui
+                    .add_enabled(ready && result_shown, egui::Button::new("Sign and save…"))
+                    .on_disabled_hover_text("Run a comparison first to sign it; a signed summary or a protocol on disk takes your signature without one")
+                    .clicked()
+                {
                     action = Some(Action::Sign(None));
+                }
+                if ui
+                    .add_enabled(ready, egui::Button::new("Add my signature to a file…"))
+                    .on_hover_text("Open a signed summary or a comparison protocol whose signatures verify and add yours after them (authorship, review, approval); a summary is rewritten in place, a protocol's signatures are kept beside it in NAME.signatures.json")
+                    .clicked()
+                {
+                    action = Some(Action::AddSignature(None));
                 }
                 if ui.button("Cancel").clicked() {
                     action = Some(Action::CloseSigning);
@@ -150,6 +197,7 @@ pub fn sign_job(
     if form.signer.trim().is_empty() {
         return Err("Type your printed name.".into());
     }
+    let passphrase = passphrase_for(form)?;
     let c = &shown.comparison;
     form.signing = true;
     Ok(SignJob {
@@ -157,6 +205,8 @@ pub fn sign_job(
         record: shown.record.clone(),
         signer: form.signer.trim().to_string(),
         meaning: form.meaning,
+        comment: form.comment.trim().to_string(),
+        passphrase,
         suggested_name: format!(
             "signed-comparison-{}-vs-{}.json",
             file_part(&c.lots[0].name),
@@ -166,18 +216,65 @@ pub fn sign_job(
     })
 }
 
-/// The printed name a new key is made for.
+/// The passphrase typed for the key, taken from the form (none for a key known to be
+/// unprotected).
+fn passphrase_for(form: &mut SignForm) -> Result<Option<String>, String> {
+    if form.protected == Some(false) {
+        return Ok(None);
+    }
+    if form.passphrase.is_empty() {
+        return match form.protected {
+            Some(true) => Err("Type the passphrase of your key.".into()),
+            _ => Ok(None),
+        };
+    }
+    Ok(Some(std::mem::take(&mut form.passphrase)))
+}
+
+/// A signature to add to the signed summary at `summary`, with the form's name, meaning,
+/// comment and the remembered key; marks the form as signing.
 ///
 /// # Errors
-/// None typed yet (it is stored with the key).
-pub fn key_folder_signer(form: Option<&SignForm>) -> Result<String, String> {
-    let name = form
-        .map(|f| f.signer.trim().to_string())
-        .unwrap_or_default();
+/// No key remembered, no printed name, or no passphrase for a protected key.
+pub fn add_job(form: &mut SignForm, saved: &Saved, summary: PathBuf) -> Result<AddJob, String> {
+    let Some(key) = saved.signing_key.clone() else {
+        return Err("Choose or create a signing key first.".into());
+    };
+    if form.signer.trim().is_empty() {
+        return Err("Type your printed name.".into());
+    }
+    let passphrase = passphrase_for(form)?;
+    form.signing = true;
+    Ok(AddJob {
+        key: PathBuf::from(key),
+        passphrase,
+        signer: form.signer.trim().to_string(),
+        meaning: form.meaning,
+        comment: form.comment.trim().to_string(),
+        summary,
+    })
+}
+
+/// The printed name a new key is made for, and the passphrase that protects it (taken from
+/// the form).
+///
+/// # Errors
+/// No name typed yet (it is stored with the key), or a passphrase too short.
+pub fn key_folder_signer(form: Option<&mut SignForm>) -> Result<(String, String), String> {
+    let Some(form) = form else {
+        return Err("Type your printed name first: it is stored with the key.".into());
+    };
+    let name = form.signer.trim().to_string();
     if name.is_empty() {
         return Err("Type your printed name first: it is stored with the key.".into());
     }
-    Ok(name)
+    if form.passphrase.chars().count() < crate::report::sign::MIN_PASSPHRASE {
+        return Err(format!(
+            "Type a passphrase of at least {} characters first: it protects the new key and is never stored.",
+            crate::report::sign::MIN_PASSPHRASE
+        ));
+    }
+    Ok((name, std::mem::take(&mut form.passphrase)))
 }
 
 /// Applies an outcome of a key or signature job to the form (while open) and to the
@@ -195,10 +292,12 @@ pub fn absorb(form: &mut Option<SignForm>, saved: &mut Saved, outcome: Outcome) 
             path,
             exists,
             signer,
+            protected,
         } => {
             if let Some(f) = form
                 && f.key == KeyStatus::Checking(path.clone())
             {
+                f.protected = protected;
                 f.key = if exists {
                     KeyStatus::Ready(path)
                 } else {
@@ -213,9 +312,10 @@ pub fn absorb(form: &mut Option<SignForm>, saved: &mut Saved, outcome: Outcome) 
             }
             None
         }
-        Outcome::KeyRead(Ok((path, signer))) => {
+        Outcome::KeyRead(Ok((path, signer, protected))) => {
             let path = path.display().to_string();
             if let Some(f) = form {
+                f.protected = Some(protected);
                 if let Some(name) = signer {
                     f.signer = name;
                 }
@@ -228,6 +328,7 @@ pub fn absorb(form: &mut Option<SignForm>, saved: &mut Saved, outcome: Outcome) 
             let path = p.display().to_string();
             if let Some(f) = form {
                 f.key = KeyStatus::Ready(path.clone());
+                f.protected = Some(true);
             }
             saved.signing_key = Some(path);
             Some(Note::Notice(format!(
@@ -241,7 +342,14 @@ pub fn absorb(form: &mut Option<SignForm>, saved: &mut Saved, outcome: Outcome) 
             *form = None;
             None
         }
-        Outcome::Signed(Err(e)) => {
+        Outcome::SignatureAdded(Ok(note)) => {
+            if let Some(f) = form {
+                saved.signer_name = f.signer.clone();
+            }
+            *form = None;
+            Some(Note::Notice(note))
+        }
+        Outcome::Signed(Err(e)) | Outcome::SignatureAdded(Err(e)) => {
             if let Some(f) = form {
                 f.signing = false;
             }

@@ -82,6 +82,7 @@ pub fn top_ui(ui: &mut egui::Ui, top: &Top, actions: &mut Vec<Action>) {
         {
             actions.push(Action::OpenSigning);
         }
+
         if ui
             .button("Check a signed summary…")
             .on_hover_text("Open a signed summary and check its signature (and, with its lots loaded, its numbers)")

@@ -40,6 +40,8 @@ pub enum Purpose {
     KeyFolder,
     /// Choose a signed summary to check.
     Summary,
+    /// Choose a signed summary to add a signature to.
+    SummaryToSign,
     /// Choose a specification file (limits and margins) to load.
     Specification,
     /// Choose a comparison protocol to run under.
@@ -103,14 +105,19 @@ pub enum Outcome {
         exists: bool,
         /// The printed name beside it, if any.
         signer: Option<String>,
+        /// Whether the key is protected by a passphrase (none: not known, e.g. not readable).
+        protected: Option<bool>,
     },
-    /// A chosen signing key was read: its path and the printed name beside it, or why it
-    /// cannot be used.
-    KeyRead(Result<(PathBuf, Option<String>), String>),
+    /// A chosen signing key was read: its path, the printed name beside it and whether it is
+    /// protected by a passphrase, or why it cannot be used.
+    KeyRead(Result<(PathBuf, Option<String>, bool), String>),
     /// A new signing key was made: the private key's path, or why not.
     KeyCreated(Result<PathBuf, String>),
     /// The record was signed (and is being saved): the printed name used, or why not.
     Signed(Result<String, String>),
+    /// A signature was added to a signed summary and the file rewritten: what was done, in
+    /// words, or why not (the file is then unchanged).
+    SignatureAdded(Result<String, String>),
     /// A signed summary was checked: what was found (the signature valid), or the message
     /// (unreadable, NOT VERIFIED).
     SummaryChecked(Result<String, String>),

@@ -43,11 +43,14 @@ h1 { font-size: 22px; margin-bottom: 4px; } h2 { font-size: 16px; margin: 22px 0
 table { border-collapse: collapse; font-size: 12px; margin: 6px 0; }
 th, td { border: 1px solid #bbb; padding: 3px 6px; text-align: right; } th { background: #eee; }
 td.name, th.name { text-align: left; }
+td.when { white-space: nowrap; }
 .caution { font-style: italic; margin-top: 18px; }
 .signature { border: 2px solid #333; padding: 10px 14px; margin-top: 18px; }
 .muted { color: #555; font-size: 12px; }
 svg { display: block; margin: 8px 0; }
-.chart { break-inside: avoid; page-break-inside: avoid; }
+.chart, .keep { break-inside: avoid; page-break-inside: avoid; }
+h3 { font-size: 13px; margin: 12px 0 2px; }
+.chart h2, .chart h3 { break-after: avoid; page-break-after: avoid; }
 @page { margin: 14mm 14mm 20mm 14mm; }
 @media print {
   body { margin: 0; max-width: none; font-size: 10pt; }
@@ -72,8 +75,14 @@ fn page_footer() -> String {
     )
 }
 
-/// Renders a record (`signature` absent) or a signed summary as one HTML page.
+/// Renders a record (`signature` absent) or a summary with one signature as one HTML page.
 pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> String {
+    render_html_signed(record, signature.map_or(&[][..], std::slice::from_ref))
+}
+
+/// Renders a record (no `signatures`) or a signed summary (its signatures, in order) as one
+/// HTML page.
+pub fn render_html_signed(record: &Record, signatures: &[SignatureBlock]) -> String {
     let r = record;
     let mut h = String::new();
     let lot_name = |i: usize| lot_name(r, i);
@@ -128,25 +137,39 @@ pub fn render_html(record: &Record, signature: Option<&SignatureBlock>) -> Strin
     settings_section(&mut h, r);
     trail_section(&mut h, r);
     let _ = writeln!(h, "<p class=\"caution\">{}</p>", esc(CAUTION));
-    match signature {
-        Some(s) => {
-            let _ = writeln!(
-                h,
-                "<div class=\"signature\" id=\"signature\"><b>Electronically signed</b><br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b><br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of the record and this signature manifestation. Check it with <code>lotshift verify SUMMARY.json --files REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
-                esc(&s.signer),
-                esc(&s.signed_at),
-                esc(s.meaning.as_str()),
-                esc(&s.key_fingerprint),
-                esc(&s.algorithm),
-                esc(&s.canonicalization)
-            );
-        }
-        None => {
-            let _ = writeln!(
-                h,
-                "<div class=\"signature\" id=\"signature\">Not signed.</div>"
-            );
-        }
+    if signatures.is_empty() {
+        let _ = writeln!(
+            h,
+            "<div class=\"signature\" id=\"signature\">Not signed.</div>"
+        );
+    }
+    let n = signatures.len();
+    for (k, s) in signatures.iter().enumerate() {
+        let id = if k == 0 {
+            "signature".to_string()
+        } else {
+            format!("signature-{}", k + 1)
+        };
+        let comment = match s.comment.as_deref().map(str::trim) {
+            Some(c) if !c.is_empty() => format!("<br>Comment: {}", esc(c)),
+            _ => String::new(),
+        };
+        let covers = if k == 0 {
+            "the record and this signature manifestation"
+        } else {
+            "the record, every earlier signature and this signature manifestation"
+        };
+        let _ = writeln!(
+            h,
+            "<div class=\"signature\" id=\"{id}\"><b>Electronically signed</b> (signature {} of {n})<br>Signed by: <b>{}</b><br>Date and time of signing (UTC): {}<br>Meaning of the signature: <b>{}</b>{comment}<br>Key fingerprint: <code>{}</code><br><span class=\"muted\">{} signature over the {} canonical form of {covers}. Check it with <code>lotshift verify SUMMARY.json --trusted SIGNERS.json --files REFERENCE CANDIDATE</code>; this printout alone does not prove the signature.</span></div>",
+            k + 1,
+            esc(&s.signer),
+            esc(&s.signed_at),
+            esc(s.meaning.as_str()),
+            esc(&s.key_fingerprint),
+            esc(&s.algorithm),
+            esc(&s.canonicalization)
+        );
     }
     h.push_str("</body></html>\n");
     h
@@ -343,7 +366,7 @@ fn margin_chart(eq: &EquivalenceRecord) -> String {
     let height = 40.0 + row * rows.len() as f64;
     let x = scale(lo, hi, left, right);
     let mut s = format!(
-        "<div class=\"chart\"><svg id=\"margin-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{height}\" viewBox=\"0 0 {w} {height}\" font-size=\"12\">"
+        "<div class=\"chart\"><h3>Chart: each characteristic's interval against its margin</h3><svg id=\"margin-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{height}\" viewBox=\"0 0 {w} {height}\" font-size=\"12\">"
     );
     for (k, r) in rows.iter().enumerate() {
         let y = 22.0 + row * k as f64;
@@ -445,6 +468,35 @@ fn lots_section(h: &mut String, r: &Record) {
     }
 }
 
+/// The protocol's signatures as the record holds them (each one's manifestation), or a plain
+/// line that it is not signed.
+fn protocol_signatures(h: &mut String, p: &super::ProtocolRecord) {
+    if p.signatures.is_empty() {
+        h.push_str(
+            "<p id=\"protocol-signatures\"><b>The protocol is not signed:</b> no authorship, review or approval of it is recorded.</p>\n",
+        );
+        return;
+    }
+    let _ = write!(
+        h,
+        "<div class=\"keep\" id=\"protocol-signatures\"><b>Signatures of the protocol</b> <span class=\"muted\">({} in sequence, each an Ed25519 signature over the protocol's SHA-256 and every earlier one; <code>lotshift verify SUMMARY --trusted SIGNERS.json</code> checks them and who signed)</span><table><tr><th>#</th><th class=\"name\">printed name</th><th class=\"name\">date and time of signing (UTC)</th><th class=\"name\">meaning</th><th class=\"name\">comment</th><th class=\"name\">key fingerprint</th></tr>",
+        p.signatures.len()
+    );
+    for (k, s) in p.signatures.iter().enumerate() {
+        let _ = write!(
+            h,
+            "<tr><td>{}</td><td class=\"name\">{}</td><td class=\"name when\">{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td class=\"name\"><code>{}</code></td></tr>",
+            k + 1,
+            esc(&s.signer),
+            esc(&s.signed_at),
+            esc(s.meaning.as_str()),
+            esc(s.comment.as_deref().map(str::trim).unwrap_or_default()),
+            esc(&s.key_fingerprint)
+        );
+    }
+    h.push_str("</table></div>\n");
+}
+
 /// What the comparison is about, as entered: the standard fields first, in their order,
 /// then any other; every standard field is printed, a blank one as "(not given)", so that a
 /// missing entry shows on paper.
@@ -466,6 +518,7 @@ fn fields_section(h: &mut String, r: &Record) {
                     "Deviations from it:"
                 }
             );
+            protocol_signatures(h, p);
             if !p.deviations.is_empty() {
                 h.push_str("<table id=\"deviations\"><tr><th class=\"name\">what</th><th class=\"name\">protocol</th><th class=\"name\">as run</th><th class=\"name\">reason</th></tr>");
                 for d in &p.deviations {
@@ -536,7 +589,7 @@ fn trail_section(h: &mut String, r: &Record) {
     for run in &a.runs {
         let _ = write!(
             h,
-            "<tr><td>{}</td><td class=\"name\">{}</td><td class=\"name\">{}</td><td>{}</td><td class=\"name\">{}</td></tr>",
+            "<tr><td>{}</td><td class=\"name when\">{}</td><td class=\"name\">{}</td><td>{}</td><td class=\"name\">{}</td></tr>",
             run.seq,
             esc(&run.at),
             esc(&run.characteristics.join(", ")),
@@ -728,6 +781,22 @@ fn scale(lo: f64, hi: f64, a: f64, b: f64) -> impl Fn(f64) -> f64 {
     move |v| a + (v - lo) / (hi - lo) * (b - a)
 }
 
+/// Which interval a line of the interval chart draws.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum IntervalType {
+    Simultaneous,
+    Bonferroni,
+    OneAtATime,
+}
+
+/// How the interval chart draws each interval type, told apart in greyscale print: (type,
+/// offset in the row, line width, colour, SVG dash pattern, empty for solid).
+const INTERVAL_STROKES: [(IntervalType, f64, f64, &str, &str); 3] = [
+    (IntervalType::Simultaneous, -7.0, 6.0, "#9a9acd", ""),
+    (IntervalType::Bonferroni, 0.0, 3.5, "#505aaa", "9 3"),
+    (IntervalType::OneAtATime, 7.0, 1.8, "#141e5a", "2 2"),
+];
+
 /// The intervals in pooled SD units: each characteristic's interval divided by its pooled
 /// standard deviation, as the window's Intervals view draws them.
 fn interval_chart(r: &Record) -> String {
@@ -761,7 +830,7 @@ fn interval_chart(r: &Record) -> String {
     let height = 40.0 + row * ivs.len() as f64;
     let x = scale(lo, hi, left, right);
     let mut s = format!(
-        "<div class=\"chart\"><svg id=\"interval-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{height}\" viewBox=\"0 0 {w} {height}\" font-size=\"12\">"
+        "<div class=\"chart\"><h3>Chart: the three interval types per characteristic</h3><svg id=\"interval-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{height}\" viewBox=\"0 0 {w} {height}\" font-size=\"12\">"
     );
     let _ = write!(
         s,
@@ -778,14 +847,21 @@ fn interval_chart(r: &Record) -> String {
             y + 4.0,
             esc(&iv.characteristic)
         );
-        for (v, dy, width, color) in [
-            (iv.simultaneous, -7.0, 6.0, "#9a9acd"),
-            (iv.bonferroni, 0.0, 3.5, "#505aaa"),
-            (iv.one_at_a_time, 7.0, 1.8, "#141e5a"),
-        ] {
+        // Told apart without colour too: by width, by dash pattern and by place in the row.
+        for (which, dy, width, color, dash) in INTERVAL_STROKES {
+            let v = match which {
+                IntervalType::Simultaneous => iv.simultaneous,
+                IntervalType::Bonferroni => iv.bonferroni,
+                IntervalType::OneAtATime => iv.one_at_a_time,
+            };
+            let dash = if dash.is_empty() {
+                String::new()
+            } else {
+                format!(" stroke-dasharray=\"{dash}\"")
+            };
             let _ = write!(
                 s,
-                "<line x1=\"{:.1}\" x2=\"{:.1}\" y1=\"{2:.1}\" y2=\"{2:.1}\" stroke=\"{color}\" stroke-width=\"{width}\"/>",
+                "<line x1=\"{:.1}\" x2=\"{:.1}\" y1=\"{2:.1}\" y2=\"{2:.1}\" stroke=\"{color}\" stroke-width=\"{width}\"{dash}/>",
                 x(v[0] / sd[k]),
                 x(v[1] / sd[k]),
                 y + dy
@@ -799,7 +875,7 @@ fn interval_chart(r: &Record) -> String {
     }
     let _ = write!(
         s,
-        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">difference / pooled SD (thick: simultaneous, middle: Bonferroni, thin: one at a time; dashed: zero)</text><text x=\"{left}\" y=\"{}\" text-anchor=\"middle\">{}</text><text x=\"{right}\" y=\"{}\" text-anchor=\"middle\">{}</text></svg></div>",
+        "<text x=\"{}\" y=\"{}\" text-anchor=\"middle\">difference / pooled SD (thick solid: simultaneous, middle dashed: Bonferroni, thin dotted: one at a time; grey dashed: zero)</text><text x=\"{left}\" y=\"{}\" text-anchor=\"middle\">{}</text><text x=\"{right}\" y=\"{}\" text-anchor=\"middle\">{}</text></svg></div>",
         (left + right) / 2.0,
         height - 4.0,
         height - 18.0,
@@ -838,7 +914,7 @@ fn score_chart(r: &Record) -> String {
     let x = scale(start, start + width * bins as f64, left, right);
     let y = scale(0.0, top * 1.05, bottom, 12.0);
     let mut s = format!(
-        "<div class=\"chart\"><svg id=\"score-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-size=\"12\">"
+        "<div class=\"chart\"><h3>Chart: the discriminant scores of both lots</h3><svg id=\"score-chart\" xmlns=\"http://www.w3.org/2000/svg\" width=\"{w}\" height=\"{h}\" viewBox=\"0 0 {w} {h}\" font-size=\"12\">"
     );
     for (g, style) in crate::palette::LOTS.iter().enumerate() {
         let color = style.hex;
@@ -1212,10 +1288,103 @@ mod tests {
             "2026-12-02T03:30:00Z",
         )
         .unwrap();
-        let html = render_html(&r, Some(&s.signature));
+        let html = render_html_signed(&r, &s.signatures);
         assert!(html.contains("Signed by: <b>A. &lt;Engineer&gt;</b>"));
         assert!(html.contains("Meaning of the signature: <b>approval</b>"));
-        assert!(html.contains(&s.signature.key_fingerprint));
+        assert!(html.contains(&s.signatures[0].key_fingerprint));
         assert!(render_html(&r, None).contains("Not signed."));
+    }
+
+    /// Every chart is one block that cannot break across pages and opens with its heading, so
+    /// a printed chart is on the page of its heading.
+    #[test]
+    fn every_chart_keeps_its_heading_on_its_page() {
+        let html = render_html(&record(["ref", "cand"]), None);
+        let blocks: Vec<&str> = html.split("<div class=\"chart\">").skip(1).collect();
+        assert!(blocks.len() >= 3, "{} chart blocks", blocks.len());
+        for b in &blocks {
+            assert!(
+                b.starts_with("<h2>") || b.starts_with("<h3>"),
+                "a chart without its heading: {}",
+                &b[..b.len().min(80)]
+            );
+        }
+        assert!(STYLE.contains(".chart, .keep { break-inside: avoid; page-break-inside: avoid; }"));
+        assert!(STYLE.contains(".chart h2, .chart h3 { break-after: avoid;"));
+    }
+
+    /// In the interval chart the three interval types differ by line width and dash pattern,
+    /// not only by colour: each row draws three lines, no two with the same width and dashes.
+    #[test]
+    fn interval_types_are_told_apart_without_colour() {
+        let r = record(["ref", "cand"]);
+        let html = render_html(&r, None);
+        let chart = html
+            .split("<svg id=\"interval-chart\"")
+            .nth(1)
+            .unwrap()
+            .split("</svg>")
+            .next()
+            .unwrap();
+        let attr = |line: &str, name: &str| {
+            line.split(&format!(" {name}=\""))
+                .nth(1)
+                .map(|v| v.split('"').next().unwrap().to_string())
+                .unwrap_or_default()
+        };
+        let styles: Vec<(String, String)> = chart
+            .split("<line ")
+            .skip(1)
+            .filter(|l| l.contains("stroke-width"))
+            .map(|l| (attr(l, "stroke-width"), attr(l, "stroke-dasharray")))
+            .collect();
+        assert_eq!(styles.len(), 3 * r.intervals.len());
+        for row in styles.chunks(3) {
+            for a in 0..3 {
+                for b in a + 1..3 {
+                    assert_ne!(row[a].0, row[b].0, "{row:?}");
+                    assert_ne!(row[a].1, row[b].1, "{row:?}");
+                }
+            }
+        }
+    }
+
+    /// A protocol's signatures are printed with each one's manifestation; an unsigned
+    /// protocol is said to be so.
+    #[test]
+    fn the_protocol_and_its_signatures_are_shown() {
+        let mut r = record(["ref", "cand"]);
+        let sha = "ab".repeat(32);
+        let section = |signatures| super::super::ProtocolRecord {
+            file: "plan.json".into(),
+            sha256: sha.clone(),
+            title: Some("a plan".into()),
+            deviations: Vec::new(),
+            signatures,
+        };
+        r.protocol = Some(section(Vec::new()));
+        let html = render_html(&r, None);
+        assert!(html.contains(&sha));
+        assert!(html.contains("<b>The protocol is not signed:</b>"));
+        let m = super::super::sign::Manifestation {
+            signer: "P. <Planner>".into(),
+            signed_at: "2026-12-01T08:00:00Z".into(),
+            meaning: super::super::sign::Meaning::Approval,
+            comment: "plan approved".into(),
+        };
+        let key = ed25519_dalek::SigningKey::from_bytes(&[5u8; 32]);
+        let signed = super::super::protocol_sign::add(&sha, &[], &key, &m).unwrap();
+        r.protocol = Some(section(signed.signatures.clone()));
+        let html = render_html(&r, None);
+        assert!(!html.contains("The protocol is not signed"));
+        for want in [
+            "P. &lt;Planner&gt;",
+            "2026-12-01T08:00:00Z",
+            "<td class=\"name\">approval</td>",
+            "plan approved",
+            signed.signatures[0].key_fingerprint.as_str(),
+        ] {
+            assert!(html.contains(want), "{want}");
+        }
     }
 }

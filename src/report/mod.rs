@@ -2,11 +2,13 @@
 
 mod canonical;
 pub mod html;
+pub mod protocol_sign;
 mod record;
 pub mod sections;
 pub mod sign;
 mod text;
 pub mod trail;
+pub mod trust;
 
 pub use canonical::{CanonicalError, canonical_bytes};
 pub use record::{

@@ -394,6 +394,11 @@ pub struct ProtocolRecord {
     pub title: Option<String>,
     /// How the comparison differs from it, each with the reason given.
     pub deviations: Vec<Deviation>,
+    /// The protocol's signatures (authorship, review, approval) as they were when the
+    /// comparison ran, each over the protocol's SHA-256 and every earlier signature (empty:
+    /// the protocol is not signed; absent from records made before protocols were signed).
+    #[serde(default)]
+    pub signatures: Vec<super::sign::SignatureBlock>,
 }
 
 /// `fields[]`: one entry of the comparison's description, as entered.

@@ -125,6 +125,26 @@ pub fn render_text(
                 .unwrap_or_default(),
             p.sha256
         );
+        if p.signatures.is_empty() {
+            let _ = writeln!(
+                s,
+                "  the protocol is NOT SIGNED: nobody's authorship, review or approval of it is recorded"
+            );
+        }
+        for (k, sig) in p.signatures.iter().enumerate() {
+            let comment = match sig.comment.as_deref().map(str::trim) {
+                Some(c) if !c.is_empty() => format!(", comment \"{c}\""),
+                _ => String::new(),
+            };
+            let _ = writeln!(
+                s,
+                "  protocol signature {}: {} by {} on {} (UTC){comment}",
+                k + 1,
+                sig.meaning,
+                sig.signer,
+                sig.signed_at
+            );
+        }
         if p.deviations.is_empty() {
             let _ = writeln!(s, "  run as the protocol fixes it: no deviation");
         }

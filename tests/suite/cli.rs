@@ -440,15 +440,26 @@ fn every_command_line_in_the_readme_runs() {
     let home = dir.join("home");
     std::fs::create_dir_all(&home).unwrap();
     let bin = env!("CARGO_BIN_EXE_lotshift");
+    // Standard input holds a passphrase, as a script gives it to `--passphrase-file -` (the
+    // README's key lines read it there; the other commands leave it unread).
     let sh = |line: &str| {
-        Command::new("sh")
+        let mut child = Command::new("sh")
             .arg("-c")
             .arg(line)
             .current_dir(&dir)
             .env("L", bin)
             .env("HOME", &home)
-            .output()
-            .unwrap()
+            .stdin(std::process::Stdio::piped())
+            .stdout(std::process::Stdio::piped())
+            .stderr(std::process::Stdio::piped())
+            .spawn()
+            .unwrap();
+        if let Some(mut stdin) = child.stdin.take() {
+            use std::io::Write as _;
+            // A command that never reads closes the pipe: not an error here.
+            let _ = stdin.write_all(b"readme example passphrase\n");
+        }
+        child.wait_with_output().unwrap()
     };
     for line in &commands {
         let o = sh(line);
@@ -460,7 +471,27 @@ fn every_command_line_in_the_readme_runs() {
             stdout(&o),
             stderr(&o)
         );
+        // A documented `verify` reaches full verification (a partial one exits 3 above).
+        if line.starts_with("$L verify ") {
+            assert_eq!(
+                stdout(&o).trim_end().lines().last(),
+                Some("VERIFIED"),
+                "README command `{line}`: {}",
+                stdout(&o)
+            );
+        }
     }
+    // The README signs the sample protocol: its two signatures are beside it.
+    let beside = lots.join("hub-protocol.signatures.json");
+    let p = lotshift::protocol::load(&lots.join("hub-protocol.json")).unwrap();
+    assert!(beside.exists());
+    assert_eq!(
+        p.signatures
+            .iter()
+            .map(|s| s.meaning.as_str())
+            .collect::<Vec<_>>(),
+        ["authorship", "approval"]
+    );
     // The screenshot line needs a display: run it under xvfb-run when installed (CI installs
     // it and sets LOTSHIFT_REQUIRE_DISPLAY=1), with the built binary for `cargo run --release --`.
     let have_xvfb = Command::new("sh")

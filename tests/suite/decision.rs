@@ -457,6 +457,39 @@ fn bad_specification_files_name_file_row_and_column() {
     std::fs::remove_dir_all(dir).unwrap();
 }
 
+/// The passphrase of the signing key [`signing_key`] makes (in `pass.txt`).
+const PASSPHRASE: &str = "a long test passphrase";
+
+/// A protected signing key in `dir/keys` for Ana Reyes, listed in `dir/trusted.json` as a
+/// reviewer.
+fn signing_key(dir: &std::path::Path) {
+    std::fs::write(dir.join("pass.txt"), format!("{PASSPHRASE}\n")).unwrap();
+    for args in [
+        &[
+            "keygen",
+            "--signer",
+            "Ana Reyes",
+            "--out",
+            "keys",
+            "--passphrase-file",
+            "pass.txt",
+        ][..],
+        &[
+            "trust",
+            "keys/lotshift-signing-key.pub.pem",
+            "--name",
+            "Ana Reyes",
+            "--role",
+            "reviewer",
+            "--trusted",
+            "trusted.json",
+        ][..],
+    ] {
+        let o = run(args, dir);
+        assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    }
+}
+
 /// A signed summary made with a specification verifies from the record's specification and
 /// from the file; another file or a re-signed record with a changed margin does not.
 #[test]
@@ -470,10 +503,7 @@ fn verify_recomputes_from_the_recorded_specification() {
             String::from_utf8_lossy(&o.stderr)
         )
     };
-    ok(&run(
-        &["keygen", "--signer", "Ana Reyes", "--out", "keys"],
-        &dir,
-    ));
+    signing_key(&dir);
     ok(&run(
         &[
             "compare",
@@ -485,6 +515,8 @@ fn verify_recomputes_from_the_recorded_specification() {
             "99",
             "--sign",
             "keys/lotshift-signing-key.pem",
+            "--passphrase-file",
+            "pass.txt",
             "--meaning",
             "review",
             "--out",
@@ -517,7 +549,13 @@ fn verify_recomputes_from_the_recorded_specification() {
         5
     );
     assert!(rec["equivalence"]["multivariate"]["p_value"].is_number());
-    let files = ["--files", "reference-route-a.csv", "candidate-route-b.csv"];
+    let files = [
+        "--files",
+        "reference-route-a.csv",
+        "candidate-route-b.csv",
+        "--trusted",
+        "trusted.json",
+    ];
     let o = run(
         &[&["verify", "summary.json"][..], &files[..]].concat(),
         &dir,
@@ -555,8 +593,11 @@ fn verify_recomputes_from_the_recorded_specification() {
     // A margin changed in the record and signed again: the recomputed TOST differs.
     let mut forged = rec.clone();
     forged["specification"]["characteristics"][2]["margin"] = serde_json::json!([-0.05, 0.05]);
-    let key = lotshift::report::sign::read_signing_key(&dir.join("keys/lotshift-signing-key.pem"))
-        .unwrap();
+    let key = lotshift::report::sign::read_signing_key(
+        &dir.join("keys/lotshift-signing-key.pem"),
+        Some(PASSPHRASE),
+    )
+    .unwrap();
     let s = lotshift::report::sign::sign_value(
         forged,
         &key,
@@ -580,6 +621,8 @@ fn verify_recomputes_from_the_recorded_specification() {
             "0",
             "--sign",
             "keys/lotshift-signing-key.pem",
+            "--passphrase-file",
+            "pass.txt",
             "--meaning",
             "review",
             "--out",
@@ -656,10 +699,7 @@ fn verify_replays_exclusions_selections_and_columns_not_compared() {
             String::from_utf8_lossy(&o.stderr)
         )
     };
-    ok(&run(
-        &["keygen", "--signer", "Ana Reyes", "--out", "keys"],
-        &dir,
-    ));
+    signing_key(&dir);
     for (i, (cand, extra)) in [
         (
             "candidate-route-b.csv",
@@ -683,6 +723,8 @@ fn verify_replays_exclusions_selections_and_columns_not_compared() {
             "0",
             "--sign",
             "keys/lotshift-signing-key.pem",
+            "--passphrase-file",
+            "pass.txt",
             "--meaning",
             "review",
             "--out",
@@ -691,7 +733,15 @@ fn verify_replays_exclusions_selections_and_columns_not_compared() {
         args.extend(extra.iter().copied());
         ok(&run(&args, &dir));
         let o = run(
-            &["verify", &out, "--files", "reference-route-a.csv", cand],
+            &[
+                "verify",
+                &out,
+                "--files",
+                "reference-route-a.csv",
+                cand,
+                "--trusted",
+                "trusted.json",
+            ],
             &dir,
         );
         ok(&o);
@@ -724,10 +774,7 @@ fn units_set_aside_with_a_reason_are_recorded_and_replayed() {
             String::from_utf8_lossy(&o.stderr)
         )
     };
-    ok(&run(
-        &["keygen", "--signer", "Ana Reyes", "--out", "keys"],
-        &dir,
-    ));
+    signing_key(&dir);
     let before = std::fs::read(dir.join("candidate-route-b.csv")).unwrap();
     let o = run(
         &[
@@ -740,6 +787,8 @@ fn units_set_aside_with_a_reason_are_recorded_and_replayed() {
             "0",
             "--sign",
             "keys/lotshift-signing-key.pem",
+            "--passphrase-file",
+            "pass.txt",
             "--meaning",
             "review",
             "--out",
@@ -804,6 +853,8 @@ fn units_set_aside_with_a_reason_are_recorded_and_replayed() {
             "--files",
             "reference-route-a.csv",
             "candidate-route-b.csv",
+            "--trusted",
+            "trusted.json",
         ],
         &dir,
     );

@@ -311,7 +311,9 @@ fn a_summary_signed_in_the_window_from_a_split_file_verifies_on_the_command_line
         .output()
         .unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(out.status.success(), "{text}");
+    // Every number matches; without a trusted-signers list the summary is only partially
+    // verified (exit status 3).
+    assert_eq!(out.status.code(), Some(3), "{text}");
     assert!(
         text.contains("every number in the record matches"),
         "{text}"
@@ -581,7 +583,9 @@ fn a_specification_saved_from_the_window_is_what_the_record_names() {
         .output()
         .unwrap();
     let text = String::from_utf8_lossy(&out.stdout);
-    assert!(out.status.success(), "{text}");
+    // Every number matches; without a trusted-signers list the summary is only partially
+    // verified (exit status 3).
+    assert_eq!(out.status.code(), Some(3), "{text}");
     assert!(
         text.contains("every number in the record matches"),
         "{text}"
@@ -636,7 +640,7 @@ fn signing_runs_in_the_background_and_delivers_its_outcome() {
     let dir = std::env::temp_dir().join(format!("lotshift-gui-worker-sign-{}", std::process::id()));
     let _ = std::fs::remove_dir_all(&dir);
     std::fs::create_dir_all(&dir).unwrap();
-    let key = sign::keygen(&dir, "signing-key", "Dana Whitfield").unwrap();
+    let key = sign::keygen(&dir, "signing-key", "Dana Whitfield", "a long passphrase").unwrap();
     h.state_mut().saved.signing_key = Some(key.display().to_string());
     // Opening the form does not touch the disk: the key is looked at in the background.
     h.state_mut().apply(Action::OpenSigning);
@@ -650,12 +654,16 @@ fn signing_runs_in_the_background_and_delivers_its_outcome() {
     {
         let form = h.state().signing.as_ref().unwrap();
         assert_eq!(form.key, KeyStatus::Ready(key.display().to_string()));
+        assert_eq!(form.protected, Some(true));
         assert_eq!(
             form.signer, "Dana Whitfield",
             "the name stored beside the key"
         );
     }
     h.get_by_label_contains("signing key: ");
+    // The key is protected: the form asks for its passphrase (a password field).
+    h.get_by_label("passphrase of the key");
+    h.state_mut().signing.as_mut().unwrap().passphrase = "a long passphrase".into();
     // Signing: the action returns at once, with the signature still to be made.
     let out = dir.join("signed.json");
     h.state_mut().apply(Action::Sign(Some(out.clone())));
@@ -672,14 +680,55 @@ fn signing_runs_in_the_background_and_delivers_its_outcome() {
     let notice = state.notice.clone().unwrap_or_default();
     assert!(notice.contains("Record written to"), "{notice}");
     let summary = sign::verify_signature(&std::fs::read_to_string(&out).unwrap(), None).unwrap();
-    assert_eq!(summary.signature.signer, "Dana Whitfield");
-    assert_eq!(summary.signature.meaning.as_str(), "review");
+    assert_eq!(summary.signatures[0].signer, "Dana Whitfield");
+    assert_eq!(summary.signatures[0].meaning.as_str(), "review");
     // Checked in the window (also in the background): the numbers are the current result's.
     h.state_mut().apply(Action::CheckSummary(out.clone()));
     assert!(!h.state().worker.idle());
     settle(&mut h);
     h.get_by_label_contains("signature valid — signed by Dana Whitfield");
     h.get_by_label_contains("every number matches the current result");
+    // A second signature added to the opened summary, in the background: first with a wrong
+    // passphrase (the file stays as it was), then with the right one.
+    let before = std::fs::read(&out).unwrap();
+    for (pass, added) in [("not the passphrase", false), ("a long passphrase", true)] {
+        h.state_mut().apply(Action::OpenSigning);
+        settle(&mut h);
+        {
+            let form = h.state_mut().signing.as_mut().unwrap();
+            form.meaning = lotshift::report::sign::Meaning::Approval;
+            form.comment = "approved for the trial".into();
+            form.passphrase = pass.into();
+        }
+        h.state_mut().apply(Action::AddSignature(Some(out.clone())));
+        assert!(!h.state().worker.idle());
+        settle(&mut h);
+        let state = h.state();
+        if added {
+            assert!(state.signing.is_none(), "the form closes once signed");
+            let notice = state.notice.clone().unwrap_or_default();
+            assert!(
+                notice.contains("Signature 2 (approval by Dana Whitfield) added"),
+                "{notice}"
+            );
+        } else {
+            let problem = state
+                .signing
+                .as_ref()
+                .unwrap()
+                .problem
+                .clone()
+                .unwrap_or_default();
+            assert!(problem.contains("the passphrase is wrong"), "{problem}");
+            assert_eq!(std::fs::read(&out).unwrap(), before);
+        }
+    }
+    let summary = sign::verify_signature(&std::fs::read_to_string(&out).unwrap(), None).unwrap();
+    assert_eq!(summary.signatures.len(), 2);
+    assert_eq!(
+        summary.signatures[1].comment.as_deref(),
+        Some("approved for the trial")
+    );
     let _ = std::fs::remove_dir_all(dir);
 }
 
@@ -737,6 +786,11 @@ fn a_key_is_created_in_the_background_for_the_name_typed() {
     h.run_steps(2);
     h.get_by_label_contains("Type your printed name first");
     h.state_mut().signing.as_mut().unwrap().signer = "Dana Whitfield".into();
+    // Then a passphrase, which protects the new key.
+    h.state_mut().absorb(vec![chosen()]);
+    h.run_steps(2);
+    h.get_by_label_contains("Type a passphrase of at least 8 characters first");
+    h.state_mut().signing.as_mut().unwrap().passphrase = "a long passphrase".into();
     h.state_mut().absorb(vec![chosen()]);
     assert!(
         !h.state().worker.idle(),
@@ -1181,6 +1235,9 @@ fn a_protocol_fixes_the_window_and_a_change_waits_for_its_reason() {
     h.state_mut().apply(Action::Rerun);
     settle(&mut h);
     assert!(h.state().result.is_held());
+    h.get_by_label(
+        "The protocol is not signed: nobody's authorship, review or approval of it is recorded.",
+    );
     h.get_by_label("This comparison differs from the protocol:");
     h.get_by_label("  alpha: 0.01 (protocol: 0.05)");
     h.state_mut().apply(Action::AcceptDeviations(
@@ -1262,6 +1319,14 @@ fn every_run_in_the_window_goes_into_the_audit_trail_and_verify_checks_it() {
     let o = verify(&trail);
     let out = String::from_utf8_lossy(&o.stdout).into_owned();
     assert!(out.contains("2 entries, chain intact"), "{out}");
+    // The trail holds, but with no trusted list and no lot files the summary is only
+    // partially verified: its own status, never the one of a verified summary.
+    assert_eq!(
+        o.status.code(),
+        Some(i32::from(lotshift::exit::EXIT_PARTIALLY_VERIFIED)),
+        "{out}"
+    );
+    assert!(out.contains("PARTIALLY VERIFIED"), "{out}");
     let edited = dir.join("edited.jsonl");
     let text = std::fs::read_to_string(&trail).unwrap();
     std::fs::write(
@@ -1276,5 +1341,110 @@ fn every_run_in_the_window_goes_into_the_audit_trail_and_verify_checks_it() {
         out.contains("NOT VERIFIED") && out.contains("line 1") && out.contains("edited"),
         "{out}"
     );
+    let _ = std::fs::remove_dir_all(dir);
+}
+
+#[test]
+fn a_signature_is_added_to_a_protocol_or_a_summary_without_a_comparison() {
+    use lotshift::gui::action::Action;
+    use lotshift::report::sign;
+    // A window with nothing loaded: the top bar still opens the form, which can sign files
+    // on disk but not a comparison (there is none).
+    let app = LotshiftApp::new(None, Saved::default());
+    let mut h = Harness::builder()
+        .with_size(egui::vec2(1400.0, 900.0))
+        .build_ui_state(|ui, app: &mut LotshiftApp| app.show(ui), app);
+    settle(&mut h);
+    assert!(h.state().result.shown().is_none());
+    let dir = std::env::temp_dir().join(format!("lotshift-gui-sign-file-{}", std::process::id()));
+    let _ = std::fs::remove_dir_all(&dir);
+    std::fs::create_dir_all(&dir).unwrap();
+    for f in [
+        "hub-protocol.json",
+        "reference-route-a.csv",
+        "candidate-route-b.csv",
+        "hub-spec.csv",
+    ] {
+        std::fs::copy(common::sample(f), dir.join(f)).unwrap();
+    }
+    let key = sign::keygen(&dir, "signing-key", "Cleo Marsh", "a long passphrase").unwrap();
+    h.state_mut().saved.signing_key = Some(key.display().to_string());
+    h.get_by_label("Add my signature…").click();
+    settle(&mut h);
+    assert!(
+        h.state().signing.is_some(),
+        "the form opens without a result"
+    );
+    let disabled = |h: &Harness<'static, LotshiftApp>, label: &str| {
+        use egui_kittest::kittest::NodeT as _;
+        h.get_by_label(label).accesskit_node().is_disabled()
+    };
+    assert!(disabled(&h, "Sign and save…"), "nothing to sign");
+    assert!(!disabled(&h, "Add my signature to a file…"));
+    // The protocol: its signature goes beside it.
+    {
+        let form = h.state_mut().signing.as_mut().unwrap();
+        form.meaning = sign::Meaning::Approval;
+        form.comment = "protocol approved".into();
+        form.passphrase = "a long passphrase".into();
+    }
+    let protocol = dir.join("hub-protocol.json");
+    h.state_mut()
+        .apply(Action::AddSignature(Some(protocol.clone())));
+    settle(&mut h);
+    let notice = h.state().notice.clone().unwrap_or_default();
+    assert!(
+        notice.contains("Signature 1 (approval by Cleo Marsh) added to the protocol"),
+        "{notice}"
+    );
+    let p = lotshift::protocol::load(&protocol).unwrap();
+    assert_eq!(p.signatures.len(), 1);
+    assert_eq!(p.signatures[0].signer, "Cleo Marsh");
+    assert_eq!(
+        p.signatures[0].comment.as_deref(),
+        Some("protocol approved")
+    );
+    // A signed summary made elsewhere takes a second signature the same way.
+    let record = {
+        let o = std::process::Command::new(env!("CARGO_BIN_EXE_lotshift"))
+            .args([
+                "compare",
+                "--protocol",
+                protocol.to_str().unwrap(),
+                "--json",
+                "-",
+            ])
+            .output()
+            .unwrap();
+        assert!(o.status.success());
+        serde_json::from_slice::<serde_json::Value>(&o.stdout).unwrap()
+    };
+    let summary = sign::sign_value(
+        record,
+        &ed25519_key(),
+        "Ana Lind",
+        sign::Meaning::Authorship,
+        "2026-12-03T09:00:00Z",
+    )
+    .unwrap();
+    let path = dir.join("summary.json");
+    std::fs::write(&path, summary.to_json()).unwrap();
+    h.state_mut().apply(Action::OpenSigning);
+    settle(&mut h);
+    h.state_mut().signing.as_mut().unwrap().passphrase = "a long passphrase".into();
+    h.state_mut()
+        .apply(Action::AddSignature(Some(path.clone())));
+    settle(&mut h);
+    let s = sign::verify_sequence(&std::fs::read_to_string(&path).unwrap()).unwrap();
+    assert_eq!(s.signatures.len(), 2);
+    assert_eq!(s.signatures[1].signer, "Cleo Marsh");
+    assert!(h.state().result.shown().is_none(), "no comparison was run");
+    // The protocol, opened in the window, says who signed it.
+    h.state_mut().load_protocol(&protocol);
+    settle(&mut h);
+    h.get_by_label_contains(&format!(
+        "Protocol signed: approval by Cleo Marsh on {} (UTC)",
+        p.signatures[0].signed_at
+    ));
     let _ = std::fs::remove_dir_all(dir);
 }

@@ -533,6 +533,19 @@ fn full_record() -> Record {
             used: "0.01".into(),
             reason: "asked for".into(),
         }],
+        signatures: lotshift::report::protocol_sign::add(
+            &"0".repeat(64),
+            &[],
+            &ed25519_dalek::SigningKey::from_bytes(&[7; 32]),
+            &lotshift::report::sign::Manifestation {
+                signer: "A. Signer".into(),
+                signed_at: "2026-12-02T09:00:00Z".into(),
+                meaning: lotshift::report::sign::Meaning::Approval,
+                comment: "read".into(),
+            },
+        )
+        .unwrap()
+        .signatures,
     });
     record.audit_trail = Some(lotshift::report::AuditRecord {
         file: "audit-trail.jsonl".into(),
@@ -801,6 +814,16 @@ const KEYS: &[&str] = &[
     "protocol.deviations[].protocol",
     "protocol.deviations[].used",
     "protocol.deviations[].reason",
+    "protocol.signatures",
+    "protocol.signatures[].signer",
+    "protocol.signatures[].signed_at",
+    "protocol.signatures[].meaning",
+    "protocol.signatures[].comment",
+    "protocol.signatures[].algorithm",
+    "protocol.signatures[].canonicalization",
+    "protocol.signatures[].public_key",
+    "protocol.signatures[].key_fingerprint",
+    "protocol.signatures[].value",
     "audit_trail",
     "audit_trail.file",
     "audit_trail.final_hash",
