@@ -559,6 +559,26 @@ fn full_record() -> Record {
             hash: "1".repeat(64),
         }],
     });
+    record.lots[0].source = Some(lotshift::report::SourceRecord {
+        kind: "sqlite".into(),
+        url: "sqlite:lots.db".into(),
+        query: "SELECT * FROM hubs".into(),
+        lot_column: "route".into(),
+        lot_value: "A".into(),
+        rows_read: 40,
+        rows_sha256: Some("2".repeat(64)),
+        in_database: false,
+    });
+    record.in_database = Some(lotshift::analysis::InDatabase {
+        not_computed: vec!["medians".into()],
+        outliers: vec![lotshift::analysis::LabelledOutlier {
+            lot: 0,
+            d2: 30.0,
+            p_value: 1e-5,
+            labels: vec![("serial".into(), "HX40-A-0001".into())],
+        }],
+        outliers_truncated: false,
+    });
     record
 }
 
@@ -601,6 +621,15 @@ const KEYS: &[&str] = &[
     "lots[].left_out[].row",
     "lots[].left_out[].labels",
     "lots[].left_out[].missing",
+    "lots[].source",
+    "lots[].source.kind",
+    "lots[].source.url",
+    "lots[].source.query",
+    "lots[].source.lot_column",
+    "lots[].source.lot_value",
+    "lots[].source.rows_read",
+    "lots[].source.rows_sha256",
+    "lots[].source.in_database",
     "unmatched",
     "unmatched[].lot",
     "unmatched[].column",
@@ -835,6 +864,14 @@ const KEYS: &[&str] = &[
     "audit_trail.runs[].settings.alpha",
     "audit_trail.runs[].headline",
     "audit_trail.runs[].hash",
+    "in_database",
+    "in_database.not_computed",
+    "in_database.outliers",
+    "in_database.outliers[].lot",
+    "in_database.outliers[].d2",
+    "in_database.outliers[].p_value",
+    "in_database.outliers[].labels",
+    "in_database.outliers_truncated",
 ];
 
 #[test]
