@@ -95,6 +95,11 @@ pub struct VerifyArgs {
     /// The window's audit trail: checks its chain and that the record's runs are in it.
     #[arg(long, value_name = "FILE")]
     pub trail: Option<PathBuf>,
+    /// Lots read from a database: run the recorded query again on the recorded database
+    /// (the password from LOTSHIFT_DB_PASSWORD), check the rows' SHA-256 and recompute every
+    /// number (inside the database when the comparison was made there).
+    #[arg(long, conflicts_with = "files")]
+    pub database: bool,
 }
 
 /// Arguments of `report`.

@@ -249,6 +249,16 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
             audit.runs.len()
         );
     }
+    if a.database {
+        return match verify_database(&summary.record)? {
+            Ok(()) if short.is_empty() => {
+                outln!("VERIFIED");
+                Ok(ExitCode::SUCCESS)
+            }
+            Ok(()) => partial(&short),
+            Err(why) => fail(why),
+        };
+    }
     if a.files.is_empty() {
         outln!("lot files    not checked (give --files to check them and recompute every number)");
         short.push(
@@ -465,4 +475,103 @@ pub(super) fn report_html(a: ReportArgs) -> CliResult {
         .map_err(|e| format!("the report was not written: {e}"))?;
     outln!("report written to {}", a.out.display());
     Ok(ExitCode::SUCCESS)
+}
+
+/// `verify --database`: the recorded query is run again on the recorded database; row by row
+/// (the rows' SHA-256, then every number) or inside the database (every number). `Ok(Err)` is
+/// a failed check, in words.
+fn verify_database(rec: &serde_json::Value) -> Result<Result<(), String>, CliError> {
+    let typed: Record = match serde_json::from_value(rec.clone()) {
+        Ok(r) => r,
+        Err(e) => {
+            return Ok(Err(format!(
+                "the signed record is not a comparison record: {e}"
+            )));
+        }
+    };
+    let [lot0, lot1] = match typed.lots.as_slice() {
+        [a, b] => [a, b],
+        _ => return Ok(Err("the record does not describe two lots".into())),
+    };
+    let (Some(s0), Some(s1)) = (&lot0.source, &lot1.source) else {
+        return Ok(Err(
+            "the lots were not read from a database: give the lot files with --files".into(),
+        ));
+    };
+    if s0.url != s1.url || s0.query != s1.query || s0.lot_column != s1.lot_column {
+        return Ok(Err("the two lots name different sources".into()));
+    }
+    let source = crate::source::QuerySource {
+        database: crate::source::Database::parse(&s0.url)?,
+        query: s0.query.clone(),
+        lot_column: s0.lot_column.clone(),
+        lot_values: Some([s0.lot_value.clone(), s1.lot_value.clone()]),
+    };
+    outln!("database     {} (query run again, read-only)", s0.url);
+    let settings = Settings::from(&typed.settings);
+    let spec = SpecRequest {
+        recorded: typed
+            .specification
+            .as_ref()
+            .map(crate::analysis::decision::Specification::from),
+        ..SpecRequest::default()
+    };
+    let options = LoadOptions {
+        sheet: None,
+        labels: lot0.forced_labels.clone(),
+    };
+    let mut again = if s0.in_database {
+        let choice = crate::source::aggregate::Choice {
+            only: Some(typed.characteristics.clone()),
+            exclude: Vec::new(),
+        };
+        let outcome = crate::source::aggregate::compare_in_database(
+            &source, None, &options, &choice, &settings,
+        )?;
+        let mut c = outcome.comparison;
+        if !spec.is_empty() {
+            let given = spec.specification(&c.characteristics, &c.units)?;
+            analysis::apply_specification(&mut c, &given, None)?;
+        }
+        crate::source::aggregate::record(&c, &outcome.lots, &source)
+    } else {
+        let mut lots = crate::source::load_lots(&source, None, &options)?;
+        for (lot, recorded) in lots.iter().zip([s0, s1]) {
+            let want = recorded.rows_sha256.as_deref().unwrap_or_default();
+            if lot.provenance.sha256 != want {
+                return Ok(Err(format!(
+                    "the rows of lot \"{}\" are not the rows analysed: their SHA-256 is {}, the \
+                     record has {want}",
+                    recorded.lot_value, lot.provenance.sha256
+                )));
+            }
+            outln!(
+                "rows         lot \"{}\": {} rows match (SHA-256 {})",
+                recorded.lot_value,
+                lot.provenance.rows_read,
+                lot.provenance.sha256
+            );
+        }
+        let request = Request {
+            selection: Selection {
+                only: Some(typed.characteristics.clone()),
+                exclude: Vec::new(),
+            },
+            settings,
+            spec,
+            strict_columns: false,
+            exclusions: typed.exclusions.iter().map(Into::into).collect(),
+        };
+        let (prepared, c) = pipeline::run_owned(&mut lots, &request, &Silent)?;
+        Record::new(&c, Some((&prepared, [&lots[0], &lots[1]])))
+    };
+    again.fields = typed.fields.clone();
+    again.protocol = typed.protocol.clone();
+    again.audit_trail = typed.audit_trail.clone();
+    let recomputed = serde_json::to_value(again).map_err(|e| CliError::from(e.to_string()))?;
+    if let Some(diff) = sign::first_difference(rec, &recomputed) {
+        return Ok(Err(format!("a recomputed number differs: {diff}")));
+    }
+    outln!("recomputed   every number in the record matches the database");
+    Ok(Ok(()))
 }
