@@ -339,12 +339,41 @@ pub struct CompareArgs {
     pub html: Option<PathBuf>,
 }
 
+/// Arguments of `statements`.
+#[derive(Debug, Args)]
+pub struct StatementsArgs {
+    /// SQL dialect: generic (plain SQL), sqlite or postgresql.
+    #[arg(long, value_name = "NAME", default_value = "generic")]
+    pub dialect: String,
+    /// The SELECT whose rows are the units of both lots.
+    #[arg(long, value_name = "SQL")]
+    pub query: String,
+    /// The result's column holding each unit's lot.
+    #[arg(long, value_name = "COLUMN")]
+    pub lot_column: String,
+    /// The reference and the candidate value of the lot column ("A,B").
+    #[arg(long, value_name = "REFERENCE,CANDIDATE")]
+    pub lot_values: String,
+    /// The characteristics: the result's column names, in comparison order.
+    #[arg(long, value_name = "COL,...", value_delimiter = ',', required = true)]
+    pub characteristics: Vec<String>,
+}
+
 /// Arguments of `compare-stats`.
 #[derive(Debug, Args)]
 pub struct StatsArgs {
-    /// JSON file with `characteristics` and two `lots`, each `{name, n, mean, covariance}`.
+    /// JSON file with `characteristics` and two `lots`, each `{name, n, mean, covariance}`;
+    /// or the result of `lotshift statements`, saved as CSV (one row per lot; needs
+    /// --characteristics).
     #[arg(value_name = "FILE")]
     pub file: PathBuf,
+    /// For a statements result: the characteristics, in the order given to `statements`.
+    #[arg(long, value_name = "COL,...", value_delimiter = ',')]
+    pub characteristics: Option<Vec<String>>,
+    /// For a statements result: the reference and candidate value ("A,B"; default: the rows'
+    /// order).
+    #[arg(long, value_name = "REFERENCE,CANDIDATE")]
+    pub lot_values: Option<String>,
     /// Significance level (overrides the file's `alpha`).
     #[arg(long)]
     pub alpha: Option<f64>,

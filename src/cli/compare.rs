@@ -254,7 +254,146 @@ pub(super) fn compare(mut a: CompareArgs) -> CliResult {
     })
 }
 
+/// `statements`: the moments statement with the lot values written in, for a user to run.
+pub(super) fn statements(a: StatementsArgs) -> CliResult {
+    let dialect = crate::source::Dialect::parse(&a.dialect)?;
+    let lots = parse_lot_values(&a.lot_values)?;
+    let plan = crate::source::statements::Plan {
+        query: a.query.trim().trim_end_matches(';').to_string(),
+        lot_column: a.lot_column.clone(),
+        lots: lots.clone(),
+        columns: a.characteristics.clone(),
+        labels: Vec::new(),
+    };
+    let literal = crate::source::Dialect::Generic;
+    outln!(
+        "-- lotshift {}: the moments of lots {} (reference) and {} (candidate) in \"{}\",",
+        env!("CARGO_PKG_VERSION"),
+        crate::source::statements::quote_literal(&lots[0]),
+        crate::source::statements::quote_literal(&lots[1]),
+        a.lot_column
+    );
+    outln!("-- two passes over each lot inside the engine: the means, then the centred sums.");
+    outln!("-- Characteristics in order:");
+    for (k, c) in a.characteristics.iter().enumerate() {
+        outln!("--   {} = {}", k + 1, c);
+    }
+    outln!(
+        "-- Save the result (one row per lot, every digit) as CSV and read it with:\n--   \
+         lotshift compare-stats RESULT.csv --characteristics \"{}\" --lot-values \"{}\"",
+        a.characteristics.join(","),
+        a.lot_values
+    );
+    // Plain SQL in every dialect; generic writes the lot values in as quoted literals,
+    // sqlite and postgresql as the parameters 1 and 2 of a prepared statement.
+    if dialect != literal {
+        outln!(
+            "-- Parameters: 1 = {}, 2 = {}",
+            crate::source::statements::quote_literal(&lots[0]),
+            crate::source::statements::quote_literal(&lots[1])
+        );
+    }
+    outln!("{};", plan.moments(dialect));
+    Ok(ExitCode::SUCCESS)
+}
+
+/// `compare-stats` on the CSV result of `statements`.
+fn compare_statement_result(a: &StatsArgs) -> CliResult {
+    let names = a
+        .characteristics
+        .clone()
+        .ok_or("a statements result needs --characteristics: the names given to statements")?;
+    let lot = data::load(&a.file, &LoadOptions::default())?;
+    let table = crate::source::ResultTable {
+        columns: lot.columns.iter().map(|c| c.header.clone()).collect(),
+        rows: (0..lot.len())
+            .map(|i| {
+                lot.columns
+                    .iter()
+                    .map(|c| match &c.data {
+                        ColumnData::Numeric(v) if v[i].is_nan() => data::RawCell::Null,
+                        ColumnData::Numeric(v) => data::RawCell::Number(v[i]),
+                        ColumnData::Text(t) => data::RawCell::Text(t.get(i).to_string()),
+                    })
+                    .collect()
+            })
+            .collect(),
+    };
+    let lot_col = lot.column("lot").ok_or_else(|| {
+        format!(
+            "{}: no \"lot\" column: is this the result of lotshift statements?",
+            a.file.display()
+        )
+    })?;
+    let values: Vec<String> = (0..lot.len()).map(|i| lot_col.text(i)).collect();
+    let order: [String; 2] = match &a.lot_values {
+        Some(text) => parse_lot_values(text)?,
+        None => match values.as_slice() {
+            [x, y] => [x.clone(), y.clone()],
+            _ => {
+                return Err(CliError::from(format!(
+                    "{}: {} rows; give --lot-values to choose the two lots",
+                    a.file.display(),
+                    values.len()
+                )));
+            }
+        },
+    };
+    let p = names.len();
+    let mut sums = Vec::with_capacity(2);
+    for v in &order {
+        let row = values
+            .iter()
+            .position(|x| x == v)
+            .ok_or_else(|| format!("{}: no row for lot \"{v}\"", a.file.display()))?;
+        sums.push(
+            crate::source::aggregate::LotSums::from_result(&table, row, p)
+                .map_err(|why| format!("{}, lot \"{v}\": {why}", a.file.display()))?,
+        );
+    }
+    let (chars, units): (Vec<String>, Vec<Option<String>>) =
+        names.iter().map(|n| data::split_header(n)).unzip();
+    let settings = Settings {
+        alpha: a.alpha.unwrap_or(0.05),
+        leave_one_out: false,
+        checks: true,
+        permutations: 0,
+        seed: analysis::DEFAULT_SEED,
+        sequential: None,
+    };
+    let mut c = crate::source::aggregate::compare_sums(
+        &chars,
+        &units,
+        [&order[0], &order[1]],
+        [&sums[0], &sums[1]],
+        &settings,
+    )?;
+    let plan = a.spec.request()?;
+    if !plan.is_empty() {
+        let given = plan.specification(&c.characteristics, &c.units)?;
+        analysis::apply_specification(&mut c, &given, None)?;
+    }
+    let record = Record::new(&c, None);
+    if a.json.as_deref() != Some("-") {
+        let name = a.file.display().to_string();
+        out(&report::render_text(&c, None, [&name, &name], None));
+    }
+    emit_json(&a.json, &record)?;
+    Ok(if a.fail_on_shift && c.hotelling.differ {
+        ExitCode::from(EXIT_SHIFT)
+    } else {
+        ExitCode::SUCCESS
+    })
+}
+
 pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
+    let is_json = a
+        .file
+        .extension()
+        .is_some_and(|e| e.eq_ignore_ascii_case("json"));
+    if !is_json {
+        return compare_statement_result(&a);
+    }
     let text =
         std::fs::read_to_string(&a.file).map_err(|e| format!("{}: {e}", a.file.display()))?;
     let spec: StatsFile =

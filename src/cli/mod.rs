@@ -82,6 +82,9 @@ pub enum Command {
     CompareStats(StatsArgs),
     /// Show what lotshift sees in a file: delimiter, columns and their roles, missing cells.
     Inspect(InspectArgs),
+    /// Print the aggregate SQL of an in-database comparison, for an engine lotshift cannot
+    /// reach; save its result as CSV and read it with compare-stats.
+    Statements(StatementsArgs),
     /// Power of the test for a given shift and lot size, or the lot size for a target power.
     Plan(PlanArgs),
     /// Make an Ed25519 signing key pair for signed summaries.
@@ -154,6 +157,7 @@ pub fn run(command: Command) -> ExitCode {
     let result = match command {
         Command::Compare(a) => compare(a),
         Command::CompareStats(a) => compare_stats(a),
+        Command::Statements(a) => compare::statements(a),
         Command::Inspect(a) => inspect(a),
         Command::Plan(a) => plan(a),
         Command::Keygen(a) => keygen(a),

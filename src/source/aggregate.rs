@@ -298,7 +298,6 @@ pub fn compare_in_database(
     let sql = plan.moments(dialect);
     let t = session.statement(&sql, &params)?;
     statements.push(sql);
-    // Per lot: n, the pass-one mean (hi) and its correction (lo), SSP, min and max.
     let mut parts = Vec::with_capacity(2);
     for g in 0..2 {
         let row = t
@@ -315,85 +314,13 @@ pub fn compare_in_database(
             )
             .into());
         };
-        let get = |c: String| number(&t, row, &c).unwrap_or(f64::NAN);
-        let n = get("n".into()) as usize;
-        let hi: Vec<f64> = (1..=p).map(|k| get(format!("mean_{k}"))).collect();
-        let resid: Vec<f64> = (1..=p).map(|k| get(format!("resid_{k}"))).collect();
-        let lo: Vec<f64> = resid.iter().map(|r| r / n as f64).collect();
-        let min: Vec<f64> = (1..=p).map(|k| get(format!("min_{k}"))).collect();
-        let max: Vec<f64> = (1..=p).map(|k| get(format!("max_{k}"))).collect();
-        let mut ssp = DMatrix::<f64>::zeros(p, p);
-        for i in 0..p {
-            for j in i..p {
-                let s = get(format!("ssp_{}_{}", i + 1, j + 1)) - resid[i] * resid[j] / n as f64;
-                ssp[(i, j)] = s;
-                ssp[(j, i)] = s;
-            }
-        }
-        let finite = hi
-            .iter()
-            .chain(&resid)
-            .chain(&min)
-            .chain(&max)
-            .all(|v| v.is_finite())
-            && ssp.iter().all(|v| v.is_finite());
-        if !finite {
-            return Err(load_error(
-                source,
-                format!(
-                    "the sums of lot \"{}\" are not finite: a characteristic holds NaN or an \
-                     infinite value (in-database mode reads only NULL as a missing value)",
-                    plan.lots[g]
-                ),
-            )
-            .into());
-        }
-        counted[g].n = n;
-        parts.push((n, hi, lo, ssp, min, max));
+        let sums = LotSums::from_result(&t, row, p)
+            .map_err(|why| load_error(source, format!("lot \"{}\": {why}", plan.lots[g])))?;
+        counted[g].n = sums.n;
+        parts.push(sums);
     }
-    let origin = DVector::from_vec(parts[0].1.clone());
-    let moments: Vec<LotMoments> = parts
-        .iter()
-        .map(|(n, hi, lo, ssp, min, max)| LotMoments {
-            n: *n,
-            origin: origin.clone(),
-            // (hi − origin) is exact for nearby doubles; the correction carries the rest.
-            offset: DVector::from_fn(p, |k, _| (hi[k] - origin[k]) + lo[k]),
-            ssp: ssp.clone(),
-            spread_scale: DVector::from_fn(p, |k, _| {
-                (min[k] - origin[k]).abs().max((max[k] - origin[k]).abs())
-            }),
-        })
-        .collect();
-    let summaries: Vec<[ColumnSummary; 2]> = (0..p)
-        .map(|k| {
-            [0, 1].map(|g| {
-                let (n, hi, lo, ssp, min, max) = &parts[g];
-                ColumnSummary {
-                    n: *n,
-                    mean: hi[k] + lo[k],
-                    sd: if *n > 1 {
-                        (ssp[(k, k)] / (*n - 1) as f64).sqrt()
-                    } else {
-                        f64::NAN
-                    },
-                    min: min[k],
-                    median: f64::NAN,
-                    max: max[k],
-                    decimals: None,
-                }
-            })
-        })
-        .collect();
     let lot_names = [plan.lots[0].as_str(), plan.lots[1].as_str()];
-    let mut c = analysis::compare_moments(
-        &names,
-        &units,
-        lot_names,
-        [&moments[0], &moments[1]],
-        summaries,
-        settings,
-    )?;
+    let mut c = compare_sums(&names, &units, lot_names, [&parts[0], &parts[1]], settings)?;
     let mut not_computed = vec![
         "the leave-one-out misclassification rate".to_string(),
         "the permutation p-value".to_string(),
@@ -412,7 +339,7 @@ pub fn compare_in_database(
             units: Vec::new(),
         };
         for g in 0..2 {
-            let (n, hi, lo, ssp, _, _) = &parts[g];
+            let LotSums { n, hi, lo, ssp, .. } = &parts[g];
             let Some(w) = whitening(*n, hi, lo, ssp) else {
                 continue;
             };
@@ -555,4 +482,131 @@ pub fn record(
         });
     }
     r
+}
+
+/// One lot's sums as the moments statement returns them.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LotSums {
+    /// Units.
+    pub n: usize,
+    /// The pass-one means.
+    pub hi: Vec<f64>,
+    /// Their corrections, `Σ (x − mean) / n`.
+    pub lo: Vec<f64>,
+    /// `Σ (x − x̄)(x − x̄)ᵀ`, corrected.
+    pub ssp: DMatrix<f64>,
+    /// Smallest values.
+    pub min: Vec<f64>,
+    /// Largest values.
+    pub max: Vec<f64>,
+}
+
+impl LotSums {
+    /// Reads row `row` of a moments result (columns `n`, `mean_k`, `min_k`, `max_k`,
+    /// `resid_k`, `ssp_i_j`) for `p` characteristics.
+    ///
+    /// # Errors
+    /// A missing column or a value that is not a finite number, in words.
+    pub fn from_result(t: &ResultTable, row: usize, p: usize) -> Result<LotSums, String> {
+        let get = |c: String| -> Result<f64, String> {
+            match number(t, row, &c) {
+                Some(v) if v.is_finite() => Ok(v),
+                Some(_) => Err(format!(
+                    "\"{c}\" is not finite: a characteristic holds NaN or an infinite value \
+                     (in-database mode reads only NULL as a missing value)"
+                )),
+                None => Err(format!("the result has no number in column \"{c}\"")),
+            }
+        };
+        let nf = get("n".into())?;
+        if nf < 1.0 || nf.fract() != 0.0 {
+            return Err(format!("\"n\" must be a count of units (got {nf})"));
+        }
+        let n = nf as usize;
+        let mut hi = Vec::with_capacity(p);
+        let mut resid = Vec::with_capacity(p);
+        let mut min = Vec::with_capacity(p);
+        let mut max = Vec::with_capacity(p);
+        for k in 1..=p {
+            hi.push(get(format!("mean_{k}"))?);
+            resid.push(get(format!("resid_{k}"))?);
+            min.push(get(format!("min_{k}"))?);
+            max.push(get(format!("max_{k}"))?);
+        }
+        let mut ssp = DMatrix::<f64>::zeros(p, p);
+        for i in 0..p {
+            for j in i..p {
+                let v = get(format!("ssp_{}_{}", i + 1, j + 1))? - resid[i] * resid[j] / nf;
+                ssp[(i, j)] = v;
+                ssp[(j, i)] = v;
+            }
+        }
+        Ok(LotSums {
+            n,
+            lo: resid.iter().map(|r| r / nf).collect(),
+            hi,
+            ssp,
+            min,
+            max,
+        })
+    }
+}
+
+/// Compares two lots from their sums: the moments measured from the reference's pass-one
+/// mean, each lot's mean carried as `hi + lo` so that the difference keeps every digit.
+///
+/// # Errors
+/// As [`analysis::compare_moments`].
+pub fn compare_sums(
+    names: &[String],
+    units: &[Option<String>],
+    lots: [&str; 2],
+    sums: [&LotSums; 2],
+    settings: &Settings,
+) -> Result<Comparison, crate::stats::EngineError> {
+    let p = names.len();
+    let origin = DVector::from_vec(sums[0].hi.clone());
+    let moments: Vec<LotMoments> = sums
+        .iter()
+        .map(|s| LotMoments {
+            n: s.n,
+            origin: origin.clone(),
+            // (hi − origin) is exact for nearby doubles; the correction carries the rest.
+            offset: DVector::from_fn(p, |k, _| (s.hi[k] - origin[k]) + s.lo[k]),
+            ssp: s.ssp.clone(),
+            spread_scale: DVector::from_fn(p, |k, _| {
+                (s.min[k] - origin[k])
+                    .abs()
+                    .max((s.max[k] - origin[k]).abs())
+            }),
+        })
+        .collect();
+    let summaries: Vec<[ColumnSummary; 2]> = (0..p)
+        .map(|k| {
+            [0, 1].map(|g| {
+                let s = sums[g];
+                ColumnSummary {
+                    n: s.n,
+                    mean: s.hi[k] + s.lo[k],
+                    sd: if s.n > 1 {
+                        (s.ssp[(k, k)] / (s.n - 1) as f64).sqrt()
+                    } else {
+                        f64::NAN
+                    },
+                    min: s.min[k],
+                    median: f64::NAN,
+                    max: s.max[k],
+                    decimals: None,
+                }
+            })
+        })
+        .collect();
+    analysis::compare_moments(
+        names,
+        units,
+        lots,
+        [&moments[0], &moments[1]],
+        summaries,
+        settings,
+    )
 }
