@@ -64,10 +64,12 @@ pub(crate) fn read(
     let described: Vec<String> = (0..schema.num_columns())
         .map(|k| {
             let c = schema.column(k);
-            let logical = c
-                .logical_type_ref()
-                .map(|l| format!(" ({l:?})"))
-                .unwrap_or_default();
+            let converted = c.converted_type();
+            let logical = if converted == parquet::basic::ConvertedType::NONE {
+                String::new()
+            } else {
+                format!(" ({converted})")
+            };
             format!("{}: {}{}", c.path().string(), c.physical_type(), logical)
         })
         .collect();

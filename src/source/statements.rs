@@ -142,7 +142,7 @@ impl Plan {
             ));
         }
         format!(
-            "u AS (\n  SELECT {}\n  FROM {}\n  WHERE {}\n)",
+            "lotshift_u AS (\n  SELECT {}\n  FROM {}\n  WHERE {}\n)",
             cols.join(", "),
             self.source(),
             self.units_where(dialect, g)
@@ -177,7 +177,7 @@ impl Plan {
             }
         }
         format!(
-            "WITH {},\nm AS (\n  SELECT {}\n  FROM u GROUP BY lot\n)\nSELECT {}\nFROM u JOIN m ON u.lot = m.lot\nGROUP BY m.lot",
+            "WITH {},\nlotshift_m AS (\n  SELECT {}\n  FROM lotshift_u GROUP BY lot\n)\nSELECT {}\nFROM lotshift_u AS u JOIN lotshift_m AS m ON u.lot = m.lot\nGROUP BY m.lot",
             self.units_cte(dialect, None, false),
             m.join(", "),
             out.join(",\n  ")
@@ -216,7 +216,7 @@ impl Plan {
             cols.push(format!("{expr} AS z{}", a + 1));
         }
         format!(
-            "{},\nz AS (\n  SELECT {}\n  FROM u\n)",
+            "{},\nlotshift_z AS (\n  SELECT {}\n  FROM lotshift_u\n)",
             self.units_cte(dialect, Some(g), labels),
             cols.join(",\n    ")
         )
@@ -238,7 +238,7 @@ impl Plan {
         let r2 = r2.join(" + ");
         out.push(format!("SUM(({r2}) * ({r2})) AS r4"));
         format!(
-            "WITH {}\nSELECT {}\nFROM z",
+            "WITH {}\nSELECT {}\nFROM lotshift_z",
             self.whitened_cte(dialect, g, w, false),
             out.join(",\n  ")
         )
@@ -261,7 +261,7 @@ impl Plan {
             .collect();
         cols.push(format!("{} AS r2", r2.join(" + ")));
         format!(
-            "WITH {},\nd AS (\n  SELECT {}\n  FROM z\n)\nSELECT *\nFROM d\nWHERE r2 > {}\nORDER BY r2 DESC\nLIMIT {limit}",
+            "WITH {},\nlotshift_d AS (\n  SELECT {}\n  FROM lotshift_z\n)\nSELECT *\nFROM lotshift_d\nWHERE r2 > {}\nORDER BY r2 DESC\nLIMIT {limit}",
             self.whitened_cte(dialect, g, w, true),
             cols.join(", "),
             number_literal(cutoff)

@@ -8,6 +8,7 @@ mod common;
 
 mod checks;
 mod cli;
+mod database;
 mod decision;
 mod equivalence;
 #[cfg(feature = "gui")]
