@@ -348,16 +348,9 @@ pub fn compare_in_database(
                 let t = session.statement(&sql, &params[g..=g])?;
                 statements.push(sql);
                 let nf = *n as f64;
-                let mut b1 = 0.0;
-                for a in 1..=p {
-                    for b in a..=p {
-                        for cc in b..=p {
-                            let v =
-                                number(&t, 0, &format!("t_{a}_{b}_{cc}")).unwrap_or(f64::NAN) / nf;
-                            b1 += multiplicity(a, b, cc) * v * v;
-                        }
-                    }
-                }
+                let b1 = b1_from_moments(p, *n, &w, |i, j, k| {
+                    number(&t, 0, &format!("t_{}_{}_{}", i + 1, j + 1, k + 1)).unwrap_or(f64::NAN)
+                });
                 let b2 = number(&t, 0, "r4").unwrap_or(f64::NAN) / nf;
                 c.mardia
                     .push(checks::mardia_from(&plan.lots[g], *n, p, b1, b2));
@@ -417,21 +410,10 @@ pub fn compare_in_database(
     })
 }
 
-/// How many ordered triples the sorted triple a ≤ b ≤ c stands for.
-fn multiplicity(a: usize, b: usize, c: usize) -> f64 {
-    if a == b && b == c {
-        1.0
-    } else if a == b || b == c {
-        3.0
-    } else {
-        6.0
-    }
-}
-
-/// The whitening constants of a lot from its moments: the divisor-n covariance on the
-/// correlation scale, its Cholesky factor `L`, and `W = L⁻¹ D⁻¹`. The statement needs the
-/// coefficients themselves (a solve cannot be written into SQL), so `L⁻¹` is formed here,
-/// by forward substitution on the identity. `None` when the covariance is singular.
+/// The constants of a lot's second statements from its moments: the divisor-n covariance on
+/// the correlation scale, its Cholesky factor `L`, `L⁻¹` and `R⁻¹ = L⁻ᵀ L⁻¹`. The statements
+/// need the coefficients themselves (a solve cannot be written into SQL), so `L⁻¹` is formed
+/// here, by forward substitution on the identity. `None` when the covariance is singular.
 fn whitening(n: usize, hi: &[f64], lo: &[f64], ssp: &DMatrix<f64>) -> Option<Whiten> {
     let p = hi.len();
     let cov = ssp / n as f64;
@@ -442,18 +424,65 @@ fn whitening(n: usize, hi: &[f64], lo: &[f64], ssp: &DMatrix<f64>) -> Option<Whi
     let corr = DMatrix::from_fn(p, p, |i, j| cov[(i, j)] / (sd[i] * sd[j]));
     let l = nalgebra::Cholesky::new(corr)?.l();
     let linv = l.solve_lower_triangular(&DMatrix::identity(p, p))?;
-    let w = (0..p)
-        .map(|a| {
-            (0..p)
-                .map(|b| if b <= a { linv[(a, b)] / sd[b] } else { 0.0 })
-                .collect()
-        })
-        .collect();
+    let rinv = linv.tr_mul(&linv);
+    let rows = |m: &DMatrix<f64>| {
+        (0..p)
+            .map(|i| (0..p).map(|j| m[(i, j)]).collect())
+            .collect()
+    };
     Some(Whiten {
-        w,
+        l_inverse: rows(&linv),
+        inverse_correlation: rows(&rinv),
+        sd,
         mean_hi: hi.to_vec(),
         mean_lo: lo.to_vec(),
     })
+}
+
+/// Mardia's `b1,p` from the third moments of the centred, scaled units (`t(i, j, k)` for
+/// i ≤ j ≤ k): the tensor whitened by `L⁻¹` in each of its three modes,
+/// `T_abc = Σ L⁻¹_ai L⁻¹_bj L⁻¹_ck t_ijk`, then `b1 = Σ_abc (T_abc / n)²`.
+fn b1_from_moments(p: usize, n: usize, w: &Whiten, t: impl Fn(usize, usize, usize) -> f64) -> f64 {
+    let idx = |i: usize, j: usize, k: usize| (i * p + j) * p + k;
+    let mut m = vec![0.0; p * p * p];
+    for i in 0..p {
+        for j in 0..p {
+            for k in 0..p {
+                let mut s = [i, j, k];
+                s.sort_unstable();
+                m[idx(i, j, k)] = t(s[0], s[1], s[2]);
+            }
+        }
+    }
+    let l = &w.l_inverse;
+    // Three mode products, one index at a time.
+    let mode = |src: &[f64], which: usize| -> Vec<f64> {
+        let mut out = vec![0.0; p * p * p];
+        for a in 0..p {
+            for x in 0..p {
+                for y in 0..p {
+                    let mut acc = 0.0;
+                    for (i, la) in l[a].iter().enumerate().take(a + 1) {
+                        let v = match which {
+                            0 => src[idx(i, x, y)],
+                            1 => src[idx(x, i, y)],
+                            _ => src[idx(x, y, i)],
+                        };
+                        acc += la * v;
+                    }
+                    match which {
+                        0 => out[idx(a, x, y)] = acc,
+                        1 => out[idx(x, a, y)] = acc,
+                        _ => out[idx(x, y, a)] = acc,
+                    }
+                }
+            }
+        }
+        out
+    };
+    let whitened = mode(&mode(&mode(&m, 0), 1), 2);
+    let nf = n as f64;
+    whitened.iter().map(|v| (v / nf) * (v / nf)).sum()
 }
 
 /// The record of an in-database comparison: each lot's source (no row hash: no row left the

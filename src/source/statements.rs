@@ -184,62 +184,71 @@ impl Plan {
         )
     }
 
-    /// `z`: lot `g`'s units whitened with constants computed from the moments:
-    /// `zₐ = Σ_b W_ab ((x_b − hi_b) − lo_b)` with the mean split in two doubles (`hi + lo`) so
-    /// that the centring keeps every digit.
-    fn whitened_cte(&self, dialect: Dialect, g: usize, w: &Whiten, labels: bool) -> String {
-        let p = self.columns.len();
+    /// `lotshift_y`: lot `g`'s units centred and scaled with constants computed from the
+    /// moments: `y_k = ((x_k − hi_k) − lo_k) / sd_k`, the mean split in two doubles
+    /// (`hi + lo`) so that the centring keeps every digit.
+    fn centred_cte(&self, dialect: Dialect, g: usize, w: &Whiten, labels: bool) -> String {
         let mut cols = Vec::new();
         if labels {
             for k in 1..=self.labels.len() {
                 cols.push(format!("label_{k}"));
             }
         }
-        for a in 0..p {
-            let terms: Vec<String> = (0..=a)
-                .filter(|&b| w.w[a][b] != 0.0)
-                .map(|b| {
-                    format!(
-                        "{} * ((v{} - {}) - {})",
-                        number_literal(w.w[a][b]),
-                        b + 1,
-                        number_literal(w.mean_hi[b]),
-                        number_literal(w.mean_lo[b])
-                    )
-                })
-                .collect();
-            let expr = if terms.is_empty() {
-                "0.0".to_string()
-            } else {
-                terms.join(" + ")
-            };
-            cols.push(format!("{expr} AS z{}", a + 1));
+        for k in 0..self.columns.len() {
+            cols.push(format!(
+                "((v{i} - {}) - {}) * {} AS y{i}",
+                number_literal(w.mean_hi[k]),
+                number_literal(w.mean_lo[k]),
+                number_literal(1.0 / w.sd[k]),
+                i = k + 1
+            ));
         }
         format!(
-            "{},\nlotshift_z AS (\n  SELECT {}\n  FROM lotshift_u\n)",
+            "{},\nlotshift_y AS (\n  SELECT {}\n  FROM lotshift_u\n)",
             self.units_cte(dialect, Some(g), labels),
             cols.join(",\n    ")
         )
     }
 
-    /// Mardia's moments of lot `g`: `t_a_b_c = Σ zₐ z_b z_c` for a ≤ b ≤ c and
-    /// `r4 = Σ (zᵀz)²`.
+    /// `yᵀ R⁻¹ y`, the squared whitened length, written out with the coefficients of the
+    /// inverse correlation matrix.
+    fn quadratic_form(w: &Whiten) -> String {
+        let p = w.sd.len();
+        let mut terms = Vec::new();
+        for i in 0..p {
+            for j in i..p {
+                let a = w.inverse_correlation[i][j] * if i == j { 1.0 } else { 2.0 };
+                if a != 0.0 {
+                    terms.push(format!("{} * y{} * y{}", number_literal(a), i + 1, j + 1));
+                }
+            }
+        }
+        if terms.is_empty() {
+            "0.0".into()
+        } else {
+            terms.join(" + ")
+        }
+    }
+
+    /// Mardia's moments of lot `g`: the third moments of the centred, scaled units,
+    /// `t_i_j_k = Σ yᵢ yⱼ y_k` for i ≤ j ≤ k (lotshift whitens them afterwards, as a tensor),
+    /// and `r4 = Σ (yᵀ R⁻¹ y)²`. Each sum multiplies plain columns, so an engine that
+    /// inlines the common table expressions repeats no long expression.
     pub fn mardia(&self, dialect: Dialect, g: usize, w: &Whiten) -> String {
         let p = self.columns.len();
         let mut out = Vec::new();
         for a in 1..=p {
             for b in a..=p {
                 for c in b..=p {
-                    out.push(format!("SUM(z{a} * z{b} * z{c}) AS t_{a}_{b}_{c}"));
+                    out.push(format!("SUM(y{a} * y{b} * y{c}) AS t_{a}_{b}_{c}"));
                 }
             }
         }
-        let r2: Vec<String> = (1..=p).map(|a| format!("z{a} * z{a}")).collect();
-        let r2 = r2.join(" + ");
-        out.push(format!("SUM(({r2}) * ({r2})) AS r4"));
+        out.push("SUM(r2 * r2) AS r4".into());
         format!(
-            "WITH {}\nSELECT {}\nFROM lotshift_z",
-            self.whitened_cte(dialect, g, w, false),
+            "WITH {},\nlotshift_r AS (\n  SELECT *, {} AS r2\n  FROM lotshift_y\n)\nSELECT {}\nFROM lotshift_r",
+            self.centred_cte(dialect, g, w, false),
+            Self::quadratic_form(w),
             out.join(",\n  ")
         )
     }
@@ -254,27 +263,30 @@ impl Plan {
         cutoff: f64,
         limit: usize,
     ) -> String {
-        let p = self.columns.len();
-        let r2: Vec<String> = (1..=p).map(|a| format!("z{a} * z{a}")).collect();
         let mut cols: Vec<String> = (1..=self.labels.len())
             .map(|k| format!("label_{k}"))
             .collect();
-        cols.push(format!("{} AS r2", r2.join(" + ")));
+        cols.push(format!("{} AS r2", Self::quadratic_form(w)));
         format!(
-            "WITH {},\nlotshift_d AS (\n  SELECT {}\n  FROM lotshift_z\n)\nSELECT *\nFROM lotshift_d\nWHERE r2 > {}\nORDER BY r2 DESC\nLIMIT {limit}",
-            self.whitened_cte(dialect, g, w, true),
+            "WITH {},\nlotshift_d AS (\n  SELECT {}\n  FROM lotshift_y\n)\nSELECT *\nFROM lotshift_d\nWHERE r2 > {}\nORDER BY r2 DESC\nLIMIT {limit}",
+            self.centred_cte(dialect, g, w, true),
             cols.join(", "),
             number_literal(cutoff)
         )
     }
 }
 
-/// The whitening constants of one lot: `W = L⁻¹ D⁻¹` for the divisor-n covariance
-/// `S̃ = D R D` with `R = L Lᵀ`, and its mean as `hi + lo`.
+/// The constants of one lot's second statements: its mean as `hi + lo`, the standard
+/// deviations and the correlation matrix's Cholesky factor inverted, all of the divisor-n
+/// covariance `S̃ = D R D`, `R = L Lᵀ`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Whiten {
-    /// Lower-triangular coefficients, row by row.
-    pub w: Vec<Vec<f64>>,
+    /// `L⁻¹`, lower triangular, row by row.
+    pub l_inverse: Vec<Vec<f64>>,
+    /// `R⁻¹ = L⁻ᵀ L⁻¹`, row by row.
+    pub inverse_correlation: Vec<Vec<f64>>,
+    /// Standard deviations (divisor n).
+    pub sd: Vec<f64>,
     /// The mean's leading double.
     pub mean_hi: Vec<f64>,
     /// The rest of the mean.

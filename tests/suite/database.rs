@@ -623,6 +623,63 @@ fn text_in_a_characteristic_names_the_column_and_the_result_row() {
 }
 
 #[test]
+fn text_beyond_the_first_rows_is_found_inside_the_database_too() {
+    let dir = scratch("text-late");
+    let db = dir.join("t.sqlite");
+    let conn = rusqlite::Connection::open(&db).unwrap();
+    conn.execute_batch("CREATE TABLE t (lot TEXT, a, b REAL)")
+        .unwrap();
+    for i in 0..1200 {
+        let a: rusqlite::types::Value = match i {
+            1100 => "n.m.".to_string().into(),
+            // Numbers stored as text still read as numbers, as a file's cells do.
+            1101 => "2.5".to_string().into(),
+            _ => ((i % 13) as f64 * 0.1).into(),
+        };
+        let lot = if i % 2 == 0 { "R" } else { "C" };
+        conn.execute(
+            "INSERT INTO t VALUES (?1, ?2, ?3)",
+            rusqlite::params![lot, a, (i % 7) as f64],
+        )
+        .unwrap();
+    }
+    drop(conn);
+    let url = format!("sqlite:{}", db.display());
+    let o = run(&[
+        "compare",
+        "--database",
+        &url,
+        "--query",
+        "SELECT * FROM t ORDER BY rowid",
+        "--lot-column",
+        "lot",
+        "--in-database",
+    ]);
+    let e = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{e}");
+    assert!(
+        e.contains("column \"a\" holds 1 value in lot \"R\" that is not a number"),
+        "{e}"
+    );
+    let o = run(&[
+        "compare",
+        "--database",
+        &url,
+        "--query",
+        "SELECT * FROM t ORDER BY rowid",
+        "--lot-column",
+        "lot",
+    ]);
+    let e = stderr(&o);
+    assert_eq!(o.status.code(), Some(2), "{e}");
+    assert!(
+        e.contains("result row 1101") && e.contains("\"n.m.\""),
+        "{e}"
+    );
+    let _ = std::fs::remove_dir_all(&dir);
+}
+
+#[test]
 fn a_password_in_the_url_is_refused_without_being_repeated() {
     let o = run(&[
         "compare",
