@@ -6,8 +6,8 @@
 //! then the full analysis without permutations and the leave-one-out rate, the parts the
 //! in-database mode does not compute either); the in-database comparison is
 //! `compare --database … --in-database` (the moments, Mardia's sums and the outlier units).
-//! Bytes moved are the process's bytes read (`rchar` of /proc/self/io: the socket's traffic,
-//! as nothing else is read meanwhile). Both comparisons must give the same T², p, intervals,
+//! Bytes moved are the results' sizes as PostgreSQL's protocol carries them (per row a
+//! header, per cell a length and the value: `ResultTable::wire_bytes`). Both comparisons must give the same T², p, intervals,
 //! Box's M and Mardia's statistics (1e-9 relative): the bench checks them.
 //!
 //! Run: `bash .ci/with-postgres cargo bench --bench database` (or with
@@ -23,17 +23,6 @@ use lotshift::source::{Database, QuerySource};
 
 const N: usize = 1_000_000;
 const P: usize = 10;
-
-fn rchar() -> u64 {
-    std::fs::read_to_string("/proc/self/io")
-        .ok()
-        .and_then(|s| {
-            s.lines()
-                .find_map(|l| l.strip_prefix("rchar: ").map(|v| v.trim().parse().ok()))
-                .flatten()
-        })
-        .unwrap_or(0)
-}
 
 fn close(a: f64, b: f64, what: &str) {
     let scale = a.abs().max(b.abs()).max(1e-300);
@@ -92,7 +81,7 @@ fn main() {
         ..Settings::default()
     };
     // Inside the database.
-    let (b0, t0) = (rchar(), Instant::now());
+    let t0 = Instant::now();
     let inside = aggregate::compare_in_database(
         &source,
         None,
@@ -101,12 +90,32 @@ fn main() {
         &settings,
     )
     .expect("in-database comparison");
-    let (inside_s, inside_b) = (t0.elapsed().as_secs_f64(), rchar() - b0);
+    let inside_s = t0.elapsed().as_secs_f64();
+    let inside_b: u64 = inside.statements.iter().map(|r| r.bytes).sum();
+    // Inside the database, the core test only (no Mardia sums, no outlier statement).
+    let t0 = Instant::now();
+    let core = aggregate::compare_in_database(
+        &source,
+        None,
+        &LoadOptions::default(),
+        &Choice::default(),
+        &Settings {
+            checks: false,
+            ..settings.clone()
+        },
+    )
+    .expect("in-database comparison without checks");
+    let core_s = t0.elapsed().as_secs_f64();
+    let core_b: u64 = core.statements.iter().map(|r| r.bytes).sum();
+    close(
+        core.comparison.hotelling.t2,
+        inside.comparison.hotelling.t2,
+        "T² without checks",
+    );
     // Reading the rows out.
-    let (b0, t0) = (rchar(), Instant::now());
-    let mut lots =
-        lotshift::source::load_lots(&source, None, &LoadOptions::default()).expect("rows");
-    let read_b = rchar() - b0;
+    let t0 = Instant::now();
+    let (mut lots, read_b) =
+        lotshift::source::load_lots_counted(&source, None, &LoadOptions::default()).expect("rows");
     let request = Request {
         selection: Selection::default(),
         settings: settings.clone(),
@@ -140,8 +149,26 @@ fn main() {
         inside_b as f64 / 1e3
     );
     println!(
-        "inside the database: {:.1}× faster, {:.0}× fewer bytes; T² {:.6} both ways",
-        rows_s / inside_s,
+        "| inside the database, checks off ({} statements) | {core_s:.1} s | {:.1} kB |",
+        core.statements.len(),
+        core_b as f64 / 1e3
+    );
+    for r in &inside.statements {
+        let first = r
+            .sql
+            .lines()
+            .find(|l| l.contains("SUM(") || l.contains("COUNT("))
+            .unwrap_or("");
+        println!(
+            "  {:>6.2} s  {:>7} B  {}",
+            r.seconds,
+            r.bytes,
+            first.trim().chars().take(70).collect::<String>()
+        );
+    }
+    println!(
+        "inside the database: {:.2}× the time, {:.0}× fewer bytes; T² {:.6} both ways",
+        inside_s / rows_s,
         read_b as f64 / inside_b.max(1) as f64,
         a.hotelling.t2
     );

@@ -50,10 +50,37 @@ pub struct Outcome {
     pub lots: [CountedLot; 2],
     /// The characteristics' column names in the result.
     pub columns: Vec<String>,
-    /// The statements, in the order they ran.
-    pub statements: Vec<String>,
+    /// The statements, in the order they ran, with their times and result sizes.
+    pub statements: Vec<Ran>,
     /// The database and query.
     pub source: QuerySource,
+}
+
+/// One statement that ran.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Ran {
+    /// Its text.
+    pub sql: String,
+    /// Seconds it took, result included.
+    pub seconds: f64,
+    /// Bytes of its result, as the server sends them ([`ResultTable::wire_bytes`]).
+    pub bytes: u64,
+}
+
+fn timed(
+    session: &mut Session,
+    sql: String,
+    params: &[&str],
+    log: &mut Vec<Ran>,
+) -> Result<ResultTable, SourceError> {
+    let start = std::time::Instant::now();
+    let t = session.statement(&sql, params)?;
+    log.push(Ran {
+        sql,
+        seconds: start.elapsed().as_secs_f64(),
+        bytes: t.wire_bytes(),
+    });
+    Ok(t)
 }
 
 /// Why the in-database comparison stopped.
@@ -253,9 +280,12 @@ pub fn compare_in_database(
     let mut statements = Vec::new();
     let mut counted = Vec::with_capacity(2);
     for g in 0..2 {
-        let sql = plan.counts(dialect, g);
-        let t = session.statement(&sql, &params[g..=g])?;
-        statements.push(sql);
+        let t = timed(
+            &mut session,
+            plan.counts(dialect, g),
+            &params[g..=g],
+            &mut statements,
+        )?;
         let rows_read = number(&t, 0, "rows_read").unwrap_or(0.0) as usize;
         if rows_read == 0 {
             return Err(load_error(
@@ -295,9 +325,12 @@ pub fn compare_in_database(
             missing,
         });
     }
-    let sql = plan.moments(dialect);
-    let t = session.statement(&sql, &params)?;
-    statements.push(sql);
+    let t = timed(
+        &mut session,
+        plan.moments(dialect),
+        &params,
+        &mut statements,
+    )?;
     let mut parts = Vec::with_capacity(2);
     for g in 0..2 {
         let row = t
@@ -344,9 +377,12 @@ pub fn compare_in_database(
                 continue;
             };
             if p <= MARDIA_MAX_P {
-                let sql = plan.mardia(dialect, g, &w);
-                let t = session.statement(&sql, &params[g..=g])?;
-                statements.push(sql);
+                let t = timed(
+                    &mut session,
+                    plan.mardia(dialect, g, &w),
+                    &params[g..=g],
+                    &mut statements,
+                )?;
                 let nf = *n as f64;
                 let b1 = b1_from_moments(p, *n, &w, |i, j, k| {
                     number(&t, 0, &format!("t_{}_{}_{}", i + 1, j + 1, k + 1)).unwrap_or(f64::NAN)
@@ -362,8 +398,7 @@ pub fn compare_in_database(
             report.cutoff[g] = cutoff;
             let nf = *n as f64;
             let sql = plan.outliers(dialect, g, &w, cutoff * nf / (nf - 1.0), OUTLIER_LIMIT);
-            let t = session.statement(&sql, &params[g..=g])?;
-            statements.push(sql);
+            let t = timed(&mut session, sql, &params[g..=g], &mut statements)?;
             if t.rows.len() >= OUTLIER_LIMIT {
                 db.outliers_truncated = true;
             }

@@ -170,6 +170,30 @@ pub struct ResultTable {
     pub rows: Vec<Vec<RawCell>>,
 }
 
+impl ResultTable {
+    /// The result's size as PostgreSQL's protocol sends it: per row a 7-byte header, per cell
+    /// a 4-byte length and its value (8 bytes for a number in binary form, the text's bytes
+    /// otherwise, nothing for a NULL). SQLite runs in the process; the same count stands for
+    /// what a server would send.
+    pub fn wire_bytes(&self) -> u64 {
+        self.rows
+            .iter()
+            .map(|r| {
+                7 + r
+                    .iter()
+                    .map(|c| {
+                        4 + match c {
+                            RawCell::Null => 0,
+                            RawCell::Number(_) => 8,
+                            RawCell::Text(t) => t.len() as u64,
+                        }
+                    })
+                    .sum::<u64>()
+            })
+            .sum()
+    }
+}
+
 /// What runs the statements (one per kind of database).
 pub(crate) trait Engine: Send {
     /// Runs the user's query, read-only, every value as the database gives it.
@@ -353,9 +377,22 @@ pub fn load_lots(
     password: Option<&str>,
     options: &LoadOptions,
 ) -> Result<[Lot; 2], SourceError> {
+    load_lots_counted(source, password, options).map(|(lots, _)| lots)
+}
+
+/// [`load_lots`], with the bytes of the query's result ([`ResultTable::wire_bytes`]).
+///
+/// # Errors
+/// As [`load_lots`].
+pub fn load_lots_counted(
+    source: &QuerySource,
+    password: Option<&str>,
+    options: &LoadOptions,
+) -> Result<([Lot; 2], u64), SourceError> {
     let mut session = source.database.connect(password)?;
     let table = session.query(&source.query)?;
-    lots_from_table(source, &table, options)
+    let bytes = table.wire_bytes();
+    Ok((lots_from_table(source, &table, options)?, bytes))
 }
 
 /// The two lots of an already-read result.

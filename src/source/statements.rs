@@ -203,8 +203,15 @@ impl Plan {
                 i = k + 1
             ));
         }
+        // SQLite and PostgreSQL are told to compute the centred values once: an engine that
+        // inlines the expression repeats it in each of the hundreds of sums that read it.
+        // Plain SQL has no such hint; an engine without it may do either.
+        let hint = match dialect {
+            Dialect::Sqlite | Dialect::Postgres => "MATERIALIZED ",
+            Dialect::Generic => "",
+        };
         format!(
-            "{},\nlotshift_y AS (\n  SELECT {}\n  FROM lotshift_u\n)",
+            "{},\nlotshift_y AS {hint}(\n  SELECT {}\n  FROM lotshift_u\n)",
             self.units_cte(dialect, Some(g), labels),
             cols.join(",\n    ")
         )
