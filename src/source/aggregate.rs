@@ -123,7 +123,7 @@ pub fn plan(
     source: &QuerySource,
     options: &LoadOptions,
     choice: &Choice,
-) -> Result<(Plan, Vec<Option<String>>, Vec<String>), SourceError> {
+) -> Result<Planned, SourceError> {
     let body = source.query.trim().trim_end_matches(';');
     let probe = session.query(&format!("SELECT * FROM (\n{body}\n) AS probe LIMIT 1000"))?;
     let mut opts = options.clone();
@@ -261,6 +261,9 @@ pub fn plan(
     Ok((plan, units, names))
 }
 
+/// A plan with the characteristics' units and names (without the unit).
+pub type Planned = (Plan, Vec<Option<String>>, Vec<String>);
+
 /// Runs the comparison inside the database.
 ///
 /// # Errors
@@ -332,7 +335,7 @@ pub fn compare_in_database(
         &mut statements,
     )?;
     let mut parts = Vec::with_capacity(2);
-    for g in 0..2 {
+    for (g, counted) in counted.iter_mut().enumerate() {
         let row = t
             .rows
             .iter()
@@ -349,7 +352,7 @@ pub fn compare_in_database(
         };
         let sums = LotSums::from_result(&t, row, p)
             .map_err(|why| load_error(source, format!("lot \"{}\": {why}", plan.lots[g])))?;
-        counted[g].n = sums.n;
+        counted.n = sums.n;
         parts.push(sums);
     }
     let lot_names = [plan.lots[0].as_str(), plan.lots[1].as_str()];

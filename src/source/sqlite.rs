@@ -60,11 +60,7 @@ impl Sqlite {
         if !stmt.readonly() {
             return Err(SourceError::Writes { url });
         }
-        let columns: Vec<String> = stmt
-            .column_names()
-            .into_iter()
-            .map(|s| s.to_string())
-            .collect();
+        let columns: Vec<String> = stmt.column_names().map(|s| s.to_string()).collect();
         if columns.is_empty() {
             return Err(SourceError::Query {
                 url,

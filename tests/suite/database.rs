@@ -732,7 +732,7 @@ fn statements_run_elsewhere_give_the_in_database_numbers() {
     // Run the printed statement as another program would, and keep every digit of the result.
     let conn = rusqlite::Connection::open(sample("hub-lots.sqlite")).unwrap();
     let mut stmt = conn.prepare(sql.trim().trim_end_matches(';')).unwrap();
-    let names: Vec<String> = stmt.column_names().into_iter().map(String::from).collect();
+    let names: Vec<String> = stmt.column_names().map(String::from).collect();
     let mut csv = names.join(",") + "\n";
     let mut rows = stmt.query([]).unwrap();
     while let Some(r) = rows.next().unwrap() {
