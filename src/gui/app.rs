@@ -792,6 +792,9 @@ impl LotshiftApp {
 
     fn side_ui(&mut self, ui: &mut egui::Ui) {
         let mut actions = Vec::new();
+        database::open_button_ui(ui, &mut actions);
+        self.apply_all(std::mem::take(&mut actions));
+        ui.add_space(4.0);
         if let Some(active) = self.database.as_ref().filter(|a| a.in_database) {
             let counted = self.result.shown().and_then(|s| s.counted.as_ref());
             database::side_ui(ui, active, counted, &self.lots.excluded, &mut actions);

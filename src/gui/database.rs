@@ -115,6 +115,21 @@ impl DatabaseForm {
     }
 }
 
+/// The button that opens the form, at the top of the side panel (the top bar has no room
+/// for one more button while a run shows its progress).
+pub fn open_button_ui(ui: &mut egui::Ui, actions: &mut Vec<Action>) {
+    if ui
+        .button("Open from a database…")
+        .on_hover_text(
+            "Read both lots from a query's rows (SQLite or PostgreSQL), or compare them inside \
+             the database",
+        )
+        .clicked()
+    {
+        actions.push(Action::OpenDatabaseForm);
+    }
+}
+
 /// The database the lots on screen come from.
 #[derive(Clone)]
 pub struct ActiveSource {

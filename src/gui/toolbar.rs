@@ -56,16 +56,6 @@ pub fn top_ui(ui: &mut egui::Ui, top: &Top, actions: &mut Vec<Action>) {
             actions.push(Action::PickLots(Slot::Combined));
         }
         if ui
-            .button("Open from a database…")
-            .on_hover_text(
-                "Read both lots from a query's rows (SQLite or PostgreSQL), or compare them \
-                 inside the database",
-            )
-            .clicked()
-        {
-            actions.push(Action::OpenDatabaseForm);
-        }
-        if ui
             .button("Open protocol…")
             .on_hover_text(
                 "Run a comparison protocol: lots, characteristics, settings and specification \
