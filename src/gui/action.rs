@@ -19,6 +19,14 @@ pub enum Action {
     LoadPaths(Slot, Vec<PathBuf>),
     /// Read the bundled sample lots.
     LoadSamples,
+    /// Open the form that reads both lots from a database.
+    OpenDatabaseForm,
+    /// Close that form (what it holds stays for this session).
+    CloseDatabaseForm,
+    /// Fill the form from the remembered source with this index.
+    UseRecentSource(usize),
+    /// Read the lots (or compare inside the database) as the form says, in the background.
+    RunDatabase,
     /// Make the candidate the reference and vice versa.
     SwapLots,
     /// The roles of two files loaded together are right: stop asking.

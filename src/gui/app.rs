@@ -19,6 +19,7 @@ use crate::report::CAUTION;
 
 use super::action::Action;
 use super::characteristics::{self, TableState};
+use super::database::{self, ActiveSource, DatabaseForm};
 use super::lots::{self, ColumnPair, Lots};
 use super::pairs::{self, PairsState};
 use super::protocol_panel::{self, ProtocolState};
@@ -27,7 +28,7 @@ use super::signing::{self, Note, SignForm};
 use super::spec_editor::{SpecEditor, fits};
 use super::state::{ResultState, Saved, View};
 use super::words::file_part;
-use super::worker::{Outcome, Purpose, Slot, Source, Worker};
+use super::worker::{DatabaseJob, Outcome, Purpose, Slot, Source, Worker};
 use super::{direction, intervals, overview, side, specification, toolbar};
 
 /// The application.
@@ -67,6 +68,10 @@ pub struct LotshiftApp {
     pub pairs: PairsState,
     /// A specification file read before the lots it is for.
     pending_spec: Option<Spec>,
+    /// The form that reads both lots from a database (its password is never stored).
+    pub db_form: DatabaseForm,
+    /// The database the lots on screen come from, when they do.
+    pub database: Option<ActiveSource>,
     /// Two lots are being read in an order the user gave (the sample lots, the command
     /// line's reference then candidate): their roles are not guessed, so not asked about.
     order_given: bool,
@@ -95,6 +100,8 @@ impl LotshiftApp {
             spec: SpecRequest::default(),
             spec_editor: SpecEditor::default(),
             pending_spec: None,
+            db_form: DatabaseForm::default(),
+            database: None,
             order_given: false,
         }
     }
@@ -113,6 +120,14 @@ impl LotshiftApp {
             Action::PickLots(slot) => self.worker.pick(slot),
             Action::LoadPaths(slot, paths) => self.load_paths(slot, paths),
             Action::LoadSamples => self.load_samples(),
+            Action::OpenDatabaseForm => self.db_form.open = true,
+            Action::CloseDatabaseForm => self.db_form.open = false,
+            Action::UseRecentSource(k) => {
+                if let Some(r) = self.saved.recent_sources.get(k) {
+                    self.db_form.fill(r);
+                }
+            }
+            Action::RunDatabase => self.run_database(),
             Action::SwapLots => self.swap(),
             Action::ConfirmRoles => self.lots.roles_to_confirm = false,
             Action::PairColumns {
@@ -310,6 +325,125 @@ impl LotshiftApp {
             .load(slot, paths.into_iter().map(Source::Path).collect());
     }
 
+    /// Runs the database form: reads both lots from the database in the background, or with
+    /// the switch on compares inside it. A form that does not name a source says why in the
+    /// form; nothing else changes until the work succeeds.
+    pub fn run_database(&mut self) {
+        let source = match self.db_form.source() {
+            Ok(s) => s,
+            Err(why) => {
+                self.db_form.problem = Some(why);
+                return;
+            }
+        };
+        self.db_form.problem = None;
+        let password = self.db_form.password();
+        if self.db_form.in_database {
+            self.worker.try_database(DatabaseJob {
+                source,
+                password,
+                exclude: Vec::new(),
+                settings: self.saved.settings.clone(),
+                spec: SpecRequest::default(),
+            });
+        } else {
+            self.worker.load_database(source, password);
+        }
+    }
+
+    /// Lots read from a database: they replace the loaded lots (and are compared); a
+    /// failure leaves everything as it is, with the one-line reason.
+    fn database_loaded(
+        &mut self,
+        source: crate::source::QuerySource,
+        result: Result<Vec<Lot>, String>,
+    ) {
+        match result {
+            Err(e) => self.messages.push(e),
+            Ok(lots) => {
+                let active = ActiveSource {
+                    source,
+                    in_database: false,
+                    password: None,
+                    characteristics: Vec::new(),
+                };
+                database::remember(&mut self.saved.recent_sources, active.remembered());
+                self.notice = Some(format!(
+                    "Lots read from {} (lot column {}).",
+                    active.source.database.url(),
+                    active.source.lot_column
+                ));
+                self.db_form.open = false;
+                self.lots.place(Slot::Both, lots);
+                self.lots.roles_to_confirm = false;
+                self.database = Some(active);
+                self.protocol_ticks();
+                self.rerun();
+            }
+        }
+    }
+
+    /// The first comparison inside a database: its result replaces the lots and the result
+    /// on screen; a failure leaves everything as it is, with the one-line reason.
+    fn database_compared(
+        &mut self,
+        source: crate::source::QuerySource,
+        result: Result<Box<super::shown::Shown>, String>,
+    ) {
+        match result {
+            Err(e) => self.messages.push(e),
+            Ok(shown) => {
+                let c = &shown.comparison;
+                let active = ActiveSource {
+                    source,
+                    in_database: true,
+                    password: self.db_form.password(),
+                    characteristics: c
+                        .characteristics
+                        .iter()
+                        .cloned()
+                        .zip(c.units.iter().cloned())
+                        .collect(),
+                };
+                database::remember(&mut self.saved.recent_sources, active.remembered());
+                self.notice = Some(format!(
+                    "Compared inside {} (lot column {}): only the lots' summaries were read.",
+                    active.source.database.url(),
+                    active.source.lot_column
+                ));
+                self.db_form.open = false;
+                self.worker.supersede();
+                self.lots = Lots::default();
+                self.database = Some(active);
+                self.result.start();
+                self.result.arrive(Ok(shown));
+                self.log_run();
+                self.sync_fields();
+            }
+        }
+    }
+
+    /// A re-run of the comparison inside the database on screen (settings, ticks or the
+    /// specification changed).
+    fn rerun_in_database(&mut self, active: ActiveSource) {
+        let spec = self.spec_request().unwrap_or_default();
+        self.spec = spec.clone();
+        let exclude = active
+            .characteristics
+            .iter()
+            .filter(|(n, _)| self.lots.excluded.contains(&crate::data::match_key(n)))
+            .map(|(n, _)| n.clone())
+            .collect();
+        self.result.start();
+        self.worker.compare_in_database(DatabaseJob {
+            source: active.source,
+            password: active.password,
+            exclude,
+            settings: self.saved.settings.clone(),
+            spec,
+        });
+    }
+
     /// Renders to `path` once the first result is drawn, then closes.
     pub fn plan_screenshot(&mut self, path: PathBuf) {
         self.screenshot = Some(ScreenshotPlan::new(path));
@@ -324,6 +458,10 @@ impl LotshiftApp {
     /// A specification cell that does not check holds the run (the problems show as the
     /// run's error and beside the cells).
     pub fn rerun(&mut self) {
+        if let Some(active) = self.database.as_ref().filter(|a| a.in_database) {
+            self.rerun_in_database(active.clone());
+            return;
+        }
         let Some(lots) = self.lots.both() else {
             return;
         };
@@ -425,6 +563,12 @@ impl LotshiftApp {
         for o in outcomes {
             match o {
                 Outcome::Loaded { slot, result } => self.loaded(slot, result),
+                Outcome::DatabaseLoaded { source, result } => {
+                    self.database_loaded(*source, result);
+                }
+                Outcome::DatabaseCompared { source, result } => {
+                    self.database_compared(*source, result);
+                }
                 // A run held for a specification problem stays held: a result still
                 // arriving is not current, and the problem stays the message. A failed run
                 // keeps the previous result on screen, marked as not current.
@@ -470,6 +614,9 @@ impl LotshiftApp {
     /// Lots that were read (or why not): into their slots and compared; a specification read
     /// before them is then checked against them.
     fn loaded(&mut self, slot: Slot, result: Result<Vec<Lot>, String>) {
+        if result.is_ok() {
+            self.database = None;
+        }
         match result {
             Err(e) => self.messages.push(e),
             Ok(mut lots) if slot == Slot::Combined => {
@@ -615,6 +762,17 @@ impl LotshiftApp {
                 egui::ScrollArea::vertical().show(ui, |ui| self.side_ui(ui));
             });
         egui::CentralPanel::default().show(ui, |ui| self.central_ui(ui));
+        if self.db_form.open {
+            let mut actions = Vec::new();
+            database::form_ui(
+                &ctx,
+                &mut self.db_form,
+                &self.saved.recent_sources,
+                self.worker.busy(),
+                &mut actions,
+            );
+            self.apply_all(actions);
+        }
         if let Some(form) = &mut self.signing {
             let mut actions = Vec::new();
             signing::form_ui(&ctx, form, self.result.shown().is_some(), &mut actions);
@@ -634,6 +792,22 @@ impl LotshiftApp {
 
     fn side_ui(&mut self, ui: &mut egui::Ui) {
         let mut actions = Vec::new();
+        database::open_button_ui(ui, &mut actions);
+        self.apply_all(std::mem::take(&mut actions));
+        ui.add_space(4.0);
+        if let Some(active) = self.database.as_ref().filter(|a| a.in_database) {
+            let counted = self.result.shown().and_then(|s| s.counted.as_ref());
+            database::side_ui(ui, active, counted, &self.lots.excluded, &mut actions);
+            self.apply_all(std::mem::take(&mut actions));
+            ui.separator();
+            side::settings_ui(ui, &self.saved.settings, self.saved.coverage, &mut actions);
+            self.apply_all(actions);
+            ui.separator();
+            if side::fields_ui(ui, &mut self.fields) {
+                self.sync_fields();
+            }
+            return;
+        }
         if self.lots.roles_to_confirm {
             side::roles_ui(ui, &self.lots, &mut actions);
             self.apply_all(std::mem::take(&mut actions));

@@ -10,6 +10,10 @@ use super::shown::Shown;
 use super::theme::{lot_colors, lot_filled};
 use super::widgets::row_names;
 
+/// What the view says instead of the unit scores of a comparison made inside a database.
+pub const NOT_COMPUTED_SCORES: &str =
+    "Unit scores along the direction: not computed inside the database (no unit left it).";
+
 /// Draws the direction view.
 pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
     let c = &s.comparison;
@@ -77,6 +81,10 @@ pub fn direction_ui(ui: &mut egui::Ui, s: &mut Shown) {
         ));
     }
     ui.label(line);
+    if c.in_database.is_some() {
+        ui.label(NOT_COMPUTED_SCORES);
+        return;
+    }
     let Some(h) = &c.discriminant.score_histogram else {
         ui.weak("No unit scores to draw.");
         return;

@@ -12,7 +12,11 @@ use crate::data::{self, LoadOptions, Lot};
 use crate::report::Record;
 use crate::report::sign::{self, Meaning};
 
-use super::worker::{Ends, Outcome, Purpose, Slot, Source, Worker, panic_text, sha256_hex};
+use crate::source::QuerySource;
+
+use super::worker::{
+    DatabaseJob, Ends, Outcome, Purpose, Slot, Source, Worker, panic_text, sha256_hex,
+};
 
 fn load_source(src: &Source, options: &LoadOptions) -> Result<Lot, String> {
     match src {
@@ -88,6 +92,42 @@ impl Worker {
         });
     }
 
+    /// Reads both lots from a database in the background (`password` is passed to the
+    /// connection only).
+    pub fn load_database(&mut self, source: QuerySource, password: Option<String>) {
+        let out = self.begin(Ends::Load);
+        std::thread::spawn(move || {
+            let result = guarded("reading the database", || {
+                crate::source::load_lots(&source, password.as_deref(), &LoadOptions::default())
+                    .map(Vec::from)
+                    .map_err(|e| e.to_string())
+            });
+            out.send(
+                Outcome::DatabaseLoaded {
+                    source: Box::new(source),
+                    result,
+                },
+                Ends::Load,
+            );
+        });
+    }
+
+    /// Compares inside a database in the background, the first time from the form: the
+    /// outcome replaces nothing until the app takes it.
+    pub fn try_database(&mut self, job: DatabaseJob) {
+        let out = self.begin(Ends::Load);
+        std::thread::spawn(move || {
+            let result = guarded("comparing inside the database", || job.run());
+            out.send(
+                Outcome::DatabaseCompared {
+                    source: Box::new(job.source),
+                    result,
+                },
+                Ends::Load,
+            );
+        });
+    }
+
     /// Opens a native file dialog in the background (the window keeps drawing meanwhile).
     pub fn pick(&mut self, slot: Slot) {
         let out = self.begin(Ends::Nothing);
@@ -101,7 +141,9 @@ impl Worker {
                 })
                 .add_filter(
                     "Lot files",
-                    &["csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods"],
+                    &[
+                        "csv", "tsv", "txt", "xlsx", "xlsm", "xlsb", "xls", "ods", "parquet",
+                    ],
                 )
                 .add_filter("All files", &["*"]);
             let paths = if slot == Slot::Both {

@@ -9,6 +9,7 @@
 pub mod action;
 pub mod app;
 pub mod characteristics;
+pub mod database;
 pub mod direction;
 pub mod intervals;
 pub mod jobs;

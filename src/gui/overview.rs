@@ -173,8 +173,9 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
         ui.add_space(8.0);
         checks_ui(ui, s, actions);
         ui.add_space(8.0);
+        in_database_ui(ui, s);
         ui.strong("Lots");
-        for (i, lot) in s.lots.iter().enumerate() {
+        for (i, lot) in s.lots.iter().enumerate().filter(|_| !s.in_database()) {
             let p = &lot.provenance;
             let pl = &s.prepared.lots[i];
             ui.label(format!(
@@ -187,6 +188,21 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                 pl.n_read,
                 pl.data.nrows()
             ));
+        }
+        if let Some(counted) = &s.counted {
+            for (i, lot) in counted.iter().enumerate() {
+                let p = &s.lots[i].provenance;
+                let column = p.split.as_ref().map_or("", |(c, _)| c.as_str());
+                ui.label(format!(
+                    "{}: {column} = \"{}\" in {}, {} rows read, {} units used (counted inside \
+                     the database)",
+                    if i == 0 { "reference" } else { "candidate" },
+                    lot.value,
+                    p.file_name,
+                    lot.rows_read,
+                    lot.n
+                ));
+            }
         }
         for p in &s.prepared.pairings {
             ui.label(format!(
@@ -229,6 +245,54 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
         ui.add_space(8.0);
         ui.label(RichText::new(test_line(s)).monospace());
     });
+}
+
+/// For a comparison computed inside a database: what needs every unit and was not computed,
+/// and the units beyond the outlier cutoff with their labels.
+fn in_database_ui(ui: &mut egui::Ui, s: &Shown) {
+    let Some(db) = &s.comparison.in_database else {
+        return;
+    };
+    ui.strong("Computed inside the database");
+    ui.label(
+        "Only the lots' summaries left the database (counts, means, sums of squares and \
+         cross-products, and the units beyond the outlier cutoff).",
+    );
+    if !db.not_computed.is_empty() {
+        ui.label(format!(
+            "Not computed inside the database: {}.",
+            db.not_computed.join("; ")
+        ));
+    }
+    let count = |g: usize| db.outliers.iter().filter(|u| u.lot == g).count();
+    ui.label(format!(
+        "Outliers found inside the database: {} in the reference lot, {} in the candidate \
+         lot{}.",
+        count(0),
+        count(1),
+        if db.outliers_truncated {
+            " (the list was cut at its limit)"
+        } else {
+            ""
+        }
+    ));
+    for u in db.outliers.iter().take(20) {
+        let labels: Vec<String> = u.labels.iter().map(|(h, v)| format!("{h} {v}")).collect();
+        ui.label(format!(
+            "  {} lot: {} — d² = {}, {}",
+            if u.lot == 0 { "reference" } else { "candidate" },
+            labels.join(", "),
+            format_sig(u.d2, 4),
+            crate::format::p_text(u.p_value)
+        ));
+    }
+    if db.outliers.len() > 20 {
+        ui.label(format!(
+            "  … and {} more (all are in the exported record)",
+            db.outliers.len() - 20
+        ));
+    }
+    ui.add_space(8.0);
 }
 
 /// Whether the shift matters: the margins, equivalence per characteristic and at once, the

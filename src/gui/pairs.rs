@@ -92,6 +92,11 @@ fn label(s: &Shown, k: usize) -> String {
     }
 }
 
+/// What the view says instead of the units of a comparison made inside a database.
+pub const NOT_COMPUTED_PAIRS: &str = "Pairs of characteristics unit by unit: not computed inside \
+     the database (no unit left it). The Verdict, Characteristics, Intervals and Shift \
+     direction views show what was computed there.";
+
 /// Draws the pair view, with the data ellipses at `coverage`; choosing a pair or an option
 /// asks for it.
 pub fn pairs_ui(
@@ -101,6 +106,10 @@ pub fn pairs_ui(
     coverage: f64,
     actions: &mut Vec<Action>,
 ) {
+    if s.in_database() {
+        ui.label(NOT_COMPUTED_PAIRS);
+        return;
+    }
     let colors = lot_colors(ui);
     let Some((mut i, mut j)) = current_pair(s, state) else {
         ui.label("Pairs need at least two characteristics.");

@@ -7,8 +7,11 @@ use std::sync::Arc;
 use egui_plot::PlotPoint;
 
 use crate::analysis::{Comparison, PairGeometry, pair_geometry};
-use crate::data::{ColumnData, Lot, Prepared};
+use crate::data::{self, ColumnData, Lot, Prepared, PreparedLot};
 use crate::report::Record;
+use crate::source::QuerySource;
+use crate::source::aggregate::CountedLot;
+use nalgebra::DMatrix;
 
 /// Most units drawn per lot in a scatter plot (a stable subsample beyond that).
 pub const MAX_POINTS: usize = 4000;
@@ -41,6 +44,9 @@ pub struct Shown {
     pub unit_text: Arc<[Vec<String>; 2]>,
     /// The reason typed for setting units aside (the Verdict view's own text).
     pub set_aside_reason: String,
+    /// Computed inside a database: the lots as counted there (no unit left the database,
+    /// so `prepared` holds no units and the views that draw units say so).
+    pub counted: Option<[CountedLot; 2]>,
     pairs: HashMap<(usize, usize, u64), Arc<PairView>>,
 }
 
@@ -87,6 +93,7 @@ impl Shown {
             unit_text: Arc::new([Vec::new(), Vec::new()]),
             requested_permutations: 0,
             set_aside_reason: String::new(),
+            counted: None,
             pairs: HashMap::new(),
         };
         let text = [0, 1].map(|g| {
@@ -96,6 +103,73 @@ impl Shown {
         });
         shown.unit_text = Arc::new(text);
         shown
+    }
+
+    /// A result computed inside the database from `source`: the comparison, its record and
+    /// the lots as counted there. The lots and the prepared units are empty stand-ins that
+    /// carry the names, rows read and missing cells.
+    pub fn from_database(
+        comparison: Comparison,
+        record: Record,
+        counted: [CountedLot; 2],
+        source: &QuerySource,
+    ) -> Self {
+        let p = comparison.characteristics.len();
+        let url = source.database.url().to_string();
+        let lot = |g: usize| {
+            let c = &counted[g];
+            Lot {
+                name: c.value.clone(),
+                provenance: data::Provenance {
+                    path: url.clone(),
+                    file_name: url.clone(),
+                    sha256: String::new(),
+                    size_bytes: 0,
+                    format: source.database.kind().to_string(),
+                    delimiter: None,
+                    decimal_comma: false,
+                    decimal_mark: String::new(),
+                    encoding: None,
+                    sheet: None,
+                    split: Some((source.lot_column.clone(), c.value.clone())),
+                    rows_read: c.rows_read,
+                    notes: Vec::new(),
+                    forced_labels: Vec::new(),
+                    query: Some(source.query.clone()),
+                },
+                columns: Vec::new(),
+                rows: Vec::new(),
+            }
+        };
+        let prepared_lot = |g: usize| {
+            let c = &counted[g];
+            PreparedLot {
+                name: c.value.clone(),
+                data: DMatrix::zeros(0, p),
+                kept: Vec::new(),
+                n_read: c.rows_read,
+                n_excluded: c.rows_read.saturating_sub(c.n),
+                missing: c.missing.clone(),
+                left_out: Vec::new(),
+            }
+        };
+        let prepared = Prepared {
+            characteristics: comparison.characteristics.clone(),
+            units: comparison.units.clone(),
+            lots: [prepared_lot(0), prepared_lot(1)],
+            unmatched: Vec::new(),
+            pairings: Vec::new(),
+            exclusions: Vec::new(),
+        };
+        let lots = [Arc::new(lot(0)), Arc::new(lot(1))];
+        let mut shown = Shown::new(comparison, Arc::new(prepared), lots, record);
+        shown.counted = Some(counted);
+        shown
+    }
+
+    /// The result was computed inside a database: there are no units to draw.
+    pub fn in_database(&self) -> bool {
+        self.counted.is_some()
     }
 
     /// Plot data for characteristics `i` (x) and `j` (y), computed on first use.

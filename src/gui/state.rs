@@ -94,6 +94,26 @@ pub struct Saved {
     pub signing_key: Option<String>,
     /// Printed name used for the last signature.
     pub signer_name: String,
+    /// Database sources used recently, newest first: URL, query, lot column, lot values and
+    /// the in-database switch. Never a password (URLs carrying one are refused).
+    pub recent_sources: Vec<RecentSource>,
+}
+
+/// A database source as remembered between sessions (no password: the URL cannot hold one,
+/// and the password field is never stored).
+#[derive(Debug, Clone, PartialEq, Eq, Default, Serialize, Deserialize)]
+#[serde(default)]
+pub struct RecentSource {
+    /// `sqlite:PATH` or `postgresql://user@host:port/db`.
+    pub url: String,
+    /// The SELECT whose rows are the units.
+    pub query: String,
+    /// The result's column holding each unit's lot.
+    pub lot_column: String,
+    /// Reference and candidate lot values, when given.
+    pub lot_values: Option<[String; 2]>,
+    /// Computed inside the database.
+    pub in_database: bool,
 }
 
 impl Default for Saved {
@@ -109,6 +129,7 @@ impl Default for Saved {
             table_sort: None,
             signing_key: None,
             signer_name: String::new(),
+            recent_sources: Vec::new(),
         }
     }
 }

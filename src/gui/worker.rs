@@ -15,6 +15,8 @@ use crate::data::spec::Spec;
 use crate::data::{self, Lot, Prepared, Selection};
 use crate::pipeline::{self, Request, SpecRequest};
 use crate::report::Record;
+use crate::source::QuerySource;
+use crate::source::aggregate::{self, Choice};
 
 use super::shown::Shown;
 
@@ -74,6 +76,21 @@ pub enum Outcome {
         result: Result<Box<Shown>, String>,
         /// False for the first delivery of a run that still computes its permutation p-value.
         last: bool,
+    },
+    /// Both lots were read from a database (or the one-line reason they could not be).
+    DatabaseLoaded {
+        /// The source read, as the form named it.
+        source: Box<QuerySource>,
+        /// Reference and candidate.
+        result: Result<Vec<Lot>, String>,
+    },
+    /// The first comparison inside a database from the form finished (or why not; then
+    /// nothing in the window changes but the message).
+    DatabaseCompared {
+        /// The source compared.
+        source: Box<QuerySource>,
+        /// The result bundle.
+        result: Result<Box<Shown>, String>,
     },
     /// The record was written (or not).
     Exported(Result<PathBuf, String>),
@@ -274,6 +291,50 @@ impl Worker {
         self.latest_run
     }
 
+    /// Starts a comparison inside the database (a re-run of the source on screen),
+    /// cancelling any run still going. Returns its run number.
+    pub fn compare_in_database(&mut self, job: DatabaseJob) -> u64 {
+        self.cancel();
+        self.latest_run += 1;
+        let handle = Arc::new(RunHandle {
+            id: self.latest_run,
+            cancel: AtomicBool::new(false),
+            stage: Mutex::new(("computing inside the database".into(), 0.0)),
+            repaint: self.deliver.ctx.clone(),
+        });
+        self.active = Some(handle.clone());
+        let out = self.begin(Ends::Nothing);
+        std::thread::spawn(move || {
+            let result = catch_unwind(AssertUnwindSafe(|| job.run())).unwrap_or_else(|e| {
+                Err(format!(
+                    "internal error in the database comparison: {}",
+                    panic_text(&e)
+                ))
+            });
+            let result = if handle.cancelled() {
+                Err("cancelled".into())
+            } else {
+                result
+            };
+            out.send(
+                Outcome::Compared {
+                    run: handle.id,
+                    result,
+                    last: true,
+                },
+                Ends::Nothing,
+            );
+        });
+        self.latest_run
+    }
+
+    /// Makes every run under way out of date (its result is dropped when it arrives), as
+    /// when a result from elsewhere replaces it.
+    pub fn supersede(&mut self) {
+        self.cancel();
+        self.latest_run += 1;
+    }
+
     /// Cancels the running comparison, if any.
     pub fn cancel(&mut self) {
         if let Some(h) = self.active.take() {
@@ -337,6 +398,74 @@ impl Worker {
             }
             Err(_) => Vec::new(),
         }
+    }
+}
+
+/// A comparison inside a database: the source, the password typed in the form (kept in
+/// memory only, never written anywhere), and what to compare how.
+#[derive(Clone)]
+pub struct DatabaseJob {
+    /// The database, query, lot column and values.
+    pub source: QuerySource,
+    /// The password typed in the form (none: the environment variable, or none).
+    pub password: Option<String>,
+    /// The characteristics to leave out (by name or match key).
+    pub exclude: Vec<String>,
+    /// The analysis settings (what needs the units is switched off).
+    pub settings: Settings,
+    /// Specification and margins.
+    pub spec: SpecRequest,
+}
+
+impl std::fmt::Debug for DatabaseJob {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("DatabaseJob")
+            .field("source", &self.source)
+            .field("password", &self.password.as_ref().map(|_| "•••"))
+            .finish_non_exhaustive()
+    }
+}
+
+impl DatabaseJob {
+    /// Runs the aggregate statements and compares from the lots' summaries (as `compare
+    /// --in-database` does), with the specification applied.
+    ///
+    /// # Errors
+    /// The database's refusal or the engine's error, in one line (no password in it).
+    pub fn run(&self) -> Result<Box<Shown>, String> {
+        let settings = Settings {
+            leave_one_out: false,
+            permutations: 0,
+            sequential: None,
+            ..self.settings.clone()
+        };
+        let choice = Choice {
+            only: None,
+            exclude: self.exclude.clone(),
+        };
+        let outcome = aggregate::compare_in_database(
+            &self.source,
+            self.password.as_deref(),
+            &data::LoadOptions::default(),
+            &choice,
+            &settings,
+        )
+        .map_err(|e| e.to_string())?;
+        let mut c = outcome.comparison;
+        if !self.spec.is_empty() {
+            let given = self
+                .spec
+                .specification(&c.characteristics, &c.units)
+                .map_err(|e| e.to_string())?;
+            analysis::apply_specification(&mut c, &given, None).map_err(|e| e.to_string())?;
+        }
+        let record = aggregate::record(&c, &outcome.lots, &self.source);
+        Ok(Box::new(Shown::from_database(
+            c,
+            record,
+            outcome.lots,
+            &self.source,
+        )))
     }
 }
 

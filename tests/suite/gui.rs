@@ -1448,3 +1448,366 @@ fn a_signature_is_added_to_a_protocol_or_a_summary_without_a_comparison() {
     ));
     let _ = std::fs::remove_dir_all(dir);
 }
+
+/// The sample database: the sample lots as the rows of one table, told apart by `route`.
+fn sample_database() -> String {
+    format!(
+        "sqlite:{}",
+        concat!(env!("CARGO_MANIFEST_DIR"), "/sample-lots/hub-lots.sqlite")
+    )
+}
+
+/// Fills the database form (opened from the top bar) for the sample database.
+fn fill_database_form(h: &mut Harness<'static, LotshiftApp>, query: &str, in_database: bool) {
+    h.get_by_label("Open from a database…").click();
+    h.run_steps(2);
+    let form = &mut h.state_mut().db_form;
+    assert!(form.open, "the form opens");
+    form.url = sample_database();
+    form.query = query.into();
+    form.lot_column = "route".into();
+    form.values = ["A".into(), "B".into()];
+    form.in_database = in_database;
+    h.run_steps(2);
+}
+
+#[test]
+fn lots_read_from_a_database_replace_the_loaded_lots() {
+    let mut h = harness();
+    fill_database_form(&mut h, "SELECT * FROM hub_measurements", false);
+    h.get_by_label("Read the lots").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let state = h.state();
+    assert!(state.messages.is_empty(), "{:?}", state.messages);
+    assert!(!state.db_form.open, "the form closes on success");
+    let lots = state.lots.slots.clone().map(Option::unwrap);
+    assert_eq!(lots[0].provenance.format, "sqlite");
+    assert_eq!(
+        lots[0].provenance.query.as_deref(),
+        Some("SELECT * FROM hub_measurements")
+    );
+    assert_eq!((lots[0].len(), lots[1].len()), (40, 40));
+    assert!(state.result.is_current());
+    let shown = state.result.shown().unwrap();
+    assert!(!shown.in_database());
+    let want = sample_t2();
+    let t2 = shown.comparison.hotelling.t2;
+    assert!(((t2 - want) / want).abs() < 1e-9, "{t2} against {want}");
+    // The rows are units: the unit plots are there.
+    h.get_by_label("Pairs").click();
+    h.run_steps(2);
+    h.get_by_label("grid of leading pairs");
+    // Remembered for the next session, without a password.
+    let r = &h.state().saved.recent_sources[0];
+    assert_eq!(r.url, sample_database());
+    assert_eq!(r.lot_column, "route");
+    assert!(!r.in_database);
+}
+
+#[test]
+fn a_comparison_inside_the_database_shows_what_was_computed_and_reruns() {
+    let mut h = harness();
+    fill_database_form(&mut h, "SELECT * FROM hub_measurements", true);
+    h.get_by_label("Compare in the database").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let state = h.state();
+    assert!(state.messages.is_empty(), "{:?}", state.messages);
+    assert!(state.result.is_current());
+    let shown = state.result.shown().unwrap();
+    assert!(shown.in_database());
+    assert!(shown.comparison.in_database.is_some());
+    let want = sample_t2();
+    let t2 = shown.comparison.hotelling.t2;
+    assert!(((t2 - want) / want).abs() < 1e-9, "{t2} against {want}");
+    let p = shown.comparison.characteristics.len();
+    assert!(shown.record.lots[0].source.as_ref().unwrap().in_database);
+    // The views that work from the comparison show it; those that need units say so.
+    h.get_by_label_contains(&format!("The lots differ at alpha 0.05: T² = {want:.2}"));
+    h.get_by_label_contains("Not computed inside the database:");
+    h.get_by_label("Lots compared inside the database");
+    h.get_by_label_contains("reference: route = \"A\", 40 rows, 39 units used");
+    h.get_by_label("Characteristics").click();
+    h.run_steps(2);
+    h.get_by_label("hub length");
+    h.get_by_label("Intervals").click();
+    h.run_steps(2);
+    h.get_by_label_contains("with 95% intervals, in pooled standard deviations");
+    h.get_by_label("Pairs").click();
+    h.run_steps(2);
+    h.get_by_label(lotshift::gui::pairs::NOT_COMPUTED_PAIRS);
+    assert!(h.query_by_label("grid of leading pairs").is_none());
+    h.get_by_label("Shift direction").click();
+    h.run_steps(2);
+    h.get_by_label(lotshift::gui::direction::NOT_COMPUTED_SCORES);
+    // A change of settings runs the aggregate statements again.
+    let settings = lotshift::analysis::Settings {
+        alpha: 0.01,
+        ..h.state().saved.settings.clone()
+    };
+    h.state_mut()
+        .apply(lotshift::gui::action::Action::Settings(Box::new(settings)));
+    h.state_mut().apply(lotshift::gui::action::Action::Rerun);
+    settle(&mut h);
+    let shown = h.state().result.current().expect("a current result");
+    assert!(shown.in_database());
+    assert_eq!(shown.comparison.alpha(), 0.01);
+    assert!(((shown.comparison.hotelling.t2 - want) / want).abs() < 1e-9);
+    // Unticking a characteristic in the side panel compares the others inside the database.
+    h.get_by_label("mass (g)").click();
+    h.run_steps(1);
+    settle(&mut h);
+    let shown = h.state().result.current().expect("a current result");
+    assert!(shown.in_database());
+    assert_eq!(shown.comparison.characteristics.len(), p - 1);
+    assert!(!shown.comparison.characteristics.iter().any(|c| c == "mass"));
+    assert!(h.state().saved.recent_sources[0].in_database);
+}
+
+#[test]
+fn a_bad_database_source_leaves_the_loaded_lots_and_shows_the_error() {
+    let mut h = harness();
+    let t2 = h.state().result.shown().unwrap().comparison.hotelling.t2;
+    let cases = [
+        (
+            "SELECT * FROM no_such_table",
+            "route",
+            false,
+            "the query failed",
+        ),
+        (
+            "SELECT * FROM no_such_table",
+            "route",
+            true,
+            "the query failed",
+        ),
+        ("SELECT * FROM hub_measurements", "lot", false, "lot"),
+        (
+            "SELECT * FROM hub_measurements WHERE route = 'A'",
+            "route",
+            false,
+            "B",
+        ),
+        ("SELECT * FROM hub_measurements WHERE 0", "route", true, ""),
+    ];
+    for (query, column, in_database, says) in cases {
+        fill_database_form(&mut h, query, in_database);
+        h.state_mut().db_form.lot_column = column.into();
+        h.state_mut().db_form.values = ["A".into(), "B".into()];
+        h.state_mut()
+            .apply(lotshift::gui::action::Action::RunDatabase);
+        settle(&mut h);
+        let state = h.state();
+        assert_eq!(state.messages.len(), 1, "{query}: {:?}", state.messages);
+        let m = &state.messages[0];
+        assert!(m.contains(says), "{query}: {m}");
+        assert!(!m.contains('\n'), "one line: {m}");
+        assert_eq!(
+            state.lots.slots[1].as_ref().unwrap().name,
+            "candidate-route-b",
+            "{query}"
+        );
+        assert!(state.database.is_none());
+        assert!(state.result.is_current(), "{query}");
+        assert_eq!(state.result.shown().unwrap().comparison.hotelling.t2, t2);
+        assert!(!state.result.shown().unwrap().in_database());
+        h.get_by_label_contains(m.as_str());
+        h.get_by_label("Dismiss").click();
+        h.run_steps(2);
+        assert!(h.state().messages.is_empty());
+    }
+    // A form that names no source says why in the form, and nothing runs.
+    h.state_mut().db_form.url = "mysql://host/db".into();
+    h.state_mut()
+        .apply(lotshift::gui::action::Action::RunDatabase);
+    assert!(h.state().worker.idle());
+    let problem = h.state().db_form.problem.clone().unwrap();
+    assert!(problem.contains("sqlite:PATH"), "{problem}");
+    h.run_steps(2);
+    h.get_by_label_contains("is not a database URL lotshift reads");
+}
+
+/// Storage as eframe's persistence sees it, in memory.
+#[derive(Default)]
+struct MemoryStorage(std::collections::HashMap<String, String>);
+
+impl eframe::Storage for MemoryStorage {
+    fn get_string(&self, key: &str) -> Option<String> {
+        self.0.get(key).cloned()
+    }
+    fn set_string(&mut self, key: &str, value: String) {
+        self.0.insert(key.to_owned(), value);
+    }
+    fn remove_string(&mut self, key: &str) {
+        self.0.remove(key);
+    }
+    fn flush(&mut self) {}
+}
+
+#[test]
+fn the_password_typed_in_the_database_form_is_never_persisted() {
+    const PASSWORD: &str = "pw-typed-9f3a-never-stored";
+    for in_database in [false, true] {
+        let mut h = harness();
+        fill_database_form(&mut h, "SELECT * FROM hub_measurements", in_database);
+        // Typed into the masked field, as a user would.
+        h.get_by_label("Password").focus();
+        h.run_steps(1);
+        h.get_by_label("Password").type_text(PASSWORD);
+        h.run_steps(2);
+        assert_eq!(h.state().db_form.password, PASSWORD);
+        assert!(
+            h.query_by_label_contains(PASSWORD).is_none(),
+            "the field is masked"
+        );
+        h.state_mut()
+            .apply(lotshift::gui::action::Action::RunDatabase);
+        settle(&mut h);
+        let state = h.state();
+        assert!(state.messages.is_empty(), "{:?}", state.messages);
+        assert!(state.result.is_current());
+        // What eframe writes to the settings file when the window closes.
+        let mut storage = MemoryStorage::default();
+        eframe::App::save(h.state_mut(), &mut storage);
+        let stored = storage
+            .0
+            .get(eframe::APP_KEY)
+            .expect("the settings are saved");
+        assert!(stored.contains("hub-lots.sqlite"), "the URL is remembered");
+        assert!(!stored.contains(PASSWORD), "{stored}");
+        let back: Saved = eframe::get_value(&storage, eframe::APP_KEY).unwrap();
+        assert_eq!(back.recent_sources.len(), 1);
+        assert!(!format!("{back:?}").contains(PASSWORD));
+        assert!(!serde_json::to_string(&back).unwrap().contains(PASSWORD));
+        // Nor in the record, a message or the confirmation line.
+        let state = h.state();
+        let record = state.result.shown().unwrap().record.to_json();
+        assert!(!record.contains(PASSWORD));
+        assert!(!state.notice.clone().unwrap_or_default().contains(PASSWORD));
+        assert!(!format!("{:?}", state.db_form).contains(PASSWORD));
+        // A new session fills the form from what was remembered, without a password.
+        let mut app = LotshiftApp::new(None, back);
+        app.apply(lotshift::gui::action::Action::UseRecentSource(0));
+        assert_eq!(app.db_form.url, sample_database());
+        assert_eq!(app.db_form.in_database, in_database);
+        assert!(app.db_form.password.is_empty());
+    }
+}
+
+/// A file dropped on the window, as the windowing layer hands it over.
+#[derive(Debug)]
+struct Dropped(std::path::PathBuf);
+
+impl egui::DroppedFile for Dropped {
+    fn path(&self) -> &std::path::Path {
+        &self.0
+    }
+    fn bytes(&self) -> Result<Vec<u8>, String> {
+        std::fs::read(&self.0).map_err(|e| e.to_string())
+    }
+}
+
+/// Writes the sample candidate lot as a Parquet file (numbers as doubles, the rest as text),
+/// with the Parquet crate the loader reads it with.
+fn write_parquet_lot(path: &std::path::Path) {
+    use parquet::basic::{ConvertedType, Repetition, Type as Physical};
+    use parquet::data_type::{ByteArray, ByteArrayType, DoubleType};
+    use parquet::file::properties::WriterProperties;
+    use parquet::file::writer::SerializedFileWriter;
+    use parquet::schema::types::Type;
+    use std::sync::Arc;
+    let text = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/sample-lots/candidate-route-b.csv"
+    ))
+    .unwrap();
+    let mut lines = text.lines();
+    let header: Vec<&str> = lines.next().unwrap().split(',').collect();
+    let rows: Vec<Vec<&str>> = lines
+        .filter(|l| !l.trim().is_empty())
+        .map(|l| l.split(',').collect())
+        .collect();
+    let numeric: Vec<bool> = (0..header.len())
+        .map(|k| rows.iter().all(|r| r[k].parse::<f64>().is_ok()))
+        .collect();
+    let fields = header
+        .iter()
+        .zip(&numeric)
+        .map(|(h, &number)| {
+            let b = Type::primitive_type_builder(
+                h,
+                if number {
+                    Physical::DOUBLE
+                } else {
+                    Physical::BYTE_ARRAY
+                },
+            )
+            .with_repetition(Repetition::REQUIRED);
+            let b = if number {
+                b
+            } else {
+                b.with_converted_type(ConvertedType::UTF8)
+            };
+            Arc::new(b.build().unwrap())
+        })
+        .collect();
+    let schema = Arc::new(
+        Type::group_type_builder("lot")
+            .with_fields(fields)
+            .build()
+            .unwrap(),
+    );
+    let file = std::fs::File::create(path).unwrap();
+    let props = Arc::new(WriterProperties::builder().build());
+    let mut w = SerializedFileWriter::new(file, schema, props).unwrap();
+    let mut group = w.next_row_group().unwrap();
+    let mut k = 0;
+    while let Some(mut col) = group.next_column().unwrap() {
+        if numeric[k] {
+            let v: Vec<f64> = rows.iter().map(|r| r[k].parse().unwrap()).collect();
+            col.typed::<DoubleType>()
+                .write_batch(&v, None, None)
+                .unwrap();
+        } else {
+            let v: Vec<ByteArray> = rows.iter().map(|r| ByteArray::from(r[k])).collect();
+            col.typed::<ByteArrayType>()
+                .write_batch(&v, None, None)
+                .unwrap();
+        }
+        col.close().unwrap();
+        k += 1;
+    }
+    group.close().unwrap();
+    w.close().unwrap();
+}
+
+#[test]
+fn a_parquet_file_dropped_on_the_window_is_read_as_a_lot() {
+    let dir = scratch("parquet-drop");
+    let path = dir.join("candidate-route-b.parquet");
+    write_parquet_lot(&path);
+    let mut h = harness();
+    let t2 = h.state().result.shown().unwrap().comparison.hotelling.t2;
+    h.state_mut().lots.slots[1] = None;
+    h.input_mut()
+        .dropped_files
+        .push(std::sync::Arc::new(Dropped(path.clone())));
+    h.run_steps(1);
+    settle(&mut h);
+    let state = h.state();
+    assert!(state.messages.is_empty(), "{:?}", state.messages);
+    let lot = state.lots.slots[1].as_ref().unwrap();
+    assert_eq!(lot.provenance.format, "parquet");
+    assert_eq!(lot.len(), 40);
+    assert!(state.result.is_current());
+    // The same numbers as the CSV file give.
+    let again = state.result.shown().unwrap().comparison.hotelling.t2;
+    assert!(((again - t2) / t2).abs() < 1e-12, "{again} against {t2}");
+    assert_eq!(
+        state.saved.recent[0],
+        path.display().to_string(),
+        "in the recent files"
+    );
+    let _ = std::fs::remove_dir_all(dir);
+}
