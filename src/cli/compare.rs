@@ -361,13 +361,18 @@ fn compare_statement_result(a: &StatsArgs) -> CliResult {
         seed: analysis::DEFAULT_SEED,
         sequential: None,
     };
-    let mut c = crate::source::aggregate::compare_sums(
+    let c = crate::source::aggregate::compare_sums(
         &chars,
         &units,
         [&order[0], &order[1]],
         [&sums[0], &sums[1]],
         &settings,
     )?;
+    finish_summary(a, c)
+}
+
+/// The end of `compare-stats`: the specification, the text, the record, the exit status.
+fn finish_summary(a: &StatsArgs, mut c: analysis::Comparison) -> CliResult {
     let plan = a.spec.request()?;
     if !plan.is_empty() {
         let given = plan.specification(&c.characteristics, &c.units)?;
@@ -417,24 +422,9 @@ pub(super) fn compare_stats(a: StatsArgs) -> CliResult {
         seed: analysis::DEFAULT_SEED,
         sequential: None,
     };
-    let mut c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
+    let c = analysis::compare_summaries(&spec.characteristics, &units, [l1, l2], &settings)
         .map_err(|e| format!("{}: {e}", a.file.display()))?;
-    let plan = a.spec.request()?;
-    if !plan.is_empty() {
-        let given = plan.specification(&c.characteristics, &c.units)?;
-        analysis::apply_specification(&mut c, &given, None)?;
-    }
-    let record = Record::new(&c, None);
-    if a.json.as_deref() != Some("-") {
-        let name = a.file.display().to_string();
-        out(&report::render_text(&c, None, [&name, &name], None));
-    }
-    emit_json(&a.json, &record)?;
-    Ok(if a.fail_on_shift && c.hotelling.differ {
-        ExitCode::from(EXIT_SHIFT)
-    } else {
-        ExitCode::SUCCESS
-    })
+    finish_summary(&a, c)
 }
 
 /// `compare --database … --in-database`: the comparison from aggregate statements.

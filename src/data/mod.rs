@@ -76,6 +76,17 @@ pub struct Provenance {
     pub query: Option<String>,
 }
 
+impl Provenance {
+    /// The provenance of rows that came from elsewhere than a file (a database query),
+    /// named `name`, of kind `format`; the caller fills in what it knows.
+    pub fn of_rows(name: &str, format: &str) -> Provenance {
+        Provenance {
+            format: format.to_string(),
+            ..new_provenance(name, String::new(), 0, &LoadOptions::default())
+        }
+    }
+}
+
 /// Compact storage for a text column: one buffer and the end offset of each cell.
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct TextColumn {

@@ -129,23 +129,7 @@ pub fn plan(
     let mut opts = options.clone();
     opts.labels.push(source.lot_column.clone());
     let name = format!("query result ({})", source.database.url());
-    let empty = data::Provenance {
-        path: name.clone(),
-        file_name: name.clone(),
-        sha256: String::new(),
-        size_bytes: 0,
-        format: source.database.kind().into(),
-        delimiter: None,
-        decimal_comma: false,
-        decimal_mark: String::new(),
-        encoding: None,
-        sheet: None,
-        split: None,
-        rows_read: 0,
-        notes: Vec::new(),
-        forced_labels: Vec::new(),
-        query: None,
-    };
+    let empty = data::Provenance::of_rows(&name, source.database.kind());
     let table = data::from_cells(
         &name,
         &probe.columns,

@@ -409,19 +409,10 @@ pub fn lots_from_table(
     let provenance = Provenance {
         path: url.to_string(),
         file_name: url.to_string(),
-        sha256: String::new(),
-        size_bytes: 0,
-        format: source.database.kind().to_string(),
-        delimiter: None,
-        decimal_comma: false,
-        decimal_mark: String::new(),
-        encoding: None,
-        sheet: None,
-        split: None,
         rows_read: table.rows.len(),
-        notes: Vec::new(),
         forced_labels: options.labels.clone(),
         query: Some(source.query.clone()),
+        ..Provenance::of_rows(url, source.database.kind())
     };
     let mut opts = options.clone();
     if !opts
