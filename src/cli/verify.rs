@@ -28,20 +28,8 @@ pub(super) fn verify(a: VerifyArgs) -> CliResult {
         Err(e) => return fail(e.to_string()),
     };
     for exp in &expected {
-        let want = sign::fingerprint(exp);
-        if !summary.signatures.iter().any(|s| s.key_fingerprint == want) {
-            return fail(
-                sign::VerifyError::WrongKey {
-                    found: summary
-                        .signatures
-                        .iter()
-                        .map(|s| s.key_fingerprint.as_str())
-                        .collect::<Vec<_>>()
-                        .join(", "),
-                    expected: want,
-                }
-                .to_string(),
-            );
+        if let Err(e) = sign::signed_with(&summary, exp) {
+            return fail(e.to_string());
         }
     }
     // What keeps the summary from being verified without being wrong: each in words.

@@ -121,21 +121,11 @@ impl Shown {
             Lot {
                 name: c.value.clone(),
                 provenance: data::Provenance {
-                    path: url.clone(),
                     file_name: url.clone(),
-                    sha256: String::new(),
-                    size_bytes: 0,
-                    format: source.database.kind().to_string(),
-                    delimiter: None,
-                    decimal_comma: false,
-                    decimal_mark: String::new(),
-                    encoding: None,
-                    sheet: None,
                     split: Some((source.lot_column.clone(), c.value.clone())),
                     rows_read: c.rows_read,
-                    notes: Vec::new(),
-                    forced_labels: Vec::new(),
                     query: Some(source.query.clone()),
+                    ..data::Provenance::of_rows(&url, source.database.kind())
                 },
                 columns: Vec::new(),
                 rows: Vec::new(),

@@ -747,20 +747,29 @@ pub fn verify_signature(
 ) -> Result<SignedSummary, VerifyError> {
     let summary = verify_sequence(text)?;
     if let Some(exp) = expected {
-        let want = fingerprint(exp);
-        if !summary.signatures.iter().any(|s| s.key_fingerprint == want) {
-            return Err(VerifyError::WrongKey {
-                found: summary
-                    .signatures
-                    .iter()
-                    .map(|s| s.key_fingerprint.as_str())
-                    .collect::<Vec<_>>()
-                    .join(", "),
-                expected: want,
-            });
-        }
+        signed_with(&summary, exp)?;
     }
     Ok(summary)
+}
+
+/// Checks that one of the summary's signatures was made with `key`.
+///
+/// # Errors
+/// [`VerifyError::WrongKey`], listing the keys that did sign.
+pub fn signed_with(summary: &SignedSummary, key: &VerifyingKey) -> Result<(), VerifyError> {
+    let want = fingerprint(key);
+    if summary.signatures.iter().any(|s| s.key_fingerprint == want) {
+        return Ok(());
+    }
+    Err(VerifyError::WrongKey {
+        found: summary
+            .signatures
+            .iter()
+            .map(|s| s.key_fingerprint.as_str())
+            .collect::<Vec<_>>()
+            .join(", "),
+        expected: want,
+    })
 }
 
 /// Notes on the order of the signatures, in words (none when usual): a signature whose

@@ -236,11 +236,6 @@ impl Session {
             .statement(sql, params)
             .map_err(|e| e.scrubbed(self.password.as_deref()))
     }
-
-    /// The URL (no password).
-    pub fn url(&self) -> &str {
-        &self.url
-    }
 }
 
 /// Why a database source could not be read. Messages hold no password.
@@ -407,12 +402,11 @@ pub fn lots_from_table(
     let url = source.database.url();
     let name = format!("query result ({url})");
     let provenance = Provenance {
-        path: url.to_string(),
         file_name: url.to_string(),
         rows_read: table.rows.len(),
         forced_labels: options.labels.clone(),
         query: Some(source.query.clone()),
-        ..Provenance::of_rows(url, source.database.kind())
+        ..Provenance::of_rows(&name, source.database.kind())
     };
     let mut opts = options.clone();
     if !opts
@@ -431,7 +425,6 @@ pub fn lots_from_table(
         provenance,
     )?;
     all.provenance.forced_labels = options.labels.clone();
-    all.provenance.path = name.clone();
     let wanted = source
         .lot_values
         .as_ref()

@@ -70,42 +70,11 @@ impl Postgres {
         }
     }
 
-    /// Runs `sql` with text parameters in a read-only transaction, rolled back afterwards.
-    fn read(
+    /// Runs `work` in a read-only transaction, rolled back afterwards.
+    fn read_only<T>(
         &mut self,
-        sql: &str,
-        params: &[&str],
-    ) -> Result<(Vec<String>, Vec<postgres::Row>), SourceError> {
-        let url = self.url.clone();
-        let mut tx = self
-            .client
-            .build_transaction()
-            .read_only(true)
-            .start()
-            .map_err(|e| SourceError::Query {
-                url: url.clone(),
-                why: describe(&e),
-            })?;
-        let result = (|| {
-            let stmt = tx.prepare(sql)?;
-            let names = stmt
-                .columns()
-                .iter()
-                .map(|c| c.name().to_string())
-                .collect();
-            let args: Vec<&(dyn postgres::types::ToSql + Sync)> = params
-                .iter()
-                .map(|p| p as &(dyn postgres::types::ToSql + Sync))
-                .collect();
-            let rows = tx.query(&stmt, &args)?;
-            Ok::<_, postgres::Error>((names, rows))
-        })();
-        let _ = tx.rollback();
-        result.map_err(|e| self.failed(&e))
-    }
-
-    /// The user's statement as PostgreSQL describes it, without running it.
-    fn describe_columns(&mut self, sql: &str) -> Result<Vec<String>, SourceError> {
+        work: impl FnOnce(&mut postgres::Transaction<'_>) -> Result<T, postgres::Error>,
+    ) -> Result<T, SourceError> {
         let mut tx = self
             .client
             .build_transaction()
@@ -115,15 +84,39 @@ impl Postgres {
                 url: self.url.clone(),
                 why: describe(&e),
             })?;
-        let stmt = tx.prepare(sql);
+        let result = work(&mut tx);
         let _ = tx.rollback();
-        let stmt = stmt.map_err(|e| self.failed(&e))?;
-        Ok(stmt
-            .columns()
-            .iter()
-            .map(|c| c.name().to_string())
-            .collect())
+        result.map_err(|e| self.failed(&e))
     }
+
+    /// Runs `sql` with text parameters, read-only.
+    fn read(
+        &mut self,
+        sql: &str,
+        params: &[&str],
+    ) -> Result<(Vec<String>, Vec<postgres::Row>), SourceError> {
+        self.read_only(|tx| {
+            let stmt = tx.prepare(sql)?;
+            let args: Vec<&(dyn postgres::types::ToSql + Sync)> = params
+                .iter()
+                .map(|p| p as &(dyn postgres::types::ToSql + Sync))
+                .collect();
+            let rows = tx.query(&stmt, &args)?;
+            Ok((column_names(&stmt), rows))
+        })
+    }
+
+    /// The user's statement as PostgreSQL describes it, without running it.
+    fn describe_columns(&mut self, sql: &str) -> Result<Vec<String>, SourceError> {
+        self.read_only(|tx| tx.prepare(sql).map(|stmt| column_names(&stmt)))
+    }
+}
+
+fn column_names(stmt: &postgres::Statement) -> Vec<String> {
+    stmt.columns()
+        .iter()
+        .map(|c| c.name().to_string())
+        .collect()
 }
 
 /// A driver error in one line: the server's own message where there is one.
@@ -187,6 +180,17 @@ impl Engine for Postgres {
                 url: self.url.clone(),
                 why: "the statement returns no columns; give a SELECT".into(),
             });
+        }
+        // Read as a subquery, a result with two columns of one name would be ambiguous.
+        for (k, n) in names.iter().enumerate() {
+            if names[..k].contains(n) {
+                return Err(SourceError::Query {
+                    url: self.url.clone(),
+                    why: format!(
+                        "the result has two columns named \"{n}\"; name them apart with AS"
+                    ),
+                });
+            }
         }
         let body = sql.trim().trim_end_matches(';');
         let casts: Vec<String> = names

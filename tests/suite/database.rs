@@ -1080,6 +1080,21 @@ fn postgresql_refuses_writes_and_keeps_hostile_names_as_data() {
             stderr(&o)
         );
     }
+    let o = run(&[
+        "compare",
+        "--database",
+        &owner,
+        "--query",
+        "SELECT route, \"mass (g)\" AS m, \"hub length (mm)\" AS m FROM hub_measurements",
+        "--lot-column",
+        "route",
+    ]);
+    assert_eq!(o.status.code(), Some(2));
+    assert!(
+        stderr(&o).contains("two columns named \"m\""),
+        "{}",
+        stderr(&o)
+    );
     let n: i64 = client
         .query_one(&format!("SELECT COUNT(*) FROM {table}"), &[])
         .unwrap()
