@@ -71,9 +71,13 @@ impl Units<'_> {
 /// Per characteristic and lot: min, median and max of the values as measured (taken before
 /// any centring), with mean and SD still to come from the moments.
 fn order_statistics(data: [&DMatrix<f64>; 2]) -> Vec<[ColumnSummary; 2]> {
-    (0..data[0].ncols())
-        .map(|k| [0, 1].map(|g| column_summary(data[g].column(k).as_slice(), f64::NAN, f64::NAN)))
-        .collect()
+    use rayon::prelude::*;
+    let p = data[0].ncols();
+    let one: Vec<ColumnSummary> = (0..2 * p)
+        .into_par_iter()
+        .map(|j| column_summary(data[j % 2].column(j / 2).as_slice(), f64::NAN, f64::NAN))
+        .collect();
+    one.chunks_exact(2).map(|c| [c[0], c[1]]).collect()
 }
 
 /// Completes the summaries with the mean and SD of the lots' moments: one rule for every kind
@@ -116,13 +120,17 @@ pub fn compare_units(
     let mut summaries = order_statistics([data.matrix(0), data.matrix(1)]);
     let ([m1, m2], centred) = match data {
         Units::Borrowed(d) => {
-            let (m1, c1) = LotMoments::from_data_centred(d[0], &origin);
-            let (m2, c2) = LotMoments::from_data_centred(d[1], &origin);
+            let ((m1, c1), (m2, c2)) = rayon::join(
+                || LotMoments::from_data_centred(d[0], &origin),
+                || LotMoments::from_data_centred(d[1], &origin),
+            );
             ([m1, m2], [c1, c2])
         }
         Units::Owned([mut x, mut y]) => {
-            let m1 = LotMoments::centre_in_place(&mut x, &origin);
-            let m2 = LotMoments::centre_in_place(&mut y, &origin);
+            let (m1, m2) = rayon::join(
+                || LotMoments::centre_in_place(&mut x, &origin),
+                || LotMoments::centre_in_place(&mut y, &origin),
+            );
             ([m1, m2], [x, y])
         }
     };
@@ -325,15 +333,10 @@ fn unit_checks(
     // The two lots' checks are independent: one on each core.
     let [c0, c1] = centred;
     let names = [out.lots[0].name.clone(), out.lots[1].name.clone()];
-    let (first, second) = std::thread::scope(|s| {
-        let other = s.spawn(|| lot_checks(1, &names[1], c1, alpha));
-        let first = lot_checks(0, &names[0], c0, alpha);
-        (first, other.join())
-    });
-    let second = match second {
-        Ok(r) => r,
-        Err(panic) => std::panic::resume_unwind(panic),
-    };
+    let (first, second) = rayon::join(
+        || lot_checks(0, &names[0], c0, alpha),
+        || lot_checks(1, &names[1], c1, alpha),
+    );
     let lots = [first, second];
     out.normality = (0..out.characteristics.len())
         .map(|k| NormalityRow {
@@ -377,17 +380,22 @@ fn lot_checks(g: usize, name: &str, mut c: DMatrix<f64>, alpha: f64) -> LotCheck
     let p = c.ncols();
     // Shapiro–Wilk is location-invariant: the centred columns serve (and it runs first,
     // before the whitening below changes them).
-    let shapiro = (0..p)
-        .map(|k| shapiro_wilk(c.column(k).as_slice()))
-        .collect();
-    let large = (0..p)
-        .map(|k| {
-            let col = c.column(k);
-            (col.len() > MAX_UNITS)
-                .then(|| large_lot_normality(col.as_slice()))
-                .flatten()
-        })
-        .collect();
+    // One task per characteristic: the sorts behind both tests dominate a big lot's checks.
+    let (shapiro, large): (Vec<_>, Vec<_>) = {
+        use rayon::prelude::*;
+        (0..p)
+            .into_par_iter()
+            .map(|k| {
+                let col = c.column(k);
+                let col = col.as_slice();
+                if col.len() > MAX_UNITS {
+                    (None, large_lot_normality(col))
+                } else {
+                    (shapiro_wilk(col), None)
+                }
+            })
+            .unzip()
+    };
     let mut out = LotChecks {
         shapiro,
         large,

@@ -123,8 +123,51 @@ enum Source<'a> {
 /// What receives each record: its row and fields; returns whether to go on.
 type RecordFn<'a> = dyn FnMut(usize, &[&[u8]]) -> Result<bool, LoadError> + 'a;
 
+/// What receives each block of whole lines and whether it is the last; returns whether to
+/// go on.
+type BlockFn<'a> = dyn FnMut(&[u8], bool) -> Result<bool, LoadError> + 'a;
+
 /// Bytes read from a file at a time.
 const CHUNK: usize = 1 << 20;
+
+/// Calls `f(text, last)` for the text in blocks of whole lines (`last` marks the final block,
+/// which may end without a line end), until `f` returns `Ok(false)`: text in memory as one
+/// block, a file a chunk at a time so memory stays flat.
+fn for_each_block(path: &str, source: Source<'_>, f: &mut BlockFn<'_>) -> Result<(), LoadError> {
+    let io = |e: std::io::Error| LoadError::new(path, LoadErrorKind::Io(e.to_string()));
+    match source {
+        Source::Memory(body) => {
+            f(body, true)?;
+        }
+        Source::File(p, skip) => {
+            use std::io::{Read as _, Seek as _};
+            let mut file = std::fs::File::open(p).map_err(io)?;
+            file.seek(std::io::SeekFrom::Start(skip)).map_err(io)?;
+            let mut buf: Vec<u8> = Vec::with_capacity(CHUNK * 2);
+            loop {
+                let old = buf.len();
+                buf.resize(old + CHUNK, 0);
+                let got = file.read(&mut buf[old..]).map_err(io)?;
+                buf.truncate(old + got);
+                let at_end = got == 0;
+                // Whole lines only, except at the end of the file.
+                let upto = if at_end {
+                    buf.len()
+                } else {
+                    match memchr::memrchr(b'\n', &buf) {
+                        Some(i) => i + 1,
+                        None => continue,
+                    }
+                };
+                if !f(&buf[..upto], at_end)? || at_end {
+                    return Ok(());
+                }
+                buf.drain(..upto);
+            }
+        }
+    }
+    Ok(())
+}
 
 /// Calls `f(row, fields)` for each record, the row numbered as a spreadsheet shows it, until
 /// `f` returns `Ok(false)`. Quote-free text is split directly (lines on `\n`, fields on the
@@ -140,41 +183,9 @@ fn for_each_record(
     let io = |e: std::io::Error| LoadError::new(path, LoadErrorKind::Io(e.to_string()));
     if fast {
         let mut line_no = 1usize;
-        match source {
-            Source::Memory(body) => {
-                split_lines(body, delim, &mut line_no, true, f)?;
-            }
-            Source::File(p, skip) => {
-                use std::io::{Read as _, Seek as _};
-                let mut file = std::fs::File::open(p).map_err(io)?;
-                file.seek(std::io::SeekFrom::Start(skip)).map_err(io)?;
-                let mut buf: Vec<u8> = Vec::with_capacity(CHUNK * 2);
-                loop {
-                    let old = buf.len();
-                    buf.resize(old + CHUNK, 0);
-                    let got = file.read(&mut buf[old..]).map_err(io)?;
-                    buf.truncate(old + got);
-                    let at_end = got == 0;
-                    // Whole lines only, except at the end of the file.
-                    let upto = if at_end {
-                        buf.len()
-                    } else {
-                        match memchr::memrchr(b'\n', &buf) {
-                            Some(i) => i + 1,
-                            None => continue,
-                        }
-                    };
-                    if !split_lines(&buf[..upto], delim, &mut line_no, at_end, f)? {
-                        return Ok(());
-                    }
-                    buf.drain(..upto);
-                    if at_end {
-                        return Ok(());
-                    }
-                }
-            }
-        }
-        return Ok(());
+        return for_each_block(path, source, &mut |block, last| {
+            split_lines(block, delim, &mut line_no, last, f)
+        });
     }
     let reader: Box<dyn std::io::Read + '_> = match source {
         Source::Memory(body) => Box::new(body),
@@ -184,6 +195,31 @@ fn for_each_record(
             file.seek(std::io::SeekFrom::Start(skip)).map_err(io)?;
             Box::new(std::io::BufReader::with_capacity(CHUNK, file).take(u64::MAX))
         }
+    };
+    // The csv crate's own line numbers fall one behind after a CRLF line end, and its record
+    // positions may point at the line ends before a record, so the row of a record is counted
+    // here: the line ends before its first byte that is not a line end, plus one.
+    let line_ends = std::rc::Rc::new(std::cell::RefCell::new(std::collections::VecDeque::new()));
+    let reader = LineEnds {
+        inner: reader,
+        read: 0,
+        ends: line_ends.clone(),
+    };
+    let mut lines_before = 0usize;
+    let mut row_at = |byte: u64| {
+        let mut ends = line_ends.borrow_mut();
+        let mut at = byte;
+        while let Some(&(offset, newline)) = ends.front() {
+            if offset > at {
+                break;
+            }
+            if offset == at {
+                at += 1;
+            }
+            lines_before += usize::from(newline);
+            ends.pop_front();
+        }
+        lines_before + 1
     };
     let mut rdr = csv::ReaderBuilder::new()
         .has_headers(false)
@@ -196,7 +232,7 @@ fn for_each_record(
             Ok(false) => return Ok(()),
             Ok(true) => {}
             Err(e) => {
-                let row = e.position().map_or(0, |p| p.line() as usize);
+                let row = e.position().map_or(0, |p| row_at(p.byte()));
                 return Err(LoadError::at_row(
                     path,
                     row,
@@ -204,11 +240,32 @@ fn for_each_record(
                 ));
             }
         }
-        let row = rec.position().map_or(0, |p| p.line() as usize);
+        let row = rec.position().map_or(0, |p| row_at(p.byte()));
         let quoted: Vec<&[u8]> = rec.iter().collect();
         if !f(row, &quoted)? {
             return Ok(());
         }
+    }
+}
+
+/// A reader that notes the offset of every line-end byte that passes through it, and whether
+/// it is a `\n` (for the row numbers of [`for_each_record`]'s csv path).
+struct LineEnds<R> {
+    inner: R,
+    read: u64,
+    ends: std::rc::Rc<std::cell::RefCell<std::collections::VecDeque<(u64, bool)>>>,
+}
+
+impl<R: std::io::Read> std::io::Read for LineEnds<R> {
+    fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+        let got = self.inner.read(buf)?;
+        let mut ends = self.ends.borrow_mut();
+        ends.extend(
+            memchr::memchr2_iter(b'\n', b'\r', &buf[..got])
+                .map(|i| (self.read + i as u64, buf[i] == b'\n')),
+        );
+        self.read += got as u64;
+        Ok(got)
     }
 }
 
@@ -395,6 +452,81 @@ struct Builder {
     missing: usize,
 }
 
+impl Builder {
+    /// Appends a text cell as read (decoded, trimmed; an empty one counts as missing).
+    fn push_text(&mut self, raw: &[u8], latin1: bool) {
+        let text = decode(raw, latin1);
+        let t = text.trim();
+        if t.is_empty() {
+            self.missing += 1;
+        }
+        self.text.push(t);
+    }
+}
+
+/// What [`fast_row`] keeps between lines so that no line allocates.
+#[derive(Default)]
+struct RowScratch {
+    numbers: Vec<f64>,
+    texts: Vec<(usize, usize)>,
+}
+
+/// Reads one data line (no line end, quote-free) in a single pass when every cell is plain:
+/// each number column a plain decimal ([`super::fast_decimal_prefix`]) that ends at the
+/// delimiter, each text column anything up to it, and exactly one field per column. The
+/// values are kept only when the whole line qualifies; otherwise nothing is kept and false
+/// is returned, and the caller reads the line by the general rules (missing cells, other
+/// number forms, errors with their row and column). A line taken here gives the values the
+/// general rules would give.
+fn fast_row(
+    line: &[u8],
+    delim: u8,
+    decimal_comma: bool,
+    latin1: bool,
+    columns: &mut [Builder],
+    scratch: &mut RowScratch,
+) -> bool {
+    scratch.numbers.clear();
+    scratch.texts.clear();
+    let last = columns.len().saturating_sub(1);
+    let mut at = 0usize;
+    for (k, col) in columns.iter().enumerate() {
+        let end = if col.numeric {
+            match super::fast_decimal_prefix(&line[at..], decimal_comma) {
+                Some((v, used)) => {
+                    scratch.numbers.push(v);
+                    at + used
+                }
+                None => return false,
+            }
+        } else {
+            let rest = &line[at..];
+            let end = memchr::memchr(delim, rest).map_or(line.len(), |i| at + i);
+            scratch.texts.push((at, end));
+            end
+        };
+        if k == last {
+            if end != line.len() {
+                return false;
+            }
+        } else {
+            if line.get(end) != Some(&delim) {
+                return false;
+            }
+            at = end + 1;
+        }
+    }
+    let (mut numbers, mut texts) = (scratch.numbers.iter(), scratch.texts.iter());
+    for col in columns.iter_mut() {
+        if col.numeric {
+            col.values.extend(numbers.next().copied());
+        } else if let Some(&(s, e)) = texts.next() {
+            col.push_text(&line[s..e], latin1);
+        }
+    }
+    true
+}
+
 pub(super) fn read(
     path: &str,
     bytes: &[u8],
@@ -562,7 +694,11 @@ fn read_source(
         }
     }
     let mut rows: Vec<u32> = Vec::with_capacity(line_guess);
-    let mut push = |rec: &[&[u8]], row: usize, columns: &mut [Builder]| -> Result<(), LoadError> {
+    let push = |rec: &[&[u8]],
+                row: usize,
+                columns: &mut [Builder],
+                rows: &mut Vec<u32>|
+     -> Result<(), LoadError> {
         if rec.len() < width {
             // A blank line inside the data reads as one empty field: treat as no unit.
             if rec.len() == 1 && rec[0].trim_ascii().is_empty() {
@@ -621,25 +757,63 @@ fn read_source(
                 };
                 col.values.push(v);
             } else {
-                let text = decode(raw, latin1);
-                let t = text.trim();
-                if t.is_empty() {
-                    col.missing += 1;
-                }
-                col.text.push(t);
+                col.push_text(raw, latin1);
             }
         }
         rows.push(u32::try_from(row).unwrap_or(u32::MAX));
         Ok(())
     };
     let mut first = true;
-    for_each_record(path, source, delim, fast, &mut |row, fields| {
-        if std::mem::take(&mut first) {
-            return Ok(true);
-        }
-        push(fields, row, &mut columns)?;
-        Ok(true)
-    })?;
+    if fast && !(decimal_comma && delim == b',') {
+        // Quote-free text: each line read in one pass, numbers parsed where they stand
+        // ([`fast_row`]); a line it does not take goes through the general rules.
+        let mut line_no = 1usize;
+        let mut scratch = RowScratch::default();
+        for_each_block(path, source, &mut |block, last| {
+            let mut start = 0usize;
+            while start < block.len() {
+                let end = memchr::memchr(b'\n', &block[start..]).map(|i| start + i);
+                if end.is_none() && !last {
+                    break;
+                }
+                let stop = end.unwrap_or(block.len());
+                let raw = &block[start..stop];
+                let line = raw.strip_suffix(b"\r").unwrap_or(raw);
+                let row = line_no;
+                line_no += 1;
+                start = stop + 1;
+                // A blank line is no record (as the field splitter reads it).
+                if line.is_empty() {
+                    continue;
+                }
+                if std::mem::take(&mut first) {
+                    continue;
+                }
+                if !fast_row(
+                    line,
+                    delim,
+                    decimal_comma,
+                    latin1,
+                    &mut columns,
+                    &mut scratch,
+                ) {
+                    let fields: Vec<&[u8]> = line.split(|&b| b == delim).collect();
+                    push(&fields, row, &mut columns, &mut rows)?;
+                    continue;
+                }
+                rows.push(u32::try_from(row).unwrap_or(u32::MAX));
+            }
+            Ok(true)
+        })?;
+    } else {
+        for_each_record(path, source, delim, fast, &mut |row, fields| {
+            if std::mem::take(&mut first) {
+                return Ok(true);
+            }
+            push(fields, row, &mut columns, &mut rows)?;
+            Ok(true)
+        })?;
+    }
     if rows.is_empty() {
         return Err(LoadError::at_row(path, 1, LoadErrorKind::HeaderOnly));
     }

@@ -319,6 +319,16 @@ pub(crate) fn parse_cell_bytes(raw: &[u8], decimal_comma: bool) -> Cell {
     }
 }
 
+/// The number in one cell's bytes as the loaders read it (a decimal point, or a decimal comma
+/// when `decimal_comma`); `None` for a missing, infinite or text cell. Public for the loading
+/// benchmark, which measures it against a maintained float parser.
+pub fn parse_number(raw: &[u8], decimal_comma: bool) -> Option<f64> {
+    match parse_cell_bytes(raw, decimal_comma) {
+        Cell::Number(v) => Some(v),
+        _ => None,
+    }
+}
+
 /// Reads ASCII digits from `raw[*i..]` into `mantissa` (wrapping: the caller limits the
 /// count); returns how many.
 #[inline]
@@ -338,6 +348,16 @@ fn digits(raw: &[u8], i: &mut usize, mantissa: &mut u64) -> usize {
 /// `[-+]digits[.digits]` with at most 15 digits in all, exactly; `None` for anything else.
 #[inline]
 fn fast_decimal(raw: &[u8], decimal_comma: bool) -> Option<f64> {
+    match fast_decimal_prefix(raw, decimal_comma) {
+        Some((v, used)) if used == raw.len() => Some(v),
+        _ => None,
+    }
+}
+
+/// The plain decimal at the start of `raw` (as [`fast_decimal`] reads a whole cell) and the
+/// number of bytes it takes; the caller checks what follows it.
+#[inline]
+pub(crate) fn fast_decimal_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f64, usize)> {
     let mut i = 0usize;
     let n = raw.len();
     let neg = match raw.first() {
@@ -359,11 +379,11 @@ fn fast_decimal(raw: &[u8], decimal_comma: bool) -> Option<f64> {
         frac = digits(raw, &mut i, &mut mantissa);
     }
     let digits = int_digits + frac;
-    if i != n || digits == 0 || digits > 15 {
+    if digits == 0 || digits > 15 {
         return None;
     }
     let v = mantissa as f64 / POW10[frac];
-    Some(if neg { -v } else { v })
+    Some((if neg { -v } else { v }, i))
 }
 
 /// Classifies a cell's text, reading a decimal comma when `decimal_comma`.
@@ -545,17 +565,7 @@ pub fn load_two(
             split_lot(&lot, column, lots)
         }
         ([a, b], None) => {
-            let (ra, rb) = std::thread::scope(|s| {
-                let ha = s.spawn(|| load(a, options));
-                let rb = load(b, options);
-                let ra = ha.join().unwrap_or_else(|_| {
-                    Err(LoadError::new(
-                        &a.display().to_string(),
-                        LoadErrorKind::Io("the reader stopped unexpectedly".into()),
-                    ))
-                });
-                (ra, rb)
-            });
+            let (ra, rb) = rayon::join(|| load(a, options), || load(b, options));
             Ok([ra?, rb?])
         }
         ([one], None) => {

@@ -178,8 +178,7 @@ pub fn prepare_releasing(
     let idx_a: Vec<usize> = plan.pairs.iter().map(|p| p.0).collect();
     let idx_b: Vec<usize> = plan.pairs.iter().map(|p| p.1).collect();
     let [a, b] = lots;
-    let first = build_releasing(a, &idx_a);
-    let second = build_releasing(b, &idx_b);
+    let (first, second) = rayon::join(|| build_releasing(a, &idx_a), || build_releasing(b, &idx_b));
     Ok(Prepared {
         characteristics: plan.characteristics,
         units: plan.units,
@@ -417,7 +416,11 @@ fn build(lot: &Lot, idx: &[usize]) -> PreparedLot {
     let kept = complete_rows(lot.len(), &cols);
     let mut data = Vec::with_capacity(kept.len() * cols.len());
     for c in &cols {
-        data.extend(kept.iter().map(|&r| c[r]));
+        if kept.len() == c.len() {
+            data.extend_from_slice(c);
+        } else {
+            data.extend(kept.iter().map(|&r| c[r]));
+        }
     }
     let out = left_out(lot, idx, &kept);
     finish_lot(lot, idx, kept, data, out)
@@ -427,9 +430,14 @@ fn build_releasing(lot: &mut Lot, idx: &[usize]) -> PreparedLot {
     let kept = complete_rows(lot.len(), &numeric_cols(lot, idx));
     let out = left_out(lot, idx, &kept);
     let mut data = Vec::with_capacity(kept.len() * idx.len());
+    let every = kept.len() == lot.len();
     for &i in idx {
         if let ColumnData::Numeric(v) = &mut lot.columns[i].data {
-            data.extend(kept.iter().map(|&r| v[r]));
+            if every {
+                data.extend_from_slice(v);
+            } else {
+                data.extend(kept.iter().map(|&r| v[r]));
+            }
             *v = Vec::new();
         }
     }

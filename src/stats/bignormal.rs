@@ -47,11 +47,6 @@ pub struct LargeLotNormality {
     pub k2_p: f64,
 }
 
-/// `ln Φ(z)` from the upper tail of `−z` (accurate for very negative z).
-fn ln_phi(z: f64) -> f64 {
-    dist::norm_sf(-z).ln()
-}
-
 /// Largest `A*` the p-value formula is used for: beyond it the p-value is below 1e-30 and is
 /// reported as 0 (the quadratic in the exponent turns up again far beyond the table's range).
 pub const AD_FORMULA_MAX: f64 = 13.0;
@@ -107,7 +102,13 @@ pub fn kurtosis_z(b2: f64, n: f64) -> f64 {
 /// The large-lot checks of one characteristic (`None` with fewer than 20 units, where the
 /// kurtosis transformation is not defined, or without spread).
 pub fn large_lot_normality(values: &[f64]) -> Option<LargeLotNormality> {
-    let x: Vec<f64> = values.iter().copied().filter(|v| v.is_finite()).collect();
+    let owned: Vec<f64>;
+    let x: &[f64] = if values.iter().all(|v| v.is_finite()) {
+        values
+    } else {
+        owned = values.iter().copied().filter(|v| v.is_finite()).collect();
+        &owned
+    };
     let n = x.len();
     if n < 20 {
         return None;
@@ -116,7 +117,7 @@ pub fn large_lot_normality(values: &[f64]) -> Option<LargeLotNormality> {
     let mean = x.iter().sum::<f64>() / nf;
     // Centred before any power is formed.
     let (mut m2, mut m3, mut m4) = (0.0, 0.0, 0.0);
-    for &v in &x {
+    for &v in x {
         let d = v - mean;
         let d2 = d * d;
         m2 += d2;
@@ -130,12 +131,20 @@ pub fn large_lot_normality(values: &[f64]) -> Option<LargeLotNormality> {
     let g1 = m3 / m2.powf(1.5);
     let b2 = m4 / (m2 * m2);
     let sd = (m2 * nf / (nf - 1.0)).sqrt();
-    let mut z: Vec<f64> = x.iter().map(|v| (v - mean) / sd).collect();
-    z.sort_by(f64::total_cmp);
+    let z = super::sort::sorted(x.iter().map(|v| (v - mean) / sd));
+    // Σᵢ (2i − 1)[ln Φ(z₍ᵢ₎) + ln Φ(−z₍ₙ₊₁₋ᵢ₎)], regrouped by unit (0-based j):
+    // Σⱼ (2j + 1) ln Φ(z₍ⱼ₎) + (2n − 2j − 1) ln Φ(−z₍ⱼ₎). One tail function per unit: the smaller
+    // side t = Φ(−|z|) keeps its digits, and the larger side is ln(1 − t) = ln_1p(−t).
     let mut sum = 0.0;
-    for i in 0..n {
-        let w = (2 * i + 1) as f64;
-        sum += w * (ln_phi(z[i]) + ln_phi(-z[n - 1 - i]));
+    for (j, &zj) in z.iter().enumerate() {
+        let t = dist::norm_sf(zj.abs());
+        let (small, large) = (t.ln(), (-t).ln_1p());
+        let (below, above) = if zj < 0.0 {
+            (small, large)
+        } else {
+            (large, small)
+        };
+        sum += (2 * j + 1) as f64 * below + (2 * (n - j) - 1) as f64 * above;
     }
     let a2 = -nf - sum / nf;
     let a_star = a2 * (1.0 + 0.75 / nf + 2.25 / (nf * nf));

@@ -43,6 +43,14 @@ pub fn leave_one_out(
     let g = w_solve(d);
     let mut wrong = [0usize; 2];
     let mut done = 0usize;
+    // The quadratic forms of both lots, one lot on each core.
+    let quads = {
+        let (q0, q1) = rayon::join(
+            || pooled.quadratic_forms(centred[0]),
+            || pooled.quadratic_forms(centred[1]),
+        );
+        [q0, q1]
+    };
     for lot in 0..2 {
         let x = centred[lot];
         let ng = n[lot] as f64;
@@ -54,40 +62,32 @@ pub fn leave_one_out(
             1.0 / (ng - 1.0)
         };
         let half_d = if lot == 0 { 0.5 } else { -0.5 };
-        // Blocks of units: one triangular solve for the whole block, then a few dot products
-        // per unit (all in scalars, no allocation per unit).
-        const BLOCK: usize = 1024;
-        let a = 1.0 + 0.5 / (ng - 1.0);
-        // Per unit, with w = a u + half_d d and gj = g + s h:
-        // gj·w = a (g·u + s h·u) + half_d (g·d + s h·d); gj·u = g·u + s h·u;
+        // Per unit u (centred on its lot's mean), with h = W⁻¹ u and g = W⁻¹ d: only the
+        // quadratic form h·u = uᵀ W⁻¹ u (one blocked triangular solve for the whole lot) and
+        // g·u = h·d (a matrix-vector product) are needed. With w = a u + half_d d and
+        // gj = g + s h: gj·w = a (g·u + s h·u) + half_d (g·d + s h·d); gj·u = g·u + s h·u;
         // h·w = a h·u + half_d h·d.
+        let a = 1.0 + 0.5 / (ng - 1.0);
         let gd = g.dot(d);
-        let mut start = 0;
-        while start < x.nrows() {
-            let m = BLOCK.min(x.nrows() - start);
-            let ub = x.rows(start, m).transpose();
-            let hb = pooled.solve_columns(&ub) / w_scale;
-            for k in 0..m {
-                let (u, h) = (ub.column(k), hb.column(k));
-                let uh = u.dot(&h);
-                let gu = g.dot(&u);
-                let hd = h.dot(d);
-                let denom = 1.0 - c * uh;
-                let gj_w = a * (gu + s * uh) + half_d * (gd + s * hd);
-                let gj_u = gu + s * uh;
-                let h_w = a * uh + half_d * hd;
-                let score = gj_w + c * gj_u * h_w / denom;
-                let to_first = score >= 0.0;
-                if (lot == 0) != to_first {
-                    wrong[lot] += 1;
-                }
-                done += 1;
-                if done.is_multiple_of(4096) && !keep_going(done as f64 / total) {
-                    return None;
-                }
-            }
-            start += m;
+        let quad = &quads[lot];
+        let along = x * &g;
+        if !keep_going(done as f64 / total) {
+            return None;
         }
+        for (q, &gu) in quad.iter().zip(along.iter()) {
+            let uh = q / w_scale;
+            let hd = gu;
+            let denom = 1.0 - c * uh;
+            let gj_w = a * (gu + s * uh) + half_d * (gd + s * hd);
+            let gj_u = gu + s * uh;
+            let h_w = a * uh + half_d * hd;
+            let score = gj_w + c * gj_u * h_w / denom;
+            let to_first = score >= 0.0;
+            if (lot == 0) != to_first {
+                wrong[lot] += 1;
+            }
+        }
+        done += x.nrows();
     }
     Some(wrong)
 }

@@ -152,6 +152,12 @@ impl Pooled {
         z
     }
 
+    /// `xᵢᵀ Sp⁻¹ xᵢ` for every unit (row) `xᵢ` of `x`: one blocked triangular solve for all
+    /// the units ([`super::blocked::quadratic_forms`]).
+    pub fn quadratic_forms(&self, x: &DMatrix<f64>) -> Vec<f64> {
+        super::blocked::quadratic_forms(x, self.sd.as_slice(), &self.chol.l())
+    }
+
     /// Diagonal of `R⁻¹` (needed for each characteristic's unique contribution), from the
     /// triangular factor: `(R⁻¹)_kk = ‖L⁻¹ e_k‖²`.
     pub fn corr_inverse_diagonal(&self) -> DVector<f64> {

@@ -2,6 +2,7 @@
 //! or the window.
 
 pub mod bignormal;
+pub mod blocked;
 pub mod capability;
 pub mod checks;
 pub mod discriminant;
@@ -13,6 +14,7 @@ pub mod moments;
 pub mod normality;
 pub mod permutation;
 pub mod power;
+pub mod sort;
 
 /// Why the engine could not compare two lots.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]

@@ -40,7 +40,7 @@ impl LotMoments {
             offset[k] = m;
             spread_scale[k] = scale;
         }
-        let ssp = centred.tr_mul(&centred);
+        let ssp = super::blocked::cross_products(&centred);
         (
             LotMoments {
                 n,
@@ -68,7 +68,7 @@ impl LotMoments {
             offset[k] = m;
             spread_scale[k] = scale;
         }
-        let ssp = x.tr_mul(x);
+        let ssp = super::blocked::cross_products(x);
         LotMoments {
             n,
             origin: origin.clone(),

@@ -318,3 +318,30 @@ fn a_planted_outlier_is_flagged_with_its_row_and_serial() {
     );
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// Above Shapiro–Wilk's range (5,000 units) Anderson–Darling and K² stand in for it for every
+/// characteristic of both lots, and nothing says a normality check was not computed.
+#[test]
+fn big_lots_get_the_large_lot_checks_and_no_not_computed_line() {
+    let mut rng = Rng::new(77);
+    let x = rng.lot(6_000, 3, 1.0, 10.0);
+    let y = rng.lot(7_000, 3, 1.0, 10.0);
+    let settings = Settings {
+        permutations: 0,
+        ..Settings::default()
+    };
+    let c = compare(&x, &y, &settings);
+    assert_eq!(c.normality.len(), 3);
+    for row in &c.normality {
+        assert!(
+            row.lots.iter().all(Option::is_none),
+            "Shapiro–Wilk beyond its range"
+        );
+        assert!(row.large.iter().all(Option::is_some), "{row:?}");
+    }
+    let skipped = analysis::checks_not_computed(&c);
+    assert!(
+        skipped.iter().all(|s| !s.contains("Shapiro")),
+        "{skipped:?}"
+    );
+}

@@ -433,3 +433,84 @@ fn a_wrong_number_of_files_is_a_usage_error() {
         "give two lot files, or one file and a lot column"
     );
 }
+
+/// The one-pass line reader (quote-free text) against the csv crate's path (the same text
+/// with one quoted label): every number, missing count, text cell and row number equal, on
+/// lines that leave the one-pass form in every way it can be left (missing tokens, empty
+/// cells, exponents, spaces, a leading plus, more than 15 digits, a blank line, CRLF, a last
+/// line without a line end, a trailing empty field).
+#[test]
+fn the_one_pass_reader_equals_the_general_rules_line_for_line() {
+    let body = "serial,x (mm),y (mm),note\r\n\
+                S1,1.5,2.25,ok\r\n\
+                S2,NA,3,\r\n\
+                S3,,4.5,late\r\n\
+                S4,1e-3,-0.5,ok\r\n\
+                S5, 7.25 ,+8,spaced\r\n\
+                S6,1.23456789012345678,0.1,long\r\n\
+                \r\n\
+                S7,-.5,5.,ok\r\n\
+                S8,2,3,ok,\r\n\
+                S9,1234567.891,-0.000001,last";
+    let plain = read("plain.csv", body.as_bytes()).unwrap();
+    let quoted_text = body.replacen("S1,", "\"S1\",", 1);
+    let quoted = read("plain.csv", quoted_text.as_bytes()).unwrap();
+    // Compared as printed: a missing cell is NaN, which is not equal to itself.
+    assert_eq!(
+        format!("{:?}", plain.columns),
+        format!("{:?}", quoted.columns)
+    );
+    assert_eq!(plain.rows, quoted.rows);
+    assert_eq!(plain.rows, vec![2, 3, 4, 5, 6, 7, 9, 10, 11]);
+    let x = numbers(&plain, "x");
+    // Against the standard library's parser (the reference for every decimal form).
+    assert_eq!(x[0], 1.5);
+    assert!(x[1].is_nan() && x[2].is_nan());
+    assert_eq!(x[3], "1e-3".parse::<f64>().unwrap());
+    assert_eq!(x[4], 7.25);
+    assert_eq!(x[5], "1.23456789012345678".parse::<f64>().unwrap());
+    assert_eq!(x[6], -0.5);
+    assert_eq!(x[8], "1234567.891".parse::<f64>().unwrap());
+    assert_eq!(numbers(&plain, "y")[7], 3.0);
+    // Errors name the same row and column either way.
+    for bad in ["S1,1.5,abc,x", "S1,1.5,inf,x", "S1,1.5\r"] {
+        let text = format!("serial,x (mm),y (mm),note\r\nS0,1,2,a\r\nS0,1,2,a\r\n{bad}\r\n");
+        let a = err("bad.csv", text.as_bytes()).to_string();
+        let b = err("bad.csv", text.replacen("S1", "\"S1\"", 1).as_bytes()).to_string();
+        assert_eq!(a, b);
+        assert!(a.contains("row 4"), "{a}");
+    }
+}
+
+/// Plain decimals of every length up to 15 digits, read by the one-pass reader, equal the
+/// standard library's correctly rounded parse bit for bit (Clinger 1990: an integer below
+/// 2⁵³ divided by an exact power of ten is one correctly rounded operation).
+#[test]
+fn plain_decimals_equal_the_standard_parser_bit_for_bit() {
+    let mut state = 0x2545_F491_4F6C_DD1Du64;
+    let mut text = String::from("x,y\n");
+    let mut want = Vec::new();
+    for i in 0..20_000u64 {
+        state ^= state << 13;
+        state ^= state >> 7;
+        state ^= state << 17;
+        let digits = 1 + (state % 15) as usize;
+        let mantissa = (state >> 8) % 10u64.pow(digits as u32);
+        let frac = (state >> 4) as usize % (digits + 1);
+        let s = format!("{mantissa:0digits$}");
+        let cell = format!(
+            "{}{}.{}",
+            if i % 3 == 0 { "-" } else { "" },
+            &s[..digits - frac],
+            &s[digits - frac..]
+        );
+        want.push(cell.parse::<f64>().unwrap());
+        text.push_str(&format!("{cell},{i}\n"));
+    }
+    let lot = read("decimals.csv", text.as_bytes()).unwrap();
+    let got = numbers(&lot, "x");
+    assert_eq!(got.len(), want.len());
+    for (g, w) in got.iter().zip(&want) {
+        assert_eq!(g.to_bits(), w.to_bits(), "{g} vs {w}");
+    }
+}

@@ -1032,14 +1032,22 @@ fn summaries_of_the_first_record_schema_still_verify() {
     let now: serde_json::Value =
         serde_json::from_str(&std::fs::read_to_string(&json).unwrap()).unwrap();
     assert_eq!(now["schema"], "lotshift.comparison/2");
+    // The engine may sum in another order than the version that wrote the old record (its
+    // cross-products now go through blocked kernels): the mirror holds to rounding.
+    let mirror = |a: f64, b: f64| {
+        assert!(
+            (a + b).abs() <= 1e-12 * a.abs().max(1e-300),
+            "{a} is not the mirror of {b}"
+        );
+    };
     for k in 0..old["intervals"].as_array().unwrap().len() {
         let (a, b) = (&old["intervals"][k], &now["intervals"][k]);
         let f = |v: &serde_json::Value| v.as_f64().unwrap();
-        assert_eq!(f(&a["difference"]), -f(&b["difference"]));
-        assert_eq!(f(&a["simultaneous"][0]), -f(&b["simultaneous"][1]));
-        assert_eq!(
+        mirror(f(&a["difference"]), f(&b["difference"]));
+        mirror(f(&a["simultaneous"][0]), f(&b["simultaneous"][1]));
+        mirror(
             f(&old["discriminant"]["coefficients"][k]),
-            -f(&now["discriminant"]["coefficients"][k])
+            f(&now["discriminant"]["coefficients"][k]),
         );
     }
     std::fs::remove_dir_all(dir).unwrap();
