@@ -29,7 +29,7 @@ def main(a_path, b_path, alpha=0.05):
     n2 = y.shape[0]
     n = n1 + n2
     m1, m2 = x.mean(0), y.mean(0)
-    d = m1 - m2
+    d = m2 - m1  # candidate − reference, as lotshift reports it
     s1 = np.cov(x, rowvar=False)
     s2 = np.cov(y, rowvar=False)
     sp = ((n1 - 1) * s1 + (n2 - 1) * s2) / (n - 2)

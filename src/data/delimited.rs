@@ -407,6 +407,102 @@ fn validate_utf8_chunk(carry: &mut Vec<u8>, mut data: &[u8]) -> bool {
     }
 }
 
+/// What the one-pass reader checks in each block of the file before it reads it: the hash of
+/// every byte, UTF-8, and that the block is quote-free (what the two-pass reader learns from
+/// [`scan_file`] first).
+struct Scanner {
+    hasher: sha2::Sha256,
+    size: u64,
+    /// A block that was not UTF-8 or not quote-free: the one-pass reader stopped there.
+    left: bool,
+}
+
+impl Scanner {
+    /// Hashes `block` and checks it; false when it is not plain UTF-8 quote-free text.
+    fn take(&mut self, block: &[u8]) -> bool {
+        use sha2::Digest as _;
+        if !(quote_free(block) && std::str::from_utf8(block).is_ok()) {
+            self.left = true;
+            return false;
+        }
+        self.hasher.update(block);
+        self.size += block.len() as u64;
+        true
+    }
+}
+
+/// Reads a file whose first megabyte is plain UTF-8 quote-free text in one pass: each block is
+/// hashed and checked ([`Scanner`]) before its lines are read. `None` when the file is not of
+/// that kind (a UTF-16 or quoted start, a decimal comma with a comma delimiter) or a later
+/// block is not: the caller then reads it in two passes, so every file reads the same either
+/// way.
+fn read_file_one_pass(
+    path: &str,
+    p: &Path,
+    options: &LoadOptions,
+    provenance: &Provenance,
+) -> Result<Option<Lot>, LoadError> {
+    use sha2::Digest as _;
+    use std::io::Read as _;
+    let io = |e: std::io::Error| LoadError::new(path, LoadErrorKind::Io(e.to_string()));
+    let size = std::fs::metadata(p).map_err(io)?.len();
+    let mut head = Vec::with_capacity(CHUNK);
+    std::fs::File::open(p)
+        .map_err(io)?
+        .take(CHUNK as u64)
+        .read_to_end(&mut head)
+        .map_err(io)?;
+    let skip = if head.starts_with(b"\xEF\xBB\xBF") {
+        3
+    } else {
+        0
+    };
+    let body = &head[skip..];
+    // Whole lines of the head only: a chunk may end inside a line or a character.
+    let lines = match memchr::memrchr(b'\n', body) {
+        Some(i) if (head.len() as u64) < size => &body[..=i],
+        _ => body,
+    };
+    // The header and the rows that decide each column's role must lie in the checked head.
+    let whole = head.len() as u64 >= size;
+    let plain = (whole || memchr::memchr_iter(b'\n', lines).count() > CLASSIFY_ROWS + 1)
+        && !head.starts_with(&[0xFF, 0xFE])
+        && !head.starts_with(&[0xFE, 0xFF])
+        && !lines.is_empty()
+        && quote_free(lines)
+        && std::str::from_utf8(lines).is_ok();
+    if !plain {
+        return Ok(None);
+    }
+    let mut scanner = Scanner {
+        hasher: sha2::Sha256::new(),
+        size: skip as u64,
+        left: false,
+    };
+    scanner.hasher.update(&head[..skip]);
+    let mut provenance = provenance.clone();
+    provenance.size_bytes = size;
+    let lot = read_source(
+        path,
+        Source::File(p, skip as u64),
+        body,
+        true,
+        true,
+        size,
+        options,
+        provenance,
+        Some(&mut scanner),
+    )?;
+    match lot {
+        Some(mut lot) if !scanner.left => {
+            lot.provenance.sha256 = super::hex(&scanner.hasher.finalize());
+            lot.provenance.size_bytes = scanner.size;
+            Ok(Some(lot))
+        }
+        _ => Ok(None),
+    }
+}
+
 /// Reads a CSV/TSV lot file from disk in chunks: one pass to hash and check it, then the
 /// passes of [`read`], so memory holds the numbers, not the file.
 pub(super) fn read_file(
@@ -415,6 +511,9 @@ pub(super) fn read_file(
     options: &LoadOptions,
     mut provenance: Provenance,
 ) -> Result<Lot, LoadError> {
+    if let Some(lot) = read_file_one_pass(path, p, options, &provenance)? {
+        return Ok(lot);
+    }
     let scan = scan_file(path, p)?;
     provenance.sha256 = scan.sha256.clone();
     provenance.size_bytes = scan.size;
@@ -438,7 +537,16 @@ pub(super) fn read_file(
         scan.size,
         options,
         provenance,
+        None,
     )
+    .and_then(|lot| {
+        lot.ok_or_else(|| {
+            LoadError::new(
+                path,
+                LoadErrorKind::Io("the reader stopped before the end of the text".into()),
+            )
+        })
+    })
 }
 
 struct Builder {
@@ -580,7 +688,16 @@ pub(super) fn read(
         bytes.len() as u64,
         options,
         provenance,
+        None,
     )
+    .and_then(|lot| {
+        lot.ok_or_else(|| {
+            LoadError::new(
+                path,
+                LoadErrorKind::Io("the reader stopped before the end of the text".into()),
+            )
+        })
+    })
 }
 
 /// The shared reader: `head` is the first megabyte of the text (after any byte-order mark).
@@ -594,7 +711,8 @@ fn read_source(
     size: u64,
     options: &LoadOptions,
     mut provenance: Provenance,
-) -> Result<Lot, LoadError> {
+    mut scanner: Option<&mut Scanner>,
+) -> Result<Option<Lot>, LoadError> {
     if head[..head.len().min(8192)].contains(&0) {
         return Err(LoadError::new(path, LoadErrorKind::Binary));
     }
@@ -764,12 +882,21 @@ fn read_source(
         Ok(())
     };
     let mut first = true;
-    if fast && !(decimal_comma && delim == b',') {
+    let one_pass = fast && !(decimal_comma && delim == b',');
+    if scanner.is_some() && !one_pass {
+        return Ok(None);
+    }
+    if one_pass {
         // Quote-free text: each line read in one pass, numbers parsed where they stand
         // ([`fast_row`]); a line it does not take goes through the general rules.
         let mut line_no = 1usize;
         let mut scratch = RowScratch::default();
         for_each_block(path, source, &mut |block, last| {
+            if let Some(sc) = scanner.as_deref_mut()
+                && !sc.take(block)
+            {
+                return Ok(false);
+            }
             let mut start = 0usize;
             while start < block.len() {
                 let end = memchr::memchr(b'\n', &block[start..]).map(|i| start + i);
@@ -805,6 +932,9 @@ fn read_source(
             }
             Ok(true)
         })?;
+        if scanner.as_ref().is_some_and(|sc| sc.left) {
+            return Ok(None);
+        }
     } else {
         for_each_record(path, source, delim, fast, &mut |row, fields| {
             if std::mem::take(&mut first) {
@@ -840,12 +970,12 @@ fn read_source(
             missing: col.missing,
         });
     }
-    Ok(Lot {
+    Ok(Some(Lot {
         name: String::new(),
         provenance,
         columns: out,
         rows,
-    })
+    }))
 }
 
 #[cfg(test)]

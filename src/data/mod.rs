@@ -329,6 +329,13 @@ pub fn parse_number(raw: &[u8], decimal_comma: bool) -> Option<f64> {
     }
 }
 
+/// The plain decimal at the start of `raw` and the bytes it takes, as the one-pass line
+/// reader parses a number cell where it stands in its line (`None` for any other form, which
+/// the general rules then read). Public for the loading benchmark.
+pub fn parse_number_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f64, usize)> {
+    fast_decimal_prefix(raw, decimal_comma)
+}
+
 /// Reads ASCII digits from `raw[*i..]` into `mantissa` (wrapping: the caller limits the
 /// count); returns how many.
 #[inline]

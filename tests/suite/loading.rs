@@ -514,3 +514,49 @@ fn plain_decimals_equal_the_standard_parser_bit_for_bit() {
         assert_eq!(g.to_bits(), w.to_bits(), "{g} vs {w}");
     }
 }
+
+/// A file read in one pass (hash and checks block by block) equals the same bytes read from
+/// memory, hash included, also when what makes the one-pass reader give way (a quoted cell,
+/// a byte that is not UTF-8, a lone carriage return) comes only after the first megabyte.
+#[test]
+fn the_one_pass_file_reader_gives_way_late_and_reads_the_same() {
+    let mut text = String::from("serial,x (mm),y (mm),note\n");
+    for i in 0..150_000 {
+        text.push_str(&format!(
+            "S{i},{}.{:03},{},n{}\n",
+            i % 97,
+            i % 1000,
+            i % 13,
+            i % 7
+        ));
+    }
+    let late = text.len() - 200;
+    let dir = std::env::temp_dir().join(format!("lotshift-one-pass-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    let path = dir.join("late.csv");
+    let mut cases: Vec<Vec<u8>> = vec![text.clone().into_bytes()];
+    let mut quoted = text.clone().into_bytes();
+    let at = late + quoted[late..].iter().position(|&b| b == b'n').unwrap();
+    quoted.splice(at..at + 1, b"\"n,\"".iter().copied());
+    cases.push(quoted);
+    let mut latin1 = text.clone().into_bytes();
+    latin1[at] = 0xE9;
+    cases.push(latin1);
+    let mut lone_cr = text.clone().into_bytes();
+    lone_cr[at] = b'\r';
+    cases.push(lone_cr);
+    for bytes in cases {
+        std::fs::write(&path, &bytes).unwrap();
+        let from_file = load(&path, &LoadOptions::default());
+        let from_memory = load_bytes(&path.display().to_string(), &bytes, &LoadOptions::default());
+        assert_eq!(
+            format!("{from_file:?}"),
+            format!("{from_memory:?}"),
+            "file and memory differ"
+        );
+        if let Ok(lot) = from_file {
+            assert_eq!(lot.len(), 150_000);
+        }
+    }
+    std::fs::remove_dir_all(dir).unwrap();
+}
