@@ -130,6 +130,12 @@ type BlockFn<'a> = dyn FnMut(&[u8], bool) -> Result<bool, LoadError> + 'a;
 /// Bytes read from a file at a time.
 const CHUNK: usize = 1 << 20;
 
+/// Bytes the line-block reader asks for at a time. Kept well below the allocator's threshold
+/// for giving big blocks their own mapping: a freed buffer above it raises the threshold, and
+/// the next lot's columns would then come from the shared heap, which keeps their memory after
+/// they move into the unit matrices (peak memory twice the numbers instead of once).
+const READ: usize = 32 * 1024;
+
 /// Calls `f(text, last)` for the text in blocks of whole lines (`last` marks the final block,
 /// which may end without a line end), until `f` returns `Ok(false)`: text in memory as one
 /// block, a file a chunk at a time so memory stays flat.
@@ -143,10 +149,10 @@ fn for_each_block(path: &str, source: Source<'_>, f: &mut BlockFn<'_>) -> Result
             use std::io::{Read as _, Seek as _};
             let mut file = std::fs::File::open(p).map_err(io)?;
             file.seek(std::io::SeekFrom::Start(skip)).map_err(io)?;
-            let mut buf: Vec<u8> = Vec::with_capacity(CHUNK * 2);
+            let mut buf: Vec<u8> = Vec::with_capacity(READ * 2);
             loop {
                 let old = buf.len();
-                buf.resize(old + CHUNK, 0);
+                buf.resize(old + READ, 0);
                 let got = file.read(&mut buf[old..]).map_err(io)?;
                 buf.truncate(old + got);
                 let at_end = got == 0;
@@ -193,7 +199,7 @@ fn for_each_record(
             use std::io::{Read as _, Seek as _};
             let mut file = std::fs::File::open(p).map_err(io)?;
             file.seek(std::io::SeekFrom::Start(skip)).map_err(io)?;
-            Box::new(std::io::BufReader::with_capacity(CHUNK, file).take(u64::MAX))
+            Box::new(std::io::BufReader::with_capacity(READ, file).take(u64::MAX))
         }
     };
     // The csv crate's own line numbers fall one behind after a CRLF line end, and its record

@@ -429,14 +429,22 @@ fn build(lot: &Lot, idx: &[usize]) -> PreparedLot {
 fn build_releasing(lot: &mut Lot, idx: &[usize]) -> PreparedLot {
     let kept = complete_rows(lot.len(), &numeric_cols(lot, idx));
     let out = left_out(lot, idx, &kept);
-    let mut data = Vec::with_capacity(kept.len() * idx.len());
-    let every = kept.len() == lot.len();
-    for &i in idx {
+    let m = kept.len();
+    // Zeroed by the system on first touch, so the matrix costs memory only as it is filled.
+    let mut data = vec![0.0; m * idx.len()];
+    let every = m == lot.len();
+    // The last column first: the columns were allocated in order, so each one released is at
+    // the top of the allocator's heap, which can then hand the memory back to the system as
+    // the matrix fills (memory holds about one copy of the numbers throughout, not two).
+    for (slot, &i) in idx.iter().enumerate().rev() {
         if let ColumnData::Numeric(v) = &mut lot.columns[i].data {
+            let dst = &mut data[slot * m..(slot + 1) * m];
             if every {
-                data.extend_from_slice(v);
+                dst.copy_from_slice(v);
             } else {
-                data.extend(kept.iter().map(|&r| v[r]));
+                for (d, &r) in dst.iter_mut().zip(&kept) {
+                    *d = v[r];
+                }
             }
             *v = Vec::new();
         }
