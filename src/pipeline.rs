@@ -180,6 +180,44 @@ pub fn run_owned(
     Ok((prepared, c))
 }
 
+/// As [`run_prepared`], with the unit matrices given up to the engine, which centres them in
+/// place (no copy of the units): the specification counts and the input notes are taken from
+/// every unit first, then `prepared` keeps only the rows `keep` of each lot, in that order
+/// (the units the window draws). The numbers equal [`run_prepared`]'s to the last bit.
+///
+/// # Errors
+/// As [`run_prepared`].
+pub fn run_prepared_owned(
+    lots: &[Arc<Lot>; 2],
+    prepared: &mut Prepared,
+    keep: [&[usize]; 2],
+    request: &Request,
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<Comparison, PipelineError> {
+    let spec = specification_and_counts(request, prepared)?;
+    let notes = screen([&lots[0], &lots[1]], prepared);
+    let units = [0, 1].map(|g| {
+        let data = &prepared.lots[g].data;
+        let kept = DMatrix::from_fn(keep[g].len(), data.ncols(), |r, k| data[(keep[g][r], k)]);
+        std::mem::replace(&mut prepared.lots[g].data, kept)
+    });
+    let names = [prepared.lots[0].name.clone(), prepared.lots[1].name.clone()];
+    let mut c = analysis::compare_owned(
+        &prepared.characteristics,
+        &prepared.units,
+        [&names[0], &names[1]],
+        units,
+        settings,
+        progress,
+    )?;
+    if let Some((s, observed)) = spec {
+        analysis::apply_specification(&mut c, &s, Some(&observed))?;
+    }
+    analysis::note_inputs(&mut c, notes);
+    Ok(c)
+}
+
 /// Matches the lots' columns, keeping the lots as they are (the window's path: the lots stay
 /// loaded for the next run).
 ///

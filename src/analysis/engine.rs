@@ -271,6 +271,27 @@ fn permute_centred(
     settings: &Settings,
     progress: &dyn Progress,
 ) -> Result<(), EngineError> {
+    permute_with(out, settings, progress, |keep_going| {
+        permutation_test(
+            centred,
+            d,
+            settings.permutations,
+            settings.seed,
+            settings.sequential.as_ref(),
+            settings.alpha,
+            keep_going,
+        )
+    })
+}
+
+/// Runs `test` (a permutation test with the settings' relabellings) with progress and
+/// cancellation, and records its result and settings in `out`.
+fn permute_with(
+    out: &mut Comparison,
+    settings: &Settings,
+    progress: &dyn Progress,
+    test: impl FnOnce(&(dyn Fn(f64) -> bool + Sync)) -> Option<PermutationResult>,
+) -> Result<(), EngineError> {
     if settings.permutations == 0 {
         return Ok(());
     }
@@ -279,15 +300,7 @@ fn permute_centred(
         progress.report("permutations", 0.5 + 0.4 * f);
         !progress.cancelled()
     };
-    out.permutation = permutation_test(
-        centred,
-        d,
-        settings.permutations,
-        settings.seed,
-        settings.sequential.as_ref(),
-        settings.alpha,
-        &keep_going,
-    );
+    out.permutation = test(&keep_going);
     if progress.cancelled() {
         return Err(EngineError::Cancelled);
     }
@@ -318,6 +331,41 @@ pub fn add_permutation(
     let (m2, c2) = LotMoments::from_data_centred(data[1], &origin);
     let d = &m1.offset - &m2.offset;
     permute_centred(out, [&c1, &c2], &d, settings, progress)?;
+    conclude(out);
+    Ok(())
+}
+
+/// As [`add_permutation`], with unit matrices it may consume: they are centred in place (the
+/// same arithmetic, so the same p-value), so memory holds them and the permutation test's own
+/// copy, not a centred copy besides.
+///
+/// # Errors
+/// Cancellation.
+pub fn add_permutation_owned(
+    out: &mut Comparison,
+    data: [DMatrix<f64>; 2],
+    settings: &Settings,
+    progress: &dyn Progress,
+) -> Result<(), EngineError> {
+    if settings.permutations == 0 || data[0].nrows() == 0 {
+        return Ok(());
+    }
+    let [mut x, mut y] = data;
+    let origin: DVector<f64> = x.row(0).transpose();
+    let m1 = LotMoments::centre_in_place(&mut x, &origin);
+    let m2 = LotMoments::centre_in_place(&mut y, &origin);
+    let d = &m1.offset - &m2.offset;
+    permute_with(out, settings, progress, |keep_going| {
+        crate::stats::permutation::permutation_test_owned(
+            [x, y],
+            &d,
+            settings.permutations,
+            settings.seed,
+            settings.sequential.as_ref(),
+            settings.alpha,
+            keep_going,
+        )
+    })?;
     conclude(out);
     Ok(())
 }

@@ -186,7 +186,7 @@ pub fn overview_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) 
                 p.size_bytes,
                 &p.sha256[..12.min(p.sha256.len())],
                 pl.n_read,
-                pl.data.nrows()
+                pl.kept.len()
             ));
         }
         if let Some(counted) = &s.counted {

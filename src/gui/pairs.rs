@@ -187,8 +187,8 @@ pub fn pairs_ui(
             ];
             let hover_names = [lots[0].2.clone(), lots[1].2.clone()];
             let hover_text = s.unit_text.clone();
-            let sampled = s.sample[0].len() < s.prepared.lots[0].data.nrows()
-                || s.sample[1].len() < s.prepared.lots[1].data.nrows();
+            let sampled = s.sample[0].len() < s.prepared.lots[0].kept.len()
+                || s.sample[1].len() < s.prepared.lots[1].kept.len();
             Plot::new(("pair", i, j))
                 .height((avail.y * 0.62).max(260.0))
                 .legend(Legend::default())

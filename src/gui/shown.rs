@@ -81,8 +81,8 @@ impl Shown {
         record: Record,
     ) -> Self {
         let sample = [
-            stable_sample(prepared.lots[0].data.nrows(), MAX_POINTS),
-            stable_sample(prepared.lots[1].data.nrows(), MAX_POINTS),
+            stable_sample(prepared.lots[0].kept.len(), MAX_POINTS),
+            stable_sample(prepared.lots[1].kept.len(), MAX_POINTS),
         ];
         let mut shown = Shown {
             comparison,
@@ -170,10 +170,17 @@ impl Shown {
         }
         let geometry = pair_geometry(&self.comparison, i, j, coverage);
         let points = [0, 1].map(|g| {
-            let data = &self.prepared.lots[g].data;
+            let lot = &self.prepared.lots[g];
+            // Every unit, or only the drawn ones in the order drawn (the window's runs keep
+            // just those: see `worker::run_comparison_staged`).
+            let every = lot.data.nrows() == lot.kept.len();
             self.sample[g]
                 .iter()
-                .map(|&r| PlotPoint::new(data[(r, i)], data[(r, j)]))
+                .enumerate()
+                .map(|(pos, &r)| {
+                    let row = if every { r } else { pos };
+                    PlotPoint::new(lot.data[(row, i)], lot.data[(row, j)])
+                })
                 .collect()
         });
         let view = Arc::new(PairView { geometry, points });

@@ -56,14 +56,14 @@ fn lot_lines(ui: &mut egui::Ui, i: usize, lot: &Lot, current: Option<&Shown>) {
             let why = missing_cells(s, i);
             ui.label(format!(
                 "{} units used; {} left out for missing cells ({})",
-                pl.data.nrows(),
+                pl.kept.len(),
                 pl.n_excluded,
                 why.join(", ")
             ))
             .on_hover_text("A unit with a missing cell in any compared characteristic is left out of the whole analysis (listwise).");
         }
         Some((_, pl)) => {
-            ui.label(format!("{} units used", pl.data.nrows()));
+            ui.label(format!("{} units used", pl.kept.len()));
         }
         None => {
             ui.weak("units used: when the comparison is done");

@@ -18,7 +18,7 @@ use crate::report::Record;
 use crate::source::QuerySource;
 use crate::source::aggregate::{self, Choice};
 
-use super::shown::Shown;
+use super::shown::{MAX_POINTS, Shown, stable_sample};
 
 /// Which lot slot a load fills.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -504,13 +504,24 @@ pub fn run_comparison_staged(
     let settings = &request.settings;
     let mut prepared = pipeline::prepare_shared(lots, request).map_err(|e| e.to_string())?;
     add_session_pairings(&mut prepared, lots);
-    let prepared = Arc::new(prepared);
     let quick = Settings {
         permutations: 0,
         ..settings.clone()
     };
-    let mut c = pipeline::run_prepared(lots, &prepared, request, &quick, progress)
-        .map_err(|e| e.to_string())?;
+    // The engine takes the unit matrices over and centres them in place; the result keeps
+    // only the units the views draw (the lots as read stay loaded for the next run): memory
+    // holds the lots and one copy of their numbers, not three.
+    let drawn = [0, 1].map(|g| stable_sample(prepared.lots[g].kept.len(), MAX_POINTS));
+    let mut c = pipeline::run_prepared_owned(
+        lots,
+        &mut prepared,
+        [&drawn[0], &drawn[1]],
+        request,
+        &quick,
+        progress,
+    )
+    .map_err(|e| e.to_string())?;
+    let prepared = Arc::new(prepared);
     let bundle = |c: Comparison| {
         let record = Record::new(&c, Some((&*prepared, [&lots[0], &lots[1]])));
         let mut shown = Shown::new(c, prepared.clone(), lots.clone(), record);
@@ -521,13 +532,12 @@ pub fn run_comparison_staged(
         return Ok(bundle(c));
     }
     first(bundle(c.clone()));
-    analysis::add_permutation(
-        &mut c,
-        [&prepared.lots[0].data, &prepared.lots[1].data],
-        settings,
-        progress,
-    )
-    .map_err(|e| e.to_string())?;
+    // The units once more for the relabellings (the same matching, so the same matrices),
+    // centred in place.
+    let again = pipeline::prepare_shared(lots, request).map_err(|e| e.to_string())?;
+    let [a, b] = again.lots;
+    analysis::add_permutation_owned(&mut c, [a.data, b.data], settings, progress)
+        .map_err(|e| e.to_string())?;
     Ok(bundle(c))
 }
 

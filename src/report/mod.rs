@@ -23,10 +23,19 @@ use std::path::Path;
 
 /// Writes `bytes` to `path` atomically: a temporary file in the same folder, flushed to disk,
 /// then renamed over the target. A failure leaves no partial file and the old file intact.
+/// A target that exists and is not a regular file (`/dev/null`, a named pipe, a terminal) is
+/// written to directly: renaming over it would replace the device or pipe with a file.
 ///
 /// # Errors
 /// Any I/O error, with the path in the message.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    if std::fs::metadata(path).is_ok_and(|m| !m.is_file() && !m.is_dir()) {
+        return std::fs::OpenOptions::new()
+            .write(true)
+            .open(path)
+            .and_then(|mut f| f.write_all(bytes))
+            .map_err(|e| std::io::Error::new(e.kind(), format!("{}: {e}", path.display())));
+    }
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => std::path::PathBuf::from("."),

@@ -511,23 +511,97 @@ pub fn permutation_test(
 ) -> Option<PermutationResult> {
     let (n1, p) = centred[0].shape();
     let n2 = centred[1].nrows();
-    let n = n1 + n2;
     if n1 == 0 || n2 == 0 || p == 0 || permutations == 0 || d.len() != p {
         return None;
     }
-    // All units, row-major, centred on the grand mean: each lot's centred units moved by its
-    // mean's distance from the grand mean (+n2/N·d for the first lot, −n1/N·d for the second).
-    let mut rows = vec![0.0; n * p];
+    let mut rows = vec![0.0; (n1 + n2) * p];
+    fill_rows(&mut rows, centred[0], 0, n1, n2, d);
+    fill_rows(&mut rows, centred[1], 1, n1, n2, d);
+    test_rows(
+        &rows,
+        n1,
+        n2,
+        p,
+        permutations,
+        seed,
+        sequential,
+        alpha,
+        keep_going,
+    )
+}
+
+/// As [`permutation_test`], consuming the centred units: each lot's matrix is released as
+/// soon as its rows are in the row-major copy, so memory never holds both whole copies.
+pub fn permutation_test_owned(
+    centred: [DMatrix<f64>; 2],
+    d: &DVector<f64>,
+    permutations: usize,
+    seed: u64,
+    sequential: Option<&Sequential>,
+    alpha: f64,
+    keep_going: &(dyn Fn(f64) -> bool + Sync),
+) -> Option<PermutationResult> {
+    let (n1, p) = centred[0].shape();
+    let n2 = centred[1].nrows();
+    if n1 == 0 || n2 == 0 || p == 0 || permutations == 0 || d.len() != p {
+        return None;
+    }
+    let mut rows = vec![0.0; (n1 + n2) * p];
+    let [x, y] = centred;
+    fill_rows(&mut rows, &x, 0, n1, n2, d);
+    drop(x);
+    fill_rows(&mut rows, &y, 1, n1, n2, d);
+    drop(y);
+    test_rows(
+        &rows,
+        n1,
+        n2,
+        p,
+        permutations,
+        seed,
+        sequential,
+        alpha,
+        keep_going,
+    )
+}
+
+/// Writes lot `g`'s centred units into the row-major copy of all units, centred on the grand
+/// mean: each lot's units moved by its mean's distance from the grand mean (+n2/N·d for the
+/// first lot, −n1/N·d for the second).
+fn fill_rows(
+    rows: &mut [f64],
+    lot: &DMatrix<f64>,
+    g: usize,
+    n1: usize,
+    n2: usize,
+    d: &DVector<f64>,
+) {
+    let n = n1 + n2;
+    let p = lot.ncols();
     let (w1, w2) = (n2 as f64 / n as f64, n1 as f64 / n as f64);
+    let first = if g == 0 { 0 } else { n1 };
     for k in 0..p {
-        let (s1, s2) = (w1 * d[k], -w2 * d[k]);
-        for (i, v) in centred[0].column(k).iter().enumerate() {
-            rows[i * p + k] = v + s1;
-        }
-        for (i, v) in centred[1].column(k).iter().enumerate() {
-            rows[(n1 + i) * p + k] = v + s2;
+        let shift = if g == 0 { w1 * d[k] } else { -w2 * d[k] };
+        for (i, v) in lot.column(k).iter().enumerate() {
+            rows[(first + i) * p + k] = v + shift;
         }
     }
+}
+
+/// The permutation test on the row-major copy of all units (`n1` of the first lot, then `n2`).
+#[allow(clippy::too_many_arguments)]
+fn test_rows(
+    rows: &[f64],
+    n1: usize,
+    n2: usize,
+    p: usize,
+    permutations: usize,
+    seed: u64,
+    sequential: Option<&Sequential>,
+    alpha: f64,
+    keep_going: &(dyn Fn(f64) -> bool + Sync),
+) -> Option<PermutationResult> {
+    let n = n1 + n2;
     // Total cross-products, on the correlation scale for a well-conditioned factor.
     let mut total = DMatrix::<f64>::zeros(p, p);
     for r in rows.chunks_exact(p) {

@@ -408,10 +408,23 @@ fn the_owned_path_gives_exactly_the_borrowed_numbers() {
         &Silent,
     )
     .unwrap();
+    let mut staged_owned = staged.clone();
     analysis::add_permutation(&mut staged, [&x, &y], &settings, &Silent).unwrap();
     assert_eq!(
         serde_json::to_string(&borrowed).unwrap(),
         serde_json::to_string(&staged).unwrap()
+    );
+    // The window's way: the units given up and centred in place, the same to the last bit.
+    analysis::add_permutation_owned(
+        &mut staged_owned,
+        [x.clone(), y.clone()],
+        &settings,
+        &Silent,
+    )
+    .unwrap();
+    assert_eq!(
+        serde_json::to_string(&staged).unwrap(),
+        serde_json::to_string(&staged_owned).unwrap()
     );
 }
 

@@ -1557,3 +1557,26 @@ fn the_complete_report_prints_every_field_in_a_real_browser() {
     }
     std::fs::remove_dir_all(dir).unwrap();
 }
+
+/// An output named as a device (`--json /dev/null`, a pipe) is written to, not replaced: the
+/// atomic rename is for regular files only.
+#[cfg(unix)]
+#[test]
+fn an_output_that_is_a_device_stays_a_device() {
+    use std::os::unix::fs::FileTypeExt as _;
+    let null = std::path::Path::new("/dev/null");
+    assert!(
+        std::fs::metadata(null)
+            .unwrap()
+            .file_type()
+            .is_char_device()
+    );
+    lotshift::report::write_atomic(null, b"{}").unwrap();
+    assert!(
+        std::fs::metadata(null)
+            .unwrap()
+            .file_type()
+            .is_char_device(),
+        "/dev/null was replaced by a file"
+    );
+}
