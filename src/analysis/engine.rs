@@ -225,8 +225,11 @@ fn compare_centred(
     // and twice the reference mean's offset from the midpoint.
     let d = &m1.offset - &m2.offset;
     let half = &d * 0.5;
-    let s1 = discriminant::scores(&c1, &a, &half);
-    let s2 = discriminant::scores(&c2, &a, &(-&half));
+    let minus_half = -&half;
+    let (s1, s2) = rayon::join(
+        || discriminant::scores(&c1, &a, &half),
+        || discriminant::scores(&c2, &a, &minus_half),
+    );
     let apparent = [
         s1.iter().filter(|&&s| s > 0.0).count(),
         s2.iter().filter(|&&s| s <= 0.0).count(),

@@ -336,11 +336,56 @@ pub fn parse_number_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f64, usiz
     fast_decimal_prefix(raw, decimal_comma)
 }
 
+/// Powers of ten for the runs of up to eight digits that [`digits`] reads at once.
+const POW10_U64: [u64; 9] = [
+    1,
+    10,
+    100,
+    1_000,
+    10_000,
+    100_000,
+    1_000_000,
+    10_000_000,
+    100_000_000,
+];
+
 /// Reads ASCII digits from `raw[*i..]` into `mantissa` (wrapping: the caller limits the
 /// count); returns how many.
+///
+/// Where eight bytes are left, they are read as one 64-bit word: the run of digits at its
+/// start is found with bit masks and its value formed with three multiplications (the
+/// eight-digit method of Lemire, "Number parsing at a gigabyte per second", 2021, with the
+/// run shifted so that the bytes after it read as leading zeros). The rest goes a byte at a
+/// time. Both give the integer the digits spell.
 #[inline]
 fn digits(raw: &[u8], i: &mut usize, mantissa: &mut u64) -> usize {
     let start = *i;
+    while let Some(Ok(word)) = raw.get(*i..*i + 8).map(<[u8; 8]>::try_from) {
+        // Each byte's digit value (0..=9 for a digit, anything else for another byte).
+        let x = u64::from_le_bytes(word) ^ 0x3030_3030_3030_3030;
+        // Bit 7 of a byte is set where it is not a digit (no carry crosses a byte).
+        let other =
+            (x | ((x & 0x7F7F_7F7F_7F7F_7F7F) + 0x7676_7676_7676_7676)) & 0x8080_8080_8080_8080;
+        let run = if other == 0 {
+            8
+        } else {
+            (other.trailing_zeros() / 8) as usize
+        };
+        if run == 0 {
+            return *i - start;
+        }
+        // The first byte is the most significant digit; shifted up, the bytes after the run
+        // drop out and zero digits come in below.
+        let v = if run == 8 { x } else { x << (8 * (8 - run)) };
+        let v = v.wrapping_mul(10 * 256 + 1) >> 8;
+        let v = (v & 0x00FF_00FF_00FF_00FF).wrapping_mul(100 * 65_536 + 1) >> 16;
+        let v = (v & 0x0000_FFFF_0000_FFFF).wrapping_mul(10_000 * (1 << 32) + 1) >> 32;
+        *mantissa = mantissa.wrapping_mul(POW10_U64[run]).wrapping_add(v);
+        *i += run;
+        if run < 8 {
+            return *i - start;
+        }
+    }
     while let Some(&b) = raw.get(*i) {
         let d = b.wrapping_sub(b'0');
         if d > 9 {
@@ -389,7 +434,8 @@ pub(crate) fn fast_decimal_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f6
     if digits == 0 || digits > 15 {
         return None;
     }
-    let v = mantissa as f64 / POW10[frac];
+    // Below 2⁵³ (at most 15 digits), so the signed conversion (one instruction) is exact.
+    let v = mantissa as i64 as f64 / POW10[frac];
     Some((if neg { -v } else { v }, i))
 }
 
