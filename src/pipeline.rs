@@ -158,25 +158,14 @@ pub fn run_owned(
     let mut prepared = data::prepare_releasing(lots, &request.selection)?;
     prepared.exclusions = request.exclusions.clone();
     check_strict(request, &prepared)?;
-    let spec = specification_and_counts(request, &prepared)?;
-    let notes = screen([&lots[0], &lots[1]], &prepared);
-    let units = [
-        std::mem::replace(&mut prepared.lots[0].data, DMatrix::zeros(0, 0)),
-        std::mem::replace(&mut prepared.lots[1].data, DMatrix::zeros(0, 0)),
-    ];
-    let names = [prepared.lots[0].name.clone(), prepared.lots[1].name.clone()];
-    let mut c = analysis::compare_owned(
-        &prepared.characteristics,
-        &prepared.units,
-        [&names[0], &names[1]],
-        units,
+    let c = run_prepared_owned(
+        [&lots[0], &lots[1]],
+        &mut prepared,
+        [&[], &[]],
+        request,
         &request.settings,
         progress,
     )?;
-    if let Some((s, observed)) = spec {
-        analysis::apply_specification(&mut c, &s, Some(&observed))?;
-    }
-    analysis::note_inputs(&mut c, notes);
     Ok((prepared, c))
 }
 
@@ -188,7 +177,7 @@ pub fn run_owned(
 /// # Errors
 /// As [`run_prepared`].
 pub fn run_prepared_owned(
-    lots: &[Arc<Lot>; 2],
+    lots: [&Lot; 2],
     prepared: &mut Prepared,
     keep: [&[usize]; 2],
     request: &Request,
@@ -196,7 +185,7 @@ pub fn run_prepared_owned(
     progress: &dyn Progress,
 ) -> Result<Comparison, PipelineError> {
     let spec = specification_and_counts(request, prepared)?;
-    let notes = screen([&lots[0], &lots[1]], prepared);
+    let notes = screen(lots, prepared);
     let units = [0, 1].map(|g| {
         let data = &prepared.lots[g].data;
         let kept = DMatrix::from_fn(keep[g].len(), data.ncols(), |r, k| data[(keep[g][r], k)]);

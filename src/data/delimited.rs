@@ -413,6 +413,16 @@ fn validate_utf8_chunk(carry: &mut Vec<u8>, mut data: &[u8]) -> bool {
     }
 }
 
+/// The lot a reader without a [`Scanner`] returns: it always reads to the end.
+fn to_the_end(path: &str, lot: Option<Lot>) -> Result<Lot, LoadError> {
+    lot.ok_or_else(|| {
+        LoadError::new(
+            path,
+            LoadErrorKind::Io("the reader stopped before the end of the text".into()),
+        )
+    })
+}
+
 /// What the one-pass reader checks in each block of the file before it reads it: the hash of
 /// every byte, UTF-8, and that the block is quote-free (what the two-pass reader learns from
 /// [`scan_file`] first).
@@ -545,14 +555,7 @@ pub(super) fn read_file(
         provenance,
         None,
     )
-    .and_then(|lot| {
-        lot.ok_or_else(|| {
-            LoadError::new(
-                path,
-                LoadErrorKind::Io("the reader stopped before the end of the text".into()),
-            )
-        })
-    })
+    .and_then(|lot| to_the_end(path, lot))
 }
 
 struct Builder {
@@ -696,14 +699,7 @@ pub(super) fn read(
         provenance,
         None,
     )
-    .and_then(|lot| {
-        lot.ok_or_else(|| {
-            LoadError::new(
-                path,
-                LoadErrorKind::Io("the reader stopped before the end of the text".into()),
-            )
-        })
-    })
+    .and_then(|lot| to_the_end(path, lot))
 }
 
 /// The shared reader: `head` is the first megabyte of the text (after any byte-order mark).

@@ -513,7 +513,7 @@ pub fn run_comparison_staged(
     // holds the lots and one copy of their numbers, not three.
     let drawn = [0, 1].map(|g| stable_sample(prepared.lots[g].kept.len(), MAX_POINTS));
     let mut c = pipeline::run_prepared_owned(
-        lots,
+        [&lots[0], &lots[1]],
         &mut prepared,
         [&drawn[0], &drawn[1]],
         request,

@@ -509,11 +509,7 @@ pub fn permutation_test(
     alpha: f64,
     keep_going: &(dyn Fn(f64) -> bool + Sync),
 ) -> Option<PermutationResult> {
-    let (n1, p) = centred[0].shape();
-    let n2 = centred[1].nrows();
-    if n1 == 0 || n2 == 0 || p == 0 || permutations == 0 || d.len() != p {
-        return None;
-    }
+    let (n1, n2, p) = sizes([centred[0].shape(), centred[1].shape()], permutations, d)?;
     let mut rows = vec![0.0; (n1 + n2) * p];
     fill_rows(&mut rows, centred[0], 0, n1, n2, d);
     fill_rows(&mut rows, centred[1], 1, n1, n2, d);
@@ -541,11 +537,7 @@ pub fn permutation_test_owned(
     alpha: f64,
     keep_going: &(dyn Fn(f64) -> bool + Sync),
 ) -> Option<PermutationResult> {
-    let (n1, p) = centred[0].shape();
-    let n2 = centred[1].nrows();
-    if n1 == 0 || n2 == 0 || p == 0 || permutations == 0 || d.len() != p {
-        return None;
-    }
+    let (n1, n2, p) = sizes([centred[0].shape(), centred[1].shape()], permutations, d)?;
     let mut rows = vec![0.0; (n1 + n2) * p];
     let [x, y] = centred;
     fill_rows(&mut rows, &x, 0, n1, n2, d);
@@ -563,6 +555,16 @@ pub fn permutation_test_owned(
         alpha,
         keep_going,
     )
+}
+
+/// The lots' sizes and the number of characteristics, or `None` when there is nothing to test.
+fn sizes(
+    shapes: [(usize, usize); 2],
+    permutations: usize,
+    d: &DVector<f64>,
+) -> Option<(usize, usize, usize)> {
+    let ((n1, p), (n2, _)) = (shapes[0], shapes[1]);
+    (n1 > 0 && n2 > 0 && p > 0 && permutations > 0 && d.len() == p).then_some((n1, n2, p))
 }
 
 /// Writes lot `g`'s centred units into the row-major copy of all units, centred on the grand
