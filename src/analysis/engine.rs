@@ -385,8 +385,8 @@ fn unit_checks(
     let [c0, c1] = centred;
     let names = [out.lots[0].name.clone(), out.lots[1].name.clone()];
     let (first, second) = rayon::join(
-        || lot_checks(0, &names[0], c0, alpha),
-        || lot_checks(1, &names[1], c1, alpha),
+        || lot_checks(0, &names[0], c0, &moments[0].ssp, alpha),
+        || lot_checks(1, &names[1], c1, &moments[1].ssp, alpha),
     );
     let lots = [first, second];
     out.normality = (0..out.characteristics.len())
@@ -427,7 +427,13 @@ struct LotChecks {
 
 /// Shapiro–Wilk (or, above its range, Anderson–Darling and K²) per characteristic, then
 /// Mardia's tests and the outlier screen on the whitened units of lot `g`.
-fn lot_checks(g: usize, name: &str, mut c: DMatrix<f64>, alpha: f64) -> LotChecks {
+fn lot_checks(
+    g: usize,
+    name: &str,
+    mut c: DMatrix<f64>,
+    ssp: &DMatrix<f64>,
+    alpha: f64,
+) -> LotChecks {
     let p = c.ncols();
     // Shapiro–Wilk is location-invariant: the centred columns serve (and it runs first,
     // before the whitening below changes them).
@@ -455,7 +461,8 @@ fn lot_checks(g: usize, name: &str, mut c: DMatrix<f64>, alpha: f64) -> LotCheck
         outliers: Vec::new(),
         removed: Vec::new(),
     };
-    if let Some(w) = checks::whiten_keeping(&mut c) {
+    // The lot's cross-products are those of these centred units: no pass to form them again.
+    if let Some(w) = checks::whiten_with(&mut c, ssp) {
         out.mardia = Some(checks::mardia(name, &c));
         let (cut, units) = checks::outliers(g, &c, alpha);
         out.cutoff = cut;

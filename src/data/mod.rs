@@ -319,16 +319,6 @@ pub(crate) fn parse_cell_bytes(raw: &[u8], decimal_comma: bool) -> Cell {
     }
 }
 
-/// The number in one cell's bytes as the loaders read it (a decimal point, or a decimal comma
-/// when `decimal_comma`); `None` for a missing, infinite or text cell. Public for the loading
-/// benchmark, which measures it against a maintained float parser.
-pub fn parse_number(raw: &[u8], decimal_comma: bool) -> Option<f64> {
-    match parse_cell_bytes(raw, decimal_comma) {
-        Cell::Number(v) => Some(v),
-        _ => None,
-    }
-}
-
 /// The plain decimal at the start of `raw` and the bytes it takes, as the one-pass line
 /// reader parses a number cell where it stands in its line (`None` for any other form, which
 /// the general rules then read). Public for the loading benchmark.

@@ -195,11 +195,18 @@ impl Whitening {
 /// As [`whiten_in_place`], keeping the factor so single units can be turned back into
 /// centred values; `None` (data unusable) when the covariance is singular.
 pub fn whiten_keeping(c: &mut DMatrix<f64>) -> Option<Whitening> {
+    let ssp = super::blocked::cross_products(c);
+    whiten_with(c, &ssp)
+}
+
+/// As [`whiten_keeping`], with the centred units' cross-products `cᵀc` already known (the
+/// lot's moments hold them), so the units are not passed over once more to form them.
+pub fn whiten_with(c: &mut DMatrix<f64>, ssp: &DMatrix<f64>) -> Option<Whitening> {
     let (n, p) = c.shape();
     if n == 0 {
         return None;
     }
-    let cov = super::blocked::cross_products(c) / n as f64;
+    let cov = ssp / n as f64;
     let sd: Vec<f64> = (0..p).map(|k| cov[(k, k)].sqrt()).collect();
     if sd.iter().any(|&s| !super::positive(s)) {
         return None;
