@@ -322,7 +322,7 @@ fn main() {
         all_ok &= ok;
         println!(
             "{:<44} {:>10.0}/s {:>12} {:>9} {:>14}",
-            format!("load MB per core, {label}"),
+            format!("load MB per core, {label}, {}", data::NUMBER_READER),
             per_core,
             "",
             "",

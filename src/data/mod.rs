@@ -296,6 +296,7 @@ pub(crate) enum Cell {
 pub const MISSING_TOKENS: [&str; 7] = ["na", "n/a", "nan", "-", "#n/a", "null", "#na"];
 
 /// Powers of ten exactly representable as f64.
+#[cfg_attr(feature = "fast-float2-reader", allow(dead_code))]
 const POW10: [f64; 23] = [
     1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6, 1e7, 1e8, 1e9, 1e10, 1e11, 1e12, 1e13, 1e14, 1e15, 1e16,
     1e17, 1e18, 1e19, 1e20, 1e21, 1e22,
@@ -319,6 +320,14 @@ pub(crate) fn parse_cell_bytes(raw: &[u8], decimal_comma: bool) -> Cell {
     }
 }
 
+/// Which reader the loader parses plain decimals with: its own ([`parse_number_prefix`]), or
+/// fast-float2 in a build with the `fast-float2-reader` feature (for the benchmark).
+pub const NUMBER_READER: &str = if cfg!(feature = "fast-float2-reader") {
+    "fast-float2"
+} else {
+    "lotshift's decimal reader"
+};
+
 /// The plain decimal at the start of `raw` and the bytes it takes, as the one-pass line
 /// reader parses a number cell where it stands in its line (`None` for any other form, which
 /// the general rules then read). Public for the loading benchmark.
@@ -327,6 +336,7 @@ pub fn parse_number_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f64, usiz
 }
 
 /// Powers of ten for the runs of up to eight digits that [`digits`] reads at once.
+#[cfg_attr(feature = "fast-float2-reader", allow(dead_code))]
 const POW10_U64: [u64; 9] = [
     1,
     10,
@@ -347,6 +357,7 @@ const POW10_U64: [u64; 9] = [
 /// eight-digit method of Lemire, "Number parsing at a gigabyte per second", 2021, with the
 /// run shifted so that the bytes after it read as leading zeros). The rest goes a byte at a
 /// time. Both give the integer the digits spell.
+#[cfg_attr(feature = "fast-float2-reader", allow(dead_code))]
 #[inline]
 fn digits(raw: &[u8], i: &mut usize, mantissa: &mut u64) -> usize {
     let start = *i;
@@ -398,6 +409,7 @@ fn fast_decimal(raw: &[u8], decimal_comma: bool) -> Option<f64> {
 
 /// The plain decimal at the start of `raw` (as [`fast_decimal`] reads a whole cell) and the
 /// number of bytes it takes; the caller checks what follows it.
+#[cfg(not(feature = "fast-float2-reader"))]
 #[inline]
 pub(crate) fn fast_decimal_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f64, usize)> {
     let mut i = 0usize;
@@ -427,6 +439,21 @@ pub(crate) fn fast_decimal_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f6
     // Below 2⁵³ (at most 15 digits), so the signed conversion (one instruction) is exact.
     let v = mantissa as i64 as f64 / POW10[frac];
     Some((if neg { -v } else { v }, i))
+}
+
+/// As the decimal reader above, by fast-float2 (the `fast-float2-reader` feature, for the
+/// in-loader comparison of the pipeline benchmark). It is correctly rounded like the standard
+/// parser, so any finite number it reads is the value the general rules give; the rest (and
+/// any decimal comma, which it does not read) go to the general rules.
+#[cfg(feature = "fast-float2-reader")]
+#[inline]
+pub(crate) fn fast_decimal_prefix(raw: &[u8], decimal_comma: bool) -> Option<(f64, usize)> {
+    match fast_float2::parse_partial::<f64, _>(raw) {
+        Ok((v, used)) if v.is_finite() && !(decimal_comma && raw.get(used) == Some(&b',')) => {
+            Some((v, used))
+        }
+        _ => None,
+    }
 }
 
 /// Classifies a cell's text, reading a decimal comma when `decimal_comma`.
