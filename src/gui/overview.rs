@@ -448,6 +448,17 @@ fn checks_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) {
     s.set_aside_reason = typed;
 }
 
+/// A grid cell's text wrapped to the width left in the panel (a long line would otherwise widen
+/// the grid past the panel's edge).
+fn wrapped(ui: &mut egui::Ui, text: String) -> egui::Response {
+    let width = ui.available_width().max(200.0);
+    ui.scope(|ui| {
+        ui.set_max_width(width);
+        ui.add(egui::Label::new(text).wrap())
+    })
+    .inner
+}
+
 fn checks_body(ui: &mut egui::Ui, s: &Shown, typed: &mut String, actions: &mut Vec<Action>) {
     let c = &s.comparison;
     ui.strong("Assumption checks and alternatives");
@@ -491,7 +502,7 @@ fn checks_body(ui: &mut egui::Ui, s: &Shown, typed: &mut String, actions: &mut V
             }
             if let Some(p) = &c.permutation {
                 ui.label("Permutation p-value");
-                ui.label(permutation_line(p));
+                wrapped(ui, permutation_line(p));
                 ui.end_row();
             }
             for m in &c.mardia {
@@ -528,17 +539,20 @@ fn checks_body(ui: &mut egui::Ui, s: &Shown, typed: &mut String, actions: &mut V
                             .map(|(_, t)| t.excess_kurtosis.abs())
                             .fold(0.0, f64::max);
                         ui.label(format!("Anderson–Darling and K², {}", c.lots[g].name));
-                        ui.label(format!(
-                            "{}; largest |skewness| {}, largest |excess kurtosis| {} (the size \
+                        wrapped(
+                            ui,
+                            format!(
+                                "{}; largest |skewness| {}, largest |excess kurtosis| {} (the size \
                              of the departure, which decides at this many units)",
-                            if low.is_empty() {
-                                format!("no characteristic below p = {}", c.alpha())
-                            } else {
-                                format!("below p = {}: {}", c.alpha(), low.join(", "))
-                            },
-                            format_sig(worst_skew, 2),
-                            format_sig(worst_kurt, 2)
-                        ));
+                                if low.is_empty() {
+                                    format!("no characteristic below p = {}", c.alpha())
+                                } else {
+                                    format!("below p = {}: {}", c.alpha(), low.join(", "))
+                                },
+                                format_sig(worst_skew, 2),
+                                format_sig(worst_kurt, 2)
+                            ),
+                        );
                         ui.end_row();
                         continue;
                     }

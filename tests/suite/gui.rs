@@ -1811,3 +1811,13 @@ fn a_parquet_file_dropped_on_the_window_is_read_as_a_lot() {
     );
     let _ = std::fs::remove_dir_all(dir);
 }
+
+#[test]
+fn a_long_check_line_wraps_inside_the_window() {
+    // The permutation line of the Verdict view is longer than the panel is wide: it wraps
+    // instead of running off the window's right edge (1400 points here).
+    let h = harness();
+    let line = h.get_by_label_contains("relabellings reached the observed");
+    let right = line.rect().max.x;
+    assert!(right <= 1400.0, "the line ends at x = {right}");
+}
