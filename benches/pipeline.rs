@@ -177,8 +177,8 @@ fn cross_check_fast(ours: &serde_json::Value, base: &[f64]) -> bool {
 
 /// The decimal reader against fast-float2 on every number of `path`, each read where it
 /// stands in its line as the one-pass reader reads it (the number at the start of the rest of
-/// the line, and the bytes it takes): MB per second of each, best of six (taking turns at going first), and whether they
-/// read the same values and lengths.
+/// the line, and the bytes it takes): MB per second of each, best of six (the two taking
+/// turns at going first), and whether they read the same values and lengths.
 fn parsers(path: &Path) -> (f64, f64, bool) {
     let text = std::fs::read(path).unwrap();
     let body = &text[text.iter().position(|&b| b == b'\n').unwrap() + 1..];

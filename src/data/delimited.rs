@@ -581,12 +581,6 @@ impl Builder {
     }
 }
 
-/// What [`fast_row`] keeps between lines so that no line allocates.
-#[derive(Default)]
-struct RowScratch {
-    texts: Vec<(usize, usize)>,
-}
-
 /// Reads the data line that starts at `text[at..]` in a single pass when every cell is
 /// plain: each number column a plain decimal ([`super::fast_decimal_prefix`]) that ends at
 /// the delimiter, each text column anything up to it, exactly one field per column, and the
@@ -595,7 +589,8 @@ struct RowScratch {
 /// values appended to the columns; otherwise `None`, with nothing kept (every column is left
 /// at `rows` values), and the caller reads the line by the general rules (missing cells,
 /// other number forms, errors with their row and column). A line taken here gives the values
-/// the general rules would give.
+/// the general rules would give. `texts` is room for the text cells' spans, kept between
+/// lines so that no line allocates.
 #[allow(clippy::too_many_arguments)]
 fn fast_row(
     text: &[u8],
@@ -606,9 +601,9 @@ fn fast_row(
     latin1: bool,
     columns: &mut [Builder],
     rows: usize,
-    scratch: &mut RowScratch,
+    texts: &mut Vec<(usize, usize)>,
 ) -> Option<usize> {
-    scratch.texts.clear();
+    texts.clear();
     let final_column = columns.len().saturating_sub(1);
     let mut next = None;
     for (k, col) in columns.iter_mut().enumerate() {
@@ -629,16 +624,18 @@ fn fast_row(
             } else {
                 end
             };
-            scratch.texts.push((at, end));
+            texts.push((at, end));
             end
         };
         if k == final_column {
-            next = match text.get(end..end + 2) {
-                _ if end == text.len() && last => Some(end),
-                Some([b'\n', ..]) => Some(end + 1),
-                Some([b'\r', b'\n']) => Some(end + 2),
-                None if text.get(end) == Some(&b'\n') => Some(end + 1),
-                _ => None,
+            next = if end == text.len() && last {
+                Some(end)
+            } else if text.get(end) == Some(&b'\n') {
+                Some(end + 1)
+            } else if text.get(end..end + 2) == Some(b"\r\n") {
+                Some(end + 2)
+            } else {
+                None
             };
         } else if text.get(end) == Some(&delim) {
             at = end + 1;
@@ -652,7 +649,7 @@ fn fast_row(
         }
         return None;
     };
-    let mut texts = scratch.texts.iter();
+    let mut texts = texts.iter();
     for col in columns.iter_mut().filter(|c| !c.numeric) {
         if let Some(&(s, e)) = texts.next() {
             col.push_text(&text[s..e], latin1);
@@ -909,7 +906,7 @@ fn read_source(
         // Quote-free text: each line read in one pass, numbers parsed where they stand
         // ([`fast_row`]); a line it does not take goes through the general rules.
         let mut line_no = 1usize;
-        let mut scratch = RowScratch::default();
+        let mut texts = Vec::new();
         for_each_block(path, source, &mut |block, last| {
             if let Some(sc) = scanner.as_deref_mut()
                 && !sc.take(block)
@@ -930,7 +927,7 @@ fn read_source(
                         latin1,
                         &mut columns,
                         rows.len(),
-                        &mut scratch,
+                        &mut texts,
                     )
                 {
                     rows.push(u32::try_from(line_no).unwrap_or(u32::MAX));

@@ -451,12 +451,7 @@ fn checks_ui(ui: &mut egui::Ui, s: &mut Shown, actions: &mut Vec<Action>) {
 /// A grid cell's text wrapped to the width left in the panel (a long line would otherwise widen
 /// the grid past the panel's edge).
 fn wrapped(ui: &mut egui::Ui, text: String) -> egui::Response {
-    let width = ui.available_width().max(200.0);
-    ui.scope(|ui| {
-        ui.set_max_width(width);
-        ui.add(egui::Label::new(text).wrap())
-    })
-    .inner
+    ui.add(egui::Label::new(text).wrap())
 }
 
 fn checks_body(ui: &mut egui::Ui, s: &Shown, typed: &mut String, actions: &mut Vec<Action>) {
